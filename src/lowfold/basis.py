@@ -1,0 +1,206 @@
+"""Many-body bases: the states of a sector as sorted integers, with fast ranking.
+
+A :class:`Basis` answers four questions: how many states (``size``), the state at an index
+(``states[i]``), the index of states (``index``, vectorised, -1 for non-members) and whether
+states belong (``contains``).  Sectors are enumerated directly, never masked out of the full
+space.  See ``lowfold._kernels.basis`` for the ranking scheme.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from fractions import Fraction
+
+import numpy as np
+
+from ._kernels import basis as kernels
+from .errors import ModelError, SizeError
+from .sites import Site
+
+__all__ = ["Basis", "Sector", "full_basis", "sector_basis", "explicit_basis"]
+
+_STATE_LIMIT = 2**62
+
+
+@dataclass(frozen=True)
+class Sector:
+    """Conserved quantities: total particle number and total S^z (``None`` = not fixed)."""
+
+    particles: int | None = None
+    sz: Fraction | None = None
+
+    @property
+    def is_full(self) -> bool:
+        return self.particles is None and self.sz is None
+
+
+@dataclass(frozen=True, eq=False)
+class Basis:
+    """An ordered set of many-body states (ascending integers).
+
+    Attributes
+    ----------
+    n_slots, radix : int
+        Digits per state and digit range (see ``lowfold.sites``).
+    params, weights : ndarray
+        Ranking description handed to the kernels.
+    states : ndarray of int64
+        The states, ascending.
+    """
+
+    n_slots: int
+    radix: int
+    params: np.ndarray
+    weights: np.ndarray
+    states: np.ndarray
+
+    @property
+    def size(self) -> int:
+        return int(self.states.shape[0])
+
+    def __len__(self) -> int:
+        return self.size
+
+    @property
+    def lookup_arrays(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """``(params, weights, sorted_states)`` as the kernels take them."""
+        return self.params, self.weights, self.states
+
+    def index(self, states) -> np.ndarray:
+        """Indices of ``states`` (int64 array); -1 where a state is not in the basis."""
+        states = np.ascontiguousarray(states, dtype=np.int64)
+        return kernels.lookup_many(states, *self.lookup_arrays)
+
+    def contains(self, states) -> np.ndarray:
+        return self.index(states) >= 0
+
+    def digits(self, states=None) -> np.ndarray:
+        """Digits of states (default: all), shape ``(n, n_slots)``; slot k in column k."""
+        states = self.states if states is None else np.asarray(states, dtype=np.int64)
+        powers = self.radix ** np.arange(self.n_slots, dtype=np.int64)
+        return (states[:, None] // powers[None, :]) % self.radix
+
+
+def _check_size(size: int, max_states: int | None) -> None:
+    if size >= _STATE_LIMIT or (max_states is not None and size > max_states):
+        raise SizeError(f"the basis has {size:,} states, more than the {max_states or _STATE_LIMIT:,} "
+                        "allowed; use a smaller cluster or a sector")
+
+
+def _make(n_slots, radix, params, weights, size, max_states) -> Basis:
+    _check_size(size, max_states)
+    params = np.array(params, dtype=np.int64)
+    states = kernels.enumerate_states(params, weights, size)
+    return Basis(n_slots, radix, params, weights, states)
+
+
+def basis_size(n_slots: int, radix: int, totals: list[tuple[int, int]] | None) -> int:
+    """Number of states of a full space (``totals=None``) or of species with fixed digit sums,
+    ``totals = [(n_slots_a, total_a), ...]``, computed exactly with Python integers."""
+    if totals is None:
+        return radix ** n_slots
+    size = 1
+    for n, total in totals:
+        size *= _count_fillings(n, radix, total)
+    return size
+
+
+def _count_fillings(n: int, radix: int, total: int) -> int:
+    ways = [1] + [0] * total
+    for _ in range(n):
+        ways = [sum(ways[r - u] for u in range(min(radix - 1, r) + 1)) for r in range(total + 1)]
+    return ways[total] if total >= 0 else 0
+
+
+def full_basis(n_slots: int, radix: int, *, max_states: int | None = None) -> Basis:
+    size = basis_size(n_slots, radix, None)
+    _check_size(size, max_states)
+    weights = np.zeros((1, 1), dtype=np.int64)
+    return _make(n_slots, radix, [kernels.FULL, radix, n_slots, 0, 0, 0, size], weights, size,
+                 max_states)
+
+
+def fixed_sum_basis(n_slots: int, radix: int, total: int, *, max_states=None) -> Basis:
+    size = basis_size(n_slots, radix, [(n_slots, total)])
+    _check_size(size, max_states)
+    weights = kernels.weight_table(n_slots, radix, total)
+    return _make(n_slots, radix, [kernels.FIXED_SUM, radix, n_slots, total, 0, 0, size],
+                 weights, size, max_states)
+
+
+def two_species_basis(n_each: int, total_low: int, total_high: int, *, max_states=None) -> Basis:
+    """Radix-2 states whose low ``n_each`` bits have ``total_low`` ones and whose high
+    ``n_each`` bits have ``total_high`` ones (electrons at fixed N_up, N_dn)."""
+    size_low = basis_size(n_each, 2, [(n_each, total_low)])
+    size = size_low * basis_size(n_each, 2, [(n_each, total_high)])
+    _check_size(size, max_states)
+    weights = kernels.weight_table(n_each, 2, max(total_low, total_high))
+    params = [kernels.TWO_SPECIES, 2, n_each, total_low, n_each, total_high, size_low]
+    return _make(2 * n_each, 2, params, weights, size, max_states)
+
+
+def explicit_basis(states, n_slots: int, radix: int) -> Basis:
+    """A basis made of the given states (sorted and de-duplicated)."""
+    states = np.unique(np.asarray(states, dtype=np.int64))
+    params = np.array([kernels.SORTED, radix, n_slots, 0, 0, 0, states.size], dtype=np.int64)
+    return Basis(n_slots, radix, params, np.zeros((1, 1), dtype=np.int64), states)
+
+
+def sector_totals(site: Site, n_sites: int, sector: Sector) -> list[tuple[int, int]] | None:
+    """Digit-sum constraints of a sector as ``[(n_slots, total), ...]`` per species, or
+    ``None`` for the full space.  Raises ``ModelError`` for a sector that cannot exist.
+    Electrons with fixed S^z but free particle number return ``"sz-only"`` handling via
+    :func:`sector_basis`."""
+    particles, sz = sector.particles, sector.sz
+    if sector.is_full:
+        return None
+    if site.type == "spin":
+        if particles is not None:
+            raise ModelError("sector.particles is not defined for spin sites (use sz)")
+        total = n_sites * site.spin - sz               # sum of digits k = S - m
+        if Fraction(sz) * 2 % 1 != 0 or total.denominator != 1:
+            raise ModelError(f"sector.sz = {sz} is impossible for {n_sites} spin-{site.spin} "
+                             "sites (S^z must be integer or half-integer like N*S)")
+        if not 0 <= total <= 2 * n_sites * site.spin:
+            raise ModelError(f"sector.sz = {sz} is out of range for {n_sites} spin-{site.spin} "
+                             f"sites (|S^z| <= {n_sites * site.spin})")
+        return [(n_sites, int(total))]
+    if site.type in ("fermion", "boson"):
+        if sz is not None:
+            raise ModelError(f"sector.sz is not defined for {site.type} sites")
+        capacity = n_sites * (site.radix - 1)
+        if not 0 <= particles <= capacity:
+            raise ModelError(f"sector.particles = {particles} is impossible: {n_sites} "
+                             f"{site.type} sites hold 0 to {capacity} particles")
+        return [(n_sites, particles)]
+    # electrons
+    if particles is not None and not 0 <= particles <= 2 * n_sites:
+        raise ModelError(f"sector.particles = {particles} is impossible: {n_sites} electron "
+                         f"sites hold 0 to {2 * n_sites} particles")
+    if sz is None:
+        return [(2 * n_sites, particles)]
+    if particles is None:
+        raise ModelError("for electron sites, sector.sz needs sector.particles too")
+    n_up = Fraction(particles, 2) + Fraction(sz)
+    n_dn = Fraction(particles, 2) - Fraction(sz)
+    if n_up.denominator != 1 or not (0 <= n_up <= n_sites and 0 <= n_dn <= n_sites):
+        raise ModelError(f"sector.sz = {sz} is impossible with {particles} electrons on "
+                         f"{n_sites} sites")
+    return [(n_sites, int(n_up)), (n_sites, int(n_dn))]
+
+
+def sector_basis(site: Site, n_sites: int, sector: Sector, *, max_states: int | None = None) -> Basis:
+    """Enumerate the basis of ``sector`` for ``n_sites`` sites of type ``site``."""
+    totals = sector_totals(site, n_sites, sector)
+    n_slots = n_sites * site.modes
+    if totals is None:
+        return full_basis(n_slots, site.radix, max_states=max_states)
+    if len(totals) == 1:
+        return fixed_sum_basis(n_slots, site.radix, totals[0][1], max_states=max_states)
+    return two_species_basis(n_sites, totals[0][1], totals[1][1], max_states=max_states)
+
+
+def sector_size(site: Site, n_sites: int, sector: Sector) -> int:
+    """Number of states of a sector, without enumerating it."""
+    totals = sector_totals(site, n_sites, sector)
+    return basis_size(n_sites * site.modes, site.radix, totals)

@@ -1,0 +1,124 @@
+"""Exact low-lying spectra: Lanczos (``eigsh``) on CSR or matrix-free, dense for small spaces."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable
+
+import numpy as np
+import scipy.linalg as la
+import scipy.sparse as sp
+from scipy.sparse.linalg import ArpackNoConvergence, LinearOperator, eigsh
+
+from ._kernels import operators as kernels
+from .basis import Basis
+from .errors import ConvergenceError, ModelError, SizeError
+from .hamiltonian import (available_memory, build_basis, check_hermitian, compile_operator,
+                          operator_linear, operator_matrix)
+from .model import Model
+
+__all__ = ["SpectrumResult", "lowest_eigenpairs", "spectrum"]
+
+DENSE_LIMIT = 1200          # below this many states, dense diagonalisation is fastest
+
+
+@dataclass(frozen=True, eq=False)
+class SpectrumResult:
+    """The lowest energies (ascending) and, on request, their eigenvectors (columns)."""
+
+    dimension: int
+    energies: np.ndarray
+    vectors: np.ndarray | None = None
+    method: str = "dense"
+
+    def to_dict(self) -> dict:
+        return {"dimension": self.dimension, "energies": [float(e) for e in self.energies]}
+
+
+def lowest_eigenpairs(matrix, k: int, *, vectors: bool = False, tol: float = 0.0,
+                      rng: np.random.Generator | None = None):
+    """The ``k`` lowest eigenvalues (and vectors) of a Hermitian sparse matrix, dense array or
+    ``LinearOperator``.  Dense ``eigh`` below ``DENSE_LIMIT`` states, ``eigsh`` above."""
+    n = matrix.shape[0]
+    k = min(k, n)
+    if k < 1:
+        raise ModelError("the number of levels must be at least 1")
+    if n <= DENSE_LIMIT or k >= n - 1:
+        if isinstance(matrix, LinearOperator):
+            dense = matrix @ np.eye(n, dtype=matrix.dtype)
+        else:
+            dense = matrix.toarray() if sp.issparse(matrix) else np.asarray(matrix)
+        values, vecs = la.eigh(dense, subset_by_index=[0, k - 1], driver="evr")
+        return (values, vecs) if vectors else (values, None)
+    rng = np.random.default_rng(7) if rng is None else rng
+    v0 = rng.standard_normal(n)
+    ncv = min(n, max(2 * k + 1, 20))
+    try:
+        values, vecs = eigsh(matrix, k=k, which="SA", v0=v0, ncv=ncv, tol=tol,
+                             return_eigenvectors=True)
+    except ArpackNoConvergence as exc:
+        raise ConvergenceError(f"Lanczos did not converge for the {k} lowest levels "
+                               f"({len(exc.eigenvalues)} converged)", partial=exc.eigenvalues) from None
+    order = np.argsort(values)
+    return values[order], (vecs[:, order] if vectors else None)
+
+
+def spectrum(model: Model, levels: int = 4, *, vectors: bool = False, method: str = "auto",
+             memory_limit: int | None = None,
+             progress: Callable[[str], None] | None = None) -> SpectrumResult:
+    """The ``levels`` lowest energies of the model in its sector.
+
+    ``method``: ``"auto"`` (dense for small spaces, then Lanczos on a CSR matrix if it fits in
+    memory, else matrix-free Lanczos), ``"csr"``, ``"matrix-free"`` or ``"dense"``.
+    Raises ``SizeError`` before building anything that would not fit in ``memory_limit`` bytes
+    (default: 80 % of the available memory).
+    """
+    if levels < 1:
+        raise ModelError(f"levels must be at least 1, got {levels}")
+    if method not in ("auto", "csr", "matrix-free", "dense"):
+        raise ModelError(f"unknown method {method!r}")
+    say = progress or (lambda message: None)
+    limit = int(0.8 * available_memory()) if memory_limit is None else memory_limit
+    basis = build_basis(model, max_states=max(limit // 96, 1))
+    op = compile_operator(model)
+    lanczos_bytes = (max(2 * levels + 1, 20) + 4) * basis.size * np.dtype(op.coef.dtype).itemsize
+    chosen = _choose_method(method, op, basis, limit - lanczos_bytes, say)
+    say(f"building the Hamiltonian on {basis.size:,} states ({chosen})")
+    if chosen == "matrix-free":
+        matrix = operator_linear(op, basis)
+    else:
+        matrix = operator_matrix(op, basis, memory_limit=limit - lanczos_bytes)
+    check_hermitian(matrix)
+    say(f"diagonalising ({basis.size:,} states, {levels} levels)")
+    if chosen == "dense" and basis.size > DENSE_LIMIT:
+        energies, vecs = _dense(matrix, levels, vectors)
+    else:
+        energies, vecs = lowest_eigenpairs(matrix, levels, vectors=vectors)
+    return SpectrumResult(basis.size, energies, vecs, chosen)
+
+
+def _dense(matrix, levels, vectors):
+    k = min(levels, matrix.shape[0])
+    values, vecs = la.eigh(matrix.toarray(), subset_by_index=[0, k - 1])
+    return values, (vecs if vectors else None)
+
+
+def _choose_method(method, op, basis: Basis, limit: int, say) -> str:
+    if method == "dense":
+        need = basis.size**2 * np.dtype(op.coef.dtype).itemsize * 3
+        if need > limit:
+            raise SizeError(f"a dense matrix of {basis.size:,} states needs {need / 2**30:.1f} GiB")
+        return "dense"
+    if method != "auto":
+        return method
+    if basis.size <= DENSE_LIMIT:
+        return "csr"
+    say(f"counting non-zeros on {basis.size:,} states")
+    images = kernels.count_images(basis.states, op.offdiagonal_strings, *op.arrays())
+    nnz = int(images.sum()) + basis.size
+    csr_bytes = nnz * (np.dtype(op.coef.dtype).itemsize + 4) + 8 * basis.size
+    if csr_bytes <= limit:
+        return "csr"
+    if 3 * 8 * basis.size <= limit:
+        return "matrix-free"
+    raise SizeError(f"{basis.size:,} states do not fit in {limit / 2**30:.1f} GiB")

@@ -1,0 +1,121 @@
+"""The model: lattice, site type, labelled terms, sector, parameters and the H0 / V split."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, replace
+from types import MappingProxyType
+from typing import Mapping
+
+from .basis import Sector
+from .errors import ModelError
+from .lattice import Lattice, make_lattice
+from .sites import Site
+from .terms import Term, expand_term
+
+__all__ = ["Model", "PerturbationSpec"]
+
+
+@dataclass(frozen=True)
+class PerturbationSpec:
+    """The ``[perturbation]`` table: which terms make H0, the order, and the manifold.
+
+    ``manifold = "lowest"`` takes the lowest degenerate level of H0 (relative tolerance
+    ``tolerance``); ``window = (emin, emax)`` takes every H0 level inside the window.
+    """
+
+    unperturbed: tuple[str, ...]
+    order: int = 2
+    manifold: str | None = "lowest"
+    window: tuple[float, float] | None = None
+    tolerance: float = 1e-9
+
+
+@dataclass(frozen=True)
+class Model:
+    """A lattice model, immutable: ``with_parameters`` / ``with_lattice`` return new models.
+
+    Conventions (hbar = 1, S = sigma/2, fermion and spin encodings) are those of
+    ``lowfold.sites`` and the README.
+    """
+
+    lattice: Lattice
+    site: Site
+    terms: tuple[Term, ...]
+    sector: Sector = Sector()
+    parameters: Mapping[str, float] = field(default_factory=dict)
+    perturbation: PerturbationSpec | None = None
+    title: str = ""
+    source: str = "<model>"
+
+    def __post_init__(self):
+        object.__setattr__(self, "parameters", MappingProxyType(dict(self.parameters)))
+        labels = [t.label for t in self.terms]
+        for label in labels:
+            if labels.count(label) > 1:
+                raise ModelError(f"term label {label!r} is used twice; labels must be unique")
+        for term in self.terms:      # validates strengths, selectors and operator names
+            expand_term(term, self.strength(term), self.lattice, self.site)
+        if self.perturbation is not None:
+            for label in self.perturbation.unperturbed:
+                if label not in labels:
+                    raise ModelError(f"perturbation.unperturbed names {label!r}, which is not "
+                                     f"a term label (labels: {', '.join(labels)})")
+
+    @property
+    def n_sites(self) -> int:
+        return self.lattice.n_sites
+
+    def term(self, label: str) -> Term:
+        for term in self.terms:
+            if term.label == label:
+                return term
+        raise ModelError(f"no term labelled {label!r}")
+
+    def strength(self, term: Term) -> float:
+        """Numeric strength of ``term`` (a number, or a parameter's value)."""
+        if isinstance(term.strength, str):
+            if term.strength not in self.parameters:
+                raise ModelError(f"term {term.label!r}: strength names parameter "
+                                 f"{term.strength!r}, which is not defined in [parameters]")
+            return float(self.parameters[term.strength])
+        return term.strength
+
+    def products(self, labels=None):
+        """Expanded local-operator products of the named terms (default: all), as
+        ``[(label, [(coefficient, ((operator, site), ...)), ...]), ...]``."""
+        chosen = self.terms if labels is None else [self.term(label) for label in labels]
+        return [(t.label, expand_term(t, self.strength(t), self.lattice, self.site))
+                for t in chosen]
+
+    @property
+    def unperturbed_labels(self) -> tuple[str, ...]:
+        if self.perturbation is None:
+            raise ModelError(f"{self.source}: the model has no [perturbation] table naming "
+                             "the unperturbed terms")
+        return self.perturbation.unperturbed
+
+    @property
+    def perturbation_labels(self) -> tuple[str, ...]:
+        h0 = set(self.unperturbed_labels)
+        return tuple(t.label for t in self.terms if t.label not in h0)
+
+    def with_parameters(self, values: Mapping[str, float] | None = None, **more) -> "Model":
+        """A copy with some parameters changed (unknown names are an error)."""
+        values = {**(values or {}), **more}
+        unknown = [k for k in values if k not in self.parameters]
+        if unknown:
+            raise ModelError(f"unknown parameter(s) {', '.join(unknown)} "
+                             f"(defined: {', '.join(self.parameters) or 'none'})")
+        return replace(self, parameters={**self.parameters, **values})
+
+    def with_lattice(self, *, size=None, boundary=None) -> "Model":
+        """A copy on a lattice of another size or boundary (same shape)."""
+        lat = self.lattice
+        if lat.shape == "graph":
+            raise ModelError("a graph lattice has no size to change")
+        new = make_lattice(lat.shape, lat.size if size is None else size,
+                           lat.boundary if boundary is None else boundary)
+        return replace(self, lattice=new)
+
+    def with_sector(self, sector: Sector) -> "Model":
+        return replace(self, sector=sector)

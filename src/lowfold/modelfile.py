@@ -1,0 +1,279 @@
+"""Reading and validating model files (TOML, the format of DESIGN.md).
+
+Every problem is a :class:`~lowfold.errors.ModelError` whose one-line message names the file
+and the key, e.g. ``dots.toml: term[2].strength: parameter 'V' is not defined``.
+"""
+
+from __future__ import annotations
+
+import math
+from fractions import Fraction
+from pathlib import Path
+
+try:
+    import tomllib
+except ModuleNotFoundError:  # Python 3.10
+    import tomli as tomllib
+
+from .basis import Sector, sector_totals
+from .errors import ModelError
+from .lattice import make_lattice
+from .model import Model, PerturbationSpec
+from .sites import make_site
+from .terms import TERM_TYPES, TWO_SITE_TYPES, Term
+
+__all__ = ["load_model", "parse_model", "read_toml"]
+
+_TOP_KEYS = {"title", "lattice", "site", "sector", "parameters", "term", "perturbation"}
+_LATTICE_KEYS = {"shape", "size", "boundary", "sites", "bonds"}
+_SITE_KEYS = {"type", "spin", "max_occupation"}
+_SECTOR_KEYS = {"particles", "sz"}
+_TERM_KEYS = {"type", "strength", "bonds", "sites", "label", "axis", "operators", "conjugate"}
+_PERTURBATION_KEYS = {"unperturbed", "order", "manifold", "window", "tolerance"}
+
+
+def read_toml(path) -> dict:
+    """Parse a TOML file; a missing file or a syntax error is a ModelError."""
+    path = Path(path)
+    try:
+        with open(path, "rb") as fh:
+            return tomllib.load(fh)
+    except FileNotFoundError:
+        raise ModelError(f"{path}: no such file") from None
+    except IsADirectoryError:
+        raise ModelError(f"{path}: is a directory, not a model file") from None
+    except tomllib.TOMLDecodeError as exc:
+        raise ModelError(f"{path}: not valid TOML ({exc})") from None
+
+
+def load_model(path) -> Model:
+    """Read a model file."""
+    return parse_model(read_toml(path), source=str(path))
+
+
+def parse_model(data: dict, *, source: str = "<model>") -> Model:
+    """Build a :class:`Model` from a parsed TOML document."""
+    try:
+        return _parse(data, source)
+    except ModelError as exc:
+        message = str(exc)
+        raise ModelError(message if message.startswith(source) else f"{source}: {message}") from None
+
+
+def _unknown(table: dict, allowed: set, where: str) -> None:
+    extra = sorted(set(table) - allowed)
+    if extra:
+        raise ModelError(f"{where}: unknown key {extra[0]!r} (allowed: {', '.join(sorted(allowed))})")
+
+
+def _table(data: dict, key: str, *, required: bool) -> dict:
+    if key not in data:
+        if required:
+            raise ModelError(f"missing [{key}] table")
+        return {}
+    if not isinstance(data[key], dict):
+        raise ModelError(f"{key}: must be a table")
+    return data[key]
+
+
+def _number(value, where: str) -> float:
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+        raise ModelError(f"{where}: must be a finite number, got {value!r}")
+    return float(value)
+
+
+def _integer(value, where: str) -> int:
+    if isinstance(value, bool) or not isinstance(value, int):
+        raise ModelError(f"{where}: must be an integer, got {value!r}")
+    return value
+
+
+def _parse(data: dict, source: str) -> Model:
+    _unknown(data, _TOP_KEYS, "top level")
+    title = data.get("title", Path(source).stem)
+    if not isinstance(title, str):
+        raise ModelError("title: must be a string")
+    lattice = _parse_lattice(_table(data, "lattice", required=True))
+    site = _parse_site(_table(data, "site", required=True))
+    parameters = _parse_parameters(_table(data, "parameters", required=False))
+    sector = _parse_sector(_table(data, "sector", required=False), site, lattice.n_sites)
+    terms = _parse_terms(data.get("term", []), parameters)
+    perturbation = None
+    if "perturbation" in data:
+        perturbation = _parse_perturbation(_table(data, "perturbation", required=True), terms)
+    try:
+        return Model(lattice, site, terms, sector, parameters, perturbation, title, source)
+    except ModelError as exc:
+        raise ModelError(_locate(str(exc), terms)) from None
+
+
+def _locate(message: str, terms) -> str:
+    """Prefix a term-level message with the term's key, e.g. ``term[1]``."""
+    for index, term in enumerate(terms):
+        if message.startswith(f"term {term.label!r}"):
+            return f"term[{index}] ({term.label}){message[len('term ' + repr(term.label)):]}"
+    return message
+
+
+def _parse_lattice(table: dict):
+    _unknown(table, _LATTICE_KEYS, "lattice")
+    shape = table.get("shape")
+    if not isinstance(shape, str):
+        raise ModelError("lattice.shape: missing or not a string")
+    if shape == "graph":
+        for key in ("size", "boundary"):
+            if key in table:
+                raise ModelError(f"lattice.{key}: not used with shape = \"graph\" (give sites and bonds)")
+        sites = _integer(table.get("sites"), "lattice.sites")
+        bonds = table.get("bonds", [])
+        try:
+            return make_lattice("graph", None, sites=sites, bonds=bonds)
+        except ModelError as exc:
+            raise ModelError(f"lattice: {exc}") from None
+    for key in ("sites", "bonds"):
+        if key in table:
+            raise ModelError(f"lattice.{key}: only used with shape = \"graph\"")
+    size = table.get("size")
+    if isinstance(size, int) and not isinstance(size, bool):
+        size = [size]
+    if not isinstance(size, list) or not all(isinstance(n, int) and not isinstance(n, bool) for n in size):
+        raise ModelError("lattice.size: must be a list of integers, e.g. [4] or [2, 3]")
+    try:
+        return make_lattice(shape, size, table.get("boundary", "open"))
+    except ModelError as exc:
+        raise ModelError(f"lattice: {exc}") from None
+
+
+def _parse_site(table: dict):
+    _unknown(table, _SITE_KEYS, "site")
+    kind = table.get("type")
+    if not isinstance(kind, str):
+        raise ModelError("site.type: missing or not a string")
+    spin = table.get("spin")
+    if spin is not None:
+        spin = _number(spin, "site.spin")
+    try:
+        return make_site(kind, spin=spin, max_occupation=table.get("max_occupation"))
+    except ModelError as exc:
+        raise ModelError(f"site: {exc}") from None
+
+
+def _parse_parameters(table: dict) -> dict:
+    return {name: _number(value, f"parameters.{name}") for name, value in table.items()}
+
+
+def _parse_sector(table: dict, site, n_sites: int) -> Sector:
+    _unknown(table, _SECTOR_KEYS, "sector")
+    particles = table.get("particles")
+    if particles is not None:
+        particles = _integer(particles, "sector.particles")
+    sz = table.get("sz")
+    if sz is not None:
+        sz_value = _number(sz, "sector.sz")
+        if (2 * sz_value) % 1 != 0:
+            raise ModelError(f"sector.sz: must be a multiple of 1/2, got {sz!r}")
+        sz = Fraction(sz_value).limit_denominator(2)
+    sector = Sector(particles, sz)
+    try:
+        sector_totals(site, n_sites, sector)
+    except ModelError as exc:
+        raise ModelError(f"sector: {exc}") from None
+    return sector
+
+
+def _parse_terms(entries, parameters: dict) -> tuple[Term, ...]:
+    if not isinstance(entries, list):
+        raise ModelError("term: use [[term]] tables")
+    terms = []
+    for index, table in enumerate(entries):
+        where = f"term[{index}]"
+        _unknown(table, _TERM_KEYS, where)
+        kind = table.get("type")
+        if kind not in TERM_TYPES:
+            raise ModelError(f"{where}.type: unknown term type {kind!r} (known: {', '.join(TERM_TYPES)})")
+        label = table.get("label", kind)
+        if not isinstance(label, str) or not label:
+            raise ModelError(f"{where}.label: must be a non-empty string")
+        if label in [t.label for t in terms]:
+            raise ModelError(f"{where}.label: {label!r} is used twice; give each term a unique label")
+        strength = table.get("strength")
+        if strength is None:
+            raise ModelError(f"{where}.strength: missing (a number or a parameter name)")
+        if isinstance(strength, str):
+            if strength not in parameters:
+                raise ModelError(f"{where}.strength: parameter {strength!r} is not defined in [parameters]")
+        else:
+            strength = _number(strength, f"{where}.strength")
+        bonds, sites = table.get("bonds"), table.get("sites")
+        if kind in TWO_SITE_TYPES and sites is not None:
+            raise ModelError(f"{where}.sites: a {kind} term acts on bonds; use 'bonds'")
+        if kind not in TWO_SITE_TYPES and kind != "product" and bonds is not None:
+            raise ModelError(f"{where}.bonds: a {kind} term acts on sites; use 'sites'")
+        operators = table.get("operators")
+        if operators is not None:
+            if kind != "product":
+                raise ModelError(f"{where}.operators: only used by product terms")
+            if not isinstance(operators, list) or not all(isinstance(o, str) for o in operators):
+                raise ModelError(f"{where}.operators: must be a list of operator names")
+            operators = tuple(operators)
+        if kind == "product" and bonds is None and sites is None:
+            bonds = "nearest" if operators is not None and len(operators) == 2 else None
+            sites = None if bonds else "all"
+        axis = table.get("axis")
+        if axis is not None and kind != "field":
+            raise ModelError(f"{where}.axis: only used by field terms")
+        if kind == "field" and axis is None:
+            raise ModelError(f"{where}.axis: a field term needs axis = \"x\", \"y\" or \"z\"")
+        conjugate = table.get("conjugate", False)
+        if not isinstance(conjugate, bool):
+            raise ModelError(f"{where}.conjugate: must be true or false")
+        if conjugate and kind != "product":
+            raise ModelError(f"{where}.conjugate: only used by product terms")
+        terms.append(Term(label, kind, strength, _selector(bonds, f"{where}.bonds", 2),
+                          _selector(sites, f"{where}.sites", 1), axis, operators, conjugate))
+    return tuple(terms)
+
+
+def _selector(value, where: str, width: int):
+    if value is None or isinstance(value, str):
+        return value
+    if not isinstance(value, list):
+        raise ModelError(f"{where}: must be a name or a list")
+    if width == 1:
+        if not all(isinstance(i, int) and not isinstance(i, bool) for i in value):
+            raise ModelError(f"{where}: must be a list of site indices")
+        return tuple(value)
+    if not all(isinstance(b, list) and len(b) == 2 and all(isinstance(i, int) for i in b) for b in value):
+        raise ModelError(f"{where}: must be a list of [i, j] pairs")
+    return tuple(tuple(b) for b in value)
+
+
+def _parse_perturbation(table: dict, terms) -> PerturbationSpec:
+    _unknown(table, _PERTURBATION_KEYS, "perturbation")
+    unperturbed = table.get("unperturbed")
+    if not isinstance(unperturbed, list) or not unperturbed or not all(isinstance(u, str) for u in unperturbed):
+        raise ModelError("perturbation.unperturbed: must be a non-empty list of term labels")
+    labels = [t.label for t in terms]
+    for label in unperturbed:
+        if label not in labels:
+            raise ModelError(f"perturbation.unperturbed: {label!r} is not a term label "
+                             f"(labels: {', '.join(labels)})")
+    order = _integer(table.get("order", 2), "perturbation.order")
+    if order < 1:
+        raise ModelError(f"perturbation.order: must be at least 1, got {order}")
+    manifold = table.get("manifold")
+    window = table.get("window")
+    if manifold is not None and window is not None:
+        raise ModelError("perturbation: give either manifold = \"lowest\" or window = [emin, emax], not both")
+    if window is not None:
+        if not isinstance(window, list) or len(window) != 2:
+            raise ModelError("perturbation.window: must be [emin, emax]")
+        window = (_number(window[0], "perturbation.window"), _number(window[1], "perturbation.window"))
+        if window[0] > window[1]:
+            raise ModelError("perturbation.window: emin must not exceed emax")
+    elif manifold is None:
+        manifold = "lowest"
+    if manifold is not None and manifold != "lowest":
+        raise ModelError(f"perturbation.manifold: must be \"lowest\" (or give a window), got {manifold!r}")
+    tolerance = _number(table.get("tolerance", 1e-9), "perturbation.tolerance")
+    return PerturbationSpec(tuple(unperturbed), order, manifold, window, tolerance)

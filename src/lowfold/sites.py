@@ -1,0 +1,284 @@
+"""Local Hilbert spaces and their operators.
+
+A site type describes what lives on one lattice site and how it is stored in the integer
+encoding of many-body states.  Every site is made of ``modes`` *slots*; a slot holds one
+digit in ``0 .. radix - 1``.  Slot ``site + mode * n_sites`` stores mode ``mode`` of site
+``site``, and a many-body state is the integer ``sum_slot digit(slot) * radix**slot``.
+
+Encodings (the conventions of DESIGN.md, also written in the README):
+
+=================  =====  =====  ===================================================
+type               modes  radix  digit
+=================  =====  =====  ===================================================
+spin S             1      2S+1   k, with S^z = S - k (spin-1/2: 0 = up, 1 = down)
+spinless fermion   1      2      occupation
+electron           2      2      mode 0: n_up, mode 1: n_dn (all up slots first)
+boson              1      n+1    occupation, at most ``max_occupation``
+=================  =====  =====  ===================================================
+
+Fermionic slots anticommute; the Jordan-Wigner order is the slot order.
+
+Every local operator is a short sum of *monomials*: a coefficient times a product of
+:class:`SlotOperator` factors, each of which maps a digit to at most one digit with a fixed
+digit change.  Operators without a fixed change (``Sx``, ``X`` ...) are split into raising
+and lowering parts, so that every monomial has definite quantum-number changes and sums such
+as ``X X + Y Y`` cancel exactly when monomials are collected.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from fractions import Fraction
+
+import numpy as np
+
+from .errors import ModelError
+
+__all__ = ["SlotOperator", "Site", "make_site", "SITE_TYPES"]
+
+SITE_TYPES = ("spin", "fermion", "electron", "boson")
+
+
+@dataclass(frozen=True)
+class SlotOperator:
+    """A single-slot operator ``digit k -> k + shift`` with amplitude ``amplitudes[k]``.
+
+    ``amplitudes[k] == 0`` means the operator annihilates digit ``k``.  ``fermionic`` marks
+    an odd operator (``c``, ``c+``) that picks up the Jordan-Wigner sign.
+    """
+
+    shift: int
+    amplitudes: tuple
+    fermionic: bool = False
+
+    def __post_init__(self):
+        # amplitudes of digits mapped outside 0 .. radix-1 are meaningless: store them as 0
+        radix = len(self.amplitudes)
+        cleaned = tuple(complex(a) if 0 <= k + self.shift < radix else 0j
+                        for k, a in enumerate(self.amplitudes))
+        object.__setattr__(self, "amplitudes", cleaned)
+
+    @property
+    def radix(self) -> int:
+        return len(self.amplitudes)
+
+    def table(self) -> tuple[np.ndarray, np.ndarray]:
+        """Digit map as arrays ``(new_digit, amplitude)``; ``new_digit = -1`` annihilates."""
+        amp = np.array(self.amplitudes, dtype=complex)
+        new = np.arange(self.radix) + self.shift
+        dead = (amp == 0) | (new < 0) | (new >= self.radix)
+        new[dead] = -1
+        amp[dead] = 0
+        return new, amp
+
+    def compose(self, right: "SlotOperator") -> "SlotOperator":
+        """The product ``self @ right`` (``right`` acts first)."""
+        new_r, amp_r = right.table()
+        new_l, amp_l = self.table()
+        amplitudes = []
+        for digit in range(self.radix):
+            mid = new_r[digit]
+            ok = mid >= 0 and new_l[mid] >= 0
+            amplitudes.append(amp_r[digit] * amp_l[mid] if ok else 0j)
+        return SlotOperator(self.shift + right.shift, _clean(amplitudes),
+                            self.fermionic != right.fermionic)
+
+    def adjoint(self) -> "SlotOperator":
+        new, amp = self.table()
+        amplitudes = [0j] * self.radix
+        for digit in range(self.radix):
+            if new[digit] >= 0:
+                amplitudes[new[digit]] = np.conj(amp[digit])
+        return SlotOperator(-self.shift, _clean(amplitudes), self.fermionic)
+
+    def is_zero(self) -> bool:
+        return not np.any(self.table()[1])
+
+
+def _clean(values) -> tuple:
+    """Amplitudes as a hashable tuple of Python complex numbers."""
+    return tuple(complex(v) for v in values)
+
+
+# A monomial: coefficient and factors [(mode, SlotOperator), ...], leftmost factor first.
+Monomial = tuple[complex, tuple[tuple[int, SlotOperator], ...]]
+
+
+@dataclass(frozen=True)
+class Site:
+    """One site's local Hilbert space and its named operators.
+
+    Attributes
+    ----------
+    type : str
+        ``"spin"``, ``"fermion"``, ``"electron"`` or ``"boson"``.
+    modes, radix : int
+        Slots per site and digits per slot (see the module docstring).
+    spin : Fraction or None
+        S for spin sites.
+    max_occupation : int or None
+        Cut-off for bosons.
+    """
+
+    type: str
+    modes: int
+    radix: int
+    spin: Fraction | None = None
+    max_occupation: int | None = None
+
+    @property
+    def local_dimension(self) -> int:
+        return self.radix ** self.modes
+
+    @property
+    def is_fermionic(self) -> bool:
+        return self.type in ("fermion", "electron")
+
+    @property
+    def has_spin(self) -> bool:
+        return self.type in ("spin", "electron")
+
+    @property
+    def has_particles(self) -> bool:
+        return self.type != "spin"
+
+    def operator_names(self) -> tuple[str, ...]:
+        return tuple(_OPERATOR_BUILDERS[self.type](self))
+
+    def operator(self, name: str) -> list[Monomial]:
+        """The named local operator as a list of monomials; ``ModelError`` if unknown."""
+        builders = _OPERATOR_BUILDERS[self.type](self)
+        if name not in builders:
+            known = ", ".join(builders)
+            raise ModelError(f"unknown operator {name!r} for {self.type} sites (known: {known})")
+        return builders[name]()
+
+    def adjoint_name(self, name: str) -> str:
+        """Name of the adjoint operator (``S+`` <-> ``S-``, ``c`` <-> ``c+``, ...)."""
+        pairs = {"S+": "S-", "c": "c+", "b": "b+", "c_up": "c+_up", "c_dn": "c+_dn"}
+        pairs.update({v: k for k, v in pairs.items()})
+        return pairs.get(name, name)
+
+    def slot_particles(self, mode: int) -> int:
+        """Particles carried by one unit of digit in ``mode`` (0 for spins)."""
+        return 0 if self.type == "spin" else 1
+
+    def slot_twice_sz(self, mode: int) -> int:
+        """Change of 2 S^z per unit increase of the digit in ``mode``."""
+        if self.type == "spin":
+            return -2
+        if self.type == "electron":
+            return 1 if mode == 0 else -1
+        return 0
+
+
+def make_site(type: str, *, spin=None, max_occupation=None) -> Site:
+    """Build a :class:`Site`; ``ModelError`` on invalid options."""
+    if type == "spin":
+        if spin is None:
+            spin = 0.5
+        twice = Fraction(spin) * 2
+        if twice.denominator != 1 or twice < 1:
+            raise ModelError(f"spin must be a positive multiple of 1/2, got {spin!r}")
+        return Site("spin", 1, int(twice) + 1, spin=Fraction(int(twice), 2))
+    if spin is not None:
+        raise ModelError(f"'spin' is only valid for type = \"spin\", not {type!r}")
+    if type == "boson":
+        if max_occupation is None or int(max_occupation) != max_occupation or max_occupation < 1:
+            raise ModelError("boson sites need max_occupation = a positive integer")
+        return Site("boson", 1, int(max_occupation) + 1, max_occupation=int(max_occupation))
+    if max_occupation is not None:
+        raise ModelError(f"'max_occupation' is only valid for type = \"boson\", not {type!r}")
+    if type == "fermion":
+        return Site("fermion", 1, 2)
+    if type == "electron":
+        return Site("electron", 2, 2)
+    raise ModelError(f"unknown site type {type!r} (known: {', '.join(SITE_TYPES)})")
+
+
+# ---------------------------------------------------------------------------------------
+# operator tables
+
+
+def _diag(values) -> SlotOperator:
+    return SlotOperator(0, _clean(values))
+
+
+def _mono(coef, *factors) -> Monomial:
+    return (complex(coef), tuple(factors))
+
+
+def _spin_operators(site: Site) -> dict:
+    s = float(site.spin)
+    m = s - np.arange(site.radix)          # S^z of each digit
+    sz = _diag(m)
+    # S+ raises m, i.e. lowers the digit: digit k -> k - 1
+    s_plus = SlotOperator(-1, _clean(np.sqrt(np.maximum(s * (s + 1) - m * (m + 1), 0.0))))
+    s_minus = SlotOperator(+1, _clean(np.sqrt(np.maximum(s * (s + 1) - m * (m - 1), 0.0))))
+    ops = {
+        "Sz": lambda: [_mono(1, (0, sz))],
+        "S+": lambda: [_mono(1, (0, s_plus))],
+        "S-": lambda: [_mono(1, (0, s_minus))],
+        "Sx": lambda: [_mono(0.5, (0, s_plus)), _mono(0.5, (0, s_minus))],
+        "Sy": lambda: [_mono(-0.5j, (0, s_plus)), _mono(0.5j, (0, s_minus))],
+    }
+    if site.radix == 2:
+        ops.update({
+            "X": lambda: [_mono(1, (0, s_plus)), _mono(1, (0, s_minus))],
+            "Y": lambda: [_mono(-1j, (0, s_plus)), _mono(1j, (0, s_minus))],
+            "Z": lambda: [_mono(2, (0, sz))],
+        })
+    return ops
+
+
+_NUMBER = _diag([0, 1])
+_ANNIHILATE = SlotOperator(-1, (0j, 1 + 0j), fermionic=True)
+_CREATE = SlotOperator(+1, (1 + 0j, 0j), fermionic=True)
+
+
+def _fermion_operators(site: Site) -> dict:
+    return {
+        "n": lambda: [_mono(1, (0, _NUMBER))],
+        "c": lambda: [_mono(1, (0, _ANNIHILATE))],
+        "c+": lambda: [_mono(1, (0, _CREATE))],
+    }
+
+
+def _electron_operators(site: Site) -> dict:
+    up, dn = 0, 1
+    return {
+        "n_up": lambda: [_mono(1, (up, _NUMBER))],
+        "n_dn": lambda: [_mono(1, (dn, _NUMBER))],
+        "c_up": lambda: [_mono(1, (up, _ANNIHILATE))],
+        "c_dn": lambda: [_mono(1, (dn, _ANNIHILATE))],
+        "c+_up": lambda: [_mono(1, (up, _CREATE))],
+        "c+_dn": lambda: [_mono(1, (dn, _CREATE))],
+        # spin and density of the electron (extensions used by the term types)
+        "n": lambda: [_mono(1, (up, _NUMBER)), _mono(1, (dn, _NUMBER))],
+        "Sz": lambda: [_mono(0.5, (up, _NUMBER)), _mono(-0.5, (dn, _NUMBER))],
+        "S+": lambda: [_mono(1, (up, _CREATE), (dn, _ANNIHILATE))],
+        "S-": lambda: [_mono(1, (dn, _CREATE), (up, _ANNIHILATE))],
+        "Sx": lambda: [_mono(0.5, (up, _CREATE), (dn, _ANNIHILATE)),
+                       _mono(0.5, (dn, _CREATE), (up, _ANNIHILATE))],
+        "Sy": lambda: [_mono(-0.5j, (up, _CREATE), (dn, _ANNIHILATE)),
+                       _mono(0.5j, (dn, _CREATE), (up, _ANNIHILATE))],
+    }
+
+
+def _boson_operators(site: Site) -> dict:
+    occupation = np.arange(site.radix)
+    lower = SlotOperator(-1, _clean(np.sqrt(occupation)))
+    raise_ = SlotOperator(+1, _clean(np.sqrt(occupation + 1.0)))
+    return {
+        "n": lambda: [_mono(1, (0, _diag(occupation)))],
+        "b": lambda: [_mono(1, (0, lower))],
+        "b+": lambda: [_mono(1, (0, raise_))],
+    }
+
+
+_OPERATOR_BUILDERS = {
+    "spin": _spin_operators,
+    "fermion": _fermion_operators,
+    "electron": _electron_operators,
+    "boson": _boson_operators,
+}

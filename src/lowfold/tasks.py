@@ -1,0 +1,32 @@
+"""The jobs lowfold does, as functions returning JSON-ready dictionaries.
+
+The command line, the scans and user scripts all call :func:`run_task`, so a scan point and
+``lowfold TASK MODEL --json`` give the same numbers.
+"""
+
+from __future__ import annotations
+
+from typing import Callable
+
+from .errors import ModelError
+from .exact import spectrum
+from .model import Model
+
+__all__ = ["TASKS", "run_task"]
+
+
+def _spectrum_task(model: Model, options: dict, progress) -> dict:
+    levels = int(options.get("levels", 4))
+    return spectrum(model, levels, progress=progress).to_dict()
+
+
+TASKS: dict[str, Callable] = {"spectrum": _spectrum_task}
+
+
+def run_task(task: str, model: Model, options: dict | None = None, *,
+             progress: Callable[[str], None] | None = None) -> dict:
+    """Run ``task`` (``"spectrum"``, ``"derive"``, ``"series"``) on ``model``; the result is
+    the dictionary that ``lowfold TASK MODEL --json`` prints."""
+    if task not in TASKS:
+        raise ModelError(f"unknown task {task!r} (known: {', '.join(TASKS)})")
+    return TASKS[task](model, dict(options or {}), progress)

@@ -1,0 +1,154 @@
+"""Operator terms: labelled sums of products of local operators.
+
+A :class:`Term` is what one ``[[term]]`` table of a model file says.  :func:`expand_term`
+turns it into *products*: ``(coefficient, ((operator_name, site), ...))`` with the strength
+already applied, the leftmost operator first, following the conventions of DESIGN.md:
+
+- ``hopping``:      ``-s sum_bonds sum_spin (c+_i c_j + h.c.)`` (bosons ``b+_i b_j + h.c.``)
+- ``hubbard``:      ``s sum_i n_i,up n_i,dn`` (bosons ``(s/2) sum_i n_i (n_i - 1)``)
+- ``interaction``:  ``s sum_bonds n_i n_j``;  ``potential``: ``s sum_sites n_i``
+- ``exchange``:     ``s sum_bonds S_i . S_j`` (spin sites or electron spins)
+- ``field``:        ``s sum_sites S^a_i`` along ``axis``
+- ``product``:      ``s sum_(bonds or sites) O_1 O_2 ...`` (+ h.c. with ``conjugate``)
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from .errors import ModelError
+from .lattice import Lattice
+from .sites import Site
+
+__all__ = ["Term", "TERM_TYPES", "expand_term"]
+
+TERM_TYPES = ("hopping", "hubbard", "interaction", "potential", "exchange", "field", "product")
+TWO_SITE_TYPES = ("hopping", "interaction", "exchange")
+ONE_SITE_TYPES = ("hubbard", "potential", "field")
+
+Product = tuple[complex, tuple[tuple[str, int], ...]]
+
+
+@dataclass(frozen=True)
+class Term:
+    """One labelled term of a model.
+
+    ``strength`` is a number or the name of a parameter; ``bonds`` is a bond class name or a
+    tuple of pairs (two-site terms and two-operator products on bonds); ``sites`` is
+    ``"all"`` or a tuple of site indices (one-site terms and on-site products).
+    """
+
+    label: str
+    type: str
+    strength: float | str
+    bonds: str | tuple[tuple[int, int], ...] | None = None
+    sites: str | tuple[int, ...] | None = None
+    axis: str | None = None
+    operators: tuple[str, ...] | None = None
+    conjugate: bool = False
+
+
+def expand_term(term: Term, strength: float, lattice: Lattice, site: Site) -> list[Product]:
+    """Products of named local operators for ``term`` at the given numeric strength."""
+    expand = _EXPANDERS[term.type]
+    return expand(term, strength, lattice, site)
+
+
+def _require(site: Site, allowed: tuple[str, ...], term: Term) -> None:
+    if site.type not in allowed:
+        raise ModelError(f"term {term.label!r}: type {term.type!r} is not defined for "
+                         f"{site.type} sites (allowed: {', '.join(allowed)})")
+
+
+def _bonds(term: Term, lattice: Lattice):
+    return [tuple(int(x) for x in pair) for pair in lattice.bonds(term.bonds or "nearest")]
+
+
+def _sites(term: Term, lattice: Lattice):
+    return [int(i) for i in lattice.sites(term.sites or "all")]
+
+
+def _hopping(term, s, lattice, site):
+    _require(site, ("fermion", "electron", "boson"), term)
+    pairs = {"fermion": [("c+", "c")], "boson": [("b+", "b")],
+             "electron": [("c+_up", "c_up"), ("c+_dn", "c_dn")]}[site.type]
+    out = []
+    for i, j in _bonds(term, lattice):
+        for create, annihilate in pairs:
+            out.append((-s, ((create, i), (annihilate, j))))
+            out.append((-s, ((create, j), (annihilate, i))))
+    return out
+
+
+def _hubbard(term, s, lattice, site):
+    _require(site, ("electron", "boson"), term)
+    out = []
+    for i in _sites(term, lattice):
+        if site.type == "electron":
+            out.append((s, (("n_up", i), ("n_dn", i))))
+        else:
+            out.append((s / 2, (("n", i), ("n", i))))
+            out.append((-s / 2, (("n", i),)))
+    return out
+
+
+def _interaction(term, s, lattice, site):
+    _require(site, ("fermion", "electron", "boson"), term)
+    return [(s, (("n", i), ("n", j))) for i, j in _bonds(term, lattice)]
+
+
+def _potential(term, s, lattice, site):
+    _require(site, ("fermion", "electron", "boson"), term)
+    return [(s, (("n", i),)) for i in _sites(term, lattice)]
+
+
+def _exchange(term, s, lattice, site):
+    _require(site, ("spin", "electron"), term)
+    out = []
+    for i, j in _bonds(term, lattice):
+        out.append((s, (("Sz", i), ("Sz", j))))
+        out.append((s / 2, (("S+", i), ("S-", j))))
+        out.append((s / 2, (("S-", i), ("S+", j))))
+    return out
+
+
+def _field(term, s, lattice, site):
+    _require(site, ("spin", "electron"), term)
+    if term.axis not in ("x", "y", "z"):
+        raise ModelError(f"term {term.label!r}: axis must be \"x\", \"y\" or \"z\", "
+                         f"got {term.axis!r}")
+    name = "S" + term.axis
+    return [(s, ((name, i),)) for i in _sites(term, lattice)]
+
+
+def _product(term, s, lattice, site):
+    operators = term.operators or ()
+    if not operators:
+        raise ModelError(f"term {term.label!r}: product needs a non-empty 'operators' list")
+    for name in operators:
+        site.operator(name)                      # raises ModelError for unknown names
+    if term.bonds is not None and term.sites is not None:
+        raise ModelError(f"term {term.label!r}: give either 'bonds' or 'sites', not both")
+    if term.sites is not None:
+        placements = [tuple((name, i) for name in operators) for i in _sites(term, lattice)]
+    else:
+        if len(operators) != 2:
+            raise ModelError(f"term {term.label!r}: a product on bonds takes exactly two "
+                             f"operators (O_i O_j), got {len(operators)}")
+        placements = [((operators[0], i), (operators[1], j)) for i, j in _bonds(term, lattice)]
+    out = [(s, factors) for factors in placements]
+    if term.conjugate:
+        out += [(complex(s).conjugate(), tuple((site.adjoint_name(n), i) for n, i in reversed(f)))
+                for f in placements]
+    return out
+
+
+_EXPANDERS = {
+    "hopping": _hopping,
+    "hubbard": _hubbard,
+    "interaction": _interaction,
+    "potential": _potential,
+    "exchange": _exchange,
+    "field": _field,
+    "product": _product,
+}
