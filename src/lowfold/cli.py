@@ -14,6 +14,7 @@ from importlib import resources
 from pathlib import Path
 from typing import Optional
 
+import numpy as np
 import typer
 from rich.console import Console
 from rich.table import Table
@@ -76,6 +77,98 @@ def spectrum(model: Path = typer.Argument(..., help="model file (TOML)"),
     out.print(table)
 
 
+def _fmt(value) -> str:
+    if isinstance(value, list):
+        flat = np.ravel(np.array(value, dtype=float))
+        return "(" + ", ".join(f"{x:.6g}" for x in flat) + ")"
+    return f"{value:.6g}"
+
+
+def _coupling_rows(result: dict):
+    orders = sorted({int(k) for c in result["couplings"] for k in c["orders"]})
+    rows = []
+    for c in result["couplings"]:
+        sites = ",".join(str(s) for s in c["sites"]) or "-"
+        cells = [_fmt(c["orders"][str(n)]) if str(n) in c["orders"] else "" for n in orders]
+        hint = ""
+        if "recognised" in c:
+            hint = ", ".join(f"{n}: {q}" for n, q in c["recognised"]["coefficients"].items())
+        rows.append((c["kind"], sites, cells, _fmt(c["value"]), hint))
+    return orders, rows
+
+
+def _print_derive(m, result: dict) -> None:
+    man = result["manifold"]
+    gap = "none" if man["gap"] is None else f"{man['gap']:.6g}"
+    out.print(f"[bold]{m.title}[/bold]: manifold of {man['dimension']:,} states at H0 energy "
+              f"{man['energy']:.6g}, gap {gap}, readout {man['readout']}")
+    orders, rows = _coupling_rows(result)
+    if rows:
+        table = Table(title=f"couplings to order {result['order']} (S = sigma/2)")
+        for name in ("kind", "sites", *[f"order {n}" for n in orders], "total"):
+            table.add_column(name, justify="left" if name in ("kind", "sites") else "right")
+        recognised = any(r[4] for r in rows)
+        if recognised:
+            table.add_column("rational (recognised)", justify="left")
+        for kind, sites, cells, total, hint in rows:
+            table.add_row(kind, sites, *cells, total, *([hint] if recognised else []))
+        out.print(table)
+    elif "effective" in result:
+        out.print(f"effective matrix on {len(result['effective']['basis'])} basis states "
+                  "(use --json for its entries)")
+    check = result.get("check")
+    if check:
+        table = Table(title="check against the exact low-lying spectrum")
+        table.add_column("order", justify="right")
+        table.add_column("max |E_eff - E_exact|", justify="right")
+        for n, entry in check["by_order"].items():
+            table.add_row(n, f"{entry['max_abs_error']:.3e}")
+        out.print(table)
+    if result.get("scaling"):
+        powers = ", ".join(f"{n}: {v['power']:.2f}" if v["power"] is not None else f"{n}: -"
+                           for n, v in result["scaling"].items())
+        out.print(f"fitted power of the error per order (must be >= n+1): {powers}")
+    diag = result["diagnostics"]
+    ratio = diag["validity_ratio"]
+    out.print(f"validity ratio |V_PQ|/gap = {ratio:.3g}" if ratio is not None else "validity ratio: -",
+              f", smallest denominator {diag['smallest_denominator']:.6g}"
+              if diag["smallest_denominator"] is not None else "",
+              f" ({' -> '.join(diag['closest_states'])})" if diag["closest_states"] else "", sep="")
+    for warning in result["warnings"]:
+        err.print(f"warning: {warning}", markup=False)
+
+
+def _latex(result: dict) -> str:
+    orders, rows = _coupling_rows(result)
+    head = " & ".join(["kind", "sites", *[f"order {n}" for n in orders], "total"])
+    lines = [r"\begin{tabular}{ll" + "r" * (len(orders) + 1) + "}", r"\hline", head + r" \\", r"\hline"]
+    for kind, sites, cells, total, _ in rows:
+        lines.append(" & ".join([kind, f"${sites}$", *[f"${c}$" if c else "" for c in cells],
+                                 f"${total}$"]) + r" \\")
+    lines += [r"\hline", r"\end{tabular}"]
+    return "\n".join(lines)
+
+
+@app.command()
+def derive(model: Path = typer.Argument(..., help="model file (TOML) with a [perturbation] table"),
+           order: Optional[int] = typer.Option(None, "--order", "-n", help="highest order (default: the file's)"),
+           json_out: bool = typer.Option(False, "--json", help="print one JSON object"),
+           latex: bool = typer.Option(False, "--latex", help="print the coupling table as LaTeX"),
+           no_check: bool = typer.Option(False, "--no-check", help="skip the exact check"),
+           check_scaling: bool = typer.Option(False, "--check-scaling",
+                                              help="fit the power of the error at smaller couplings")):
+    """Effective low-energy model of MODEL, order by order, checked against exact spectra."""
+    m = load_model(model)
+    options = {"order": order, "check": not no_check, "check_scaling": check_scaling}
+    with _progress(not (json_out or latex)) as progress:
+        result = run_task("derive", m, options, progress=progress)
+    if json_out:
+        return _emit_json(result)
+    if latex:
+        return print(_latex(result))
+    _print_derive(m, result)
+
+
 @app.command()
 def demo(json_out: bool = typer.Option(False, "--json", help="print one JSON object")):
     """Run the main job on a built-in example: four quantum dots in a row."""
@@ -83,7 +176,8 @@ def demo(json_out: bool = typer.Option(False, "--json", help="print one JSON obj
     with resources.as_file(path) as file:
         if not json_out:
             out.print(f"[bold]lowfold demo[/bold]: {file.name} (built-in example)\n")
-        spectrum(file, levels=6, json_out=json_out)
+        derive(file, order=None, json_out=json_out, latex=False, no_check=False,
+               check_scaling=False)
 
 
 def main() -> None:

@@ -44,6 +44,16 @@ class CompiledOperator:
     powers: np.ndarray
     diagonal_strings: np.ndarray
     offdiagonal_strings: np.ndarray
+    delta_particles: np.ndarray
+    delta_twice_sz: np.ndarray
+
+    @property
+    def conserves_sz(self) -> bool:
+        return not np.any(self.delta_twice_sz)
+
+    @property
+    def conserves_particles(self) -> bool:
+        return not np.any(self.delta_particles)
 
     @property
     def n_strings(self) -> int:
@@ -103,12 +113,18 @@ def _term_strings(model: Model, label: str, products) -> dict:
     return {k: c for k, c in strings.items() if abs(c) > 1e-14 * scale}
 
 
+def _deltas(model: Model, key) -> tuple[int, int]:
+    """Changes of particle number and of 2 S^z made by one string."""
+    site, n_sites = model.site, model.n_sites
+    d_particles = sum(op.shift * site.slot_particles(slot // n_sites) for slot, op in key)
+    d_twice_sz = sum(op.shift * site.slot_twice_sz(slot // n_sites) for slot, op in key)
+    return d_particles, d_twice_sz
+
+
 def _check_conservation(model: Model, label: str, strings: dict) -> None:
     sector = model.sector
-    site, n_sites = model.site, model.n_sites
     for key in strings:
-        d_particles = sum(op.shift * site.slot_particles(slot // n_sites) for slot, op in key)
-        d_twice_sz = sum(op.shift * site.slot_twice_sz(slot // n_sites) for slot, op in key)
+        d_particles, d_twice_sz = _deltas(model, key)
         if sector.particles is not None and d_particles != 0:
             raise ModelError(f"term {label!r} changes the particle number, but the sector fixes "
                              "it; remove sector.particles or the term")
@@ -128,10 +144,11 @@ def compile_operator(model: Model, labels=None, *, check_sector: bool = True) ->
             collected[key] = collected.get(key, 0) + c
     scale = max((abs(c) for c in collected.values()), default=0.0)
     collected = {k: c for k, c in collected.items() if abs(c) > 1e-14 * scale}
-    return _to_arrays(collected, model.site.radix, model.n_sites * model.site.modes)
+    deltas = np.array([_deltas(model, key) for key in collected], dtype=np.int64).reshape(-1, 2)
+    return _to_arrays(collected, model.site.radix, model.n_sites * model.site.modes, deltas)
 
 
-def _to_arrays(strings: dict, radix: int, n_slots: int) -> CompiledOperator:
+def _to_arrays(strings: dict, radix: int, n_slots: int, deltas: np.ndarray) -> CompiledOperator:
     tables: dict[SlotOperator, int] = {}
     ptr, slots, table_ids, odd, coef, is_diag = [0], [], [], [], [], []
     for key, c in strings.items():
@@ -163,6 +180,8 @@ def _to_arrays(strings: dict, radix: int, n_slots: int) -> CompiledOperator:
         powers=np.array([radix**k for k in range(n_slots)], dtype=np.int64),
         diagonal_strings=np.flatnonzero(is_diag).astype(np.int64) if strings else np.zeros(0, np.int64),
         offdiagonal_strings=np.flatnonzero(~is_diag).astype(np.int64) if strings else np.zeros(0, np.int64),
+        delta_particles=np.ascontiguousarray(deltas[:, 0]),
+        delta_twice_sz=np.ascontiguousarray(deltas[:, 1]),
     )
 
 

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 from typing import Callable
 
+from .derive import derive
 from .errors import ModelError
 from .exact import spectrum
 from .model import Model
@@ -20,7 +21,13 @@ def _spectrum_task(model: Model, options: dict, progress) -> dict:
     return spectrum(model, levels, progress=progress).to_dict()
 
 
-TASKS: dict[str, Callable] = {"spectrum": _spectrum_task}
+def _derive_task(model: Model, options: dict, progress) -> dict:
+    result = derive(model, options.get("order"), check=options.get("check", True),
+                    check_scaling=options.get("check_scaling", False), progress=progress)
+    return result.to_dict()
+
+
+TASKS: dict[str, Callable] = {"spectrum": _spectrum_task, "derive": _derive_task}
 
 
 def run_task(task: str, model: Model, options: dict | None = None, *,

@@ -1,0 +1,105 @@
+"""Validity diagnostics of a degenerate expansion: coupling-to-gap ratio, small denominators,
+intruder states.
+
+The Schrieffer-Wolff series is an expansion in ``|V_PQ| / Delta``, with ``Delta`` the energy
+denominators between P and the states V reaches (common practice; Bravyi, DiVincenzo and
+Loss, Ann. Phys. 326, 2793 (2011), Sec. 3.1 state convergence for ``||V|| < Delta / 2``
+up to constants).  These numbers tell a user how far to trust the orders.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import scipy.sparse as sp
+
+__all__ = ["Diagnostics", "manifold_diagnostics", "merge_diagnostics"]
+
+RATIO_WARNING = 0.5        # |V_PQ| / gap above this: the expansion is unreliable
+INTRUDER_FRACTION = 0.1    # a Q state closer than this fraction of the typical denominator
+
+
+@dataclass
+class Diagnostics:
+    """Validity numbers of one expansion (merged over S^z blocks)."""
+
+    max_coupling_out: float = 0.0
+    gap: float = np.inf
+    smallest_denominator: float = np.inf
+    closest_states: tuple[int, int] | None = None     # (P state, Q state), as integers
+    typical_denominator: float = np.nan
+    warnings: list[str] = field(default_factory=list)
+
+    @property
+    def validity_ratio(self) -> float:
+        if not np.isfinite(self.gap) or self.gap <= 0:
+            return 0.0 if self.max_coupling_out == 0 else np.inf
+        return self.max_coupling_out / self.gap
+
+    def to_dict(self, labels=None) -> dict:
+        closest = None
+        if self.closest_states is not None:
+            p, q = self.closest_states
+            closest = [labels(p), labels(q)] if labels else [int(p), int(q)]
+        finite = lambda x: float(x) if np.isfinite(x) else None
+        return {"validity_ratio": finite(self.validity_ratio),
+                "max_coupling_out": float(self.max_coupling_out),
+                "gap": finite(self.gap),
+                "smallest_denominator": finite(self.smallest_denominator),
+                "closest_states": closest}
+
+
+def manifold_diagnostics(h0_diag: np.ndarray, v: sp.spmatrix, p_index: np.ndarray,
+                         states: np.ndarray) -> Diagnostics:
+    """Diagnostics of one working space: ``h0_diag`` and ``v`` on it, P at ``p_index``,
+    ``states`` the integers of the working space (for naming the closest pair)."""
+    n = h0_diag.size
+    in_p = np.zeros(n, dtype=bool)
+    in_p[p_index] = True
+    q_index = np.flatnonzero(~in_p)
+    diag = Diagnostics()
+    if q_index.size == 0:
+        return diag
+    coupling = sp.csr_matrix(v)[p_index][:, q_index].tocoo()
+    if coupling.nnz == 0:
+        return diag
+    e_p, e_q = h0_diag[p_index], h0_diag[q_index]
+    diag.max_coupling_out = float(np.abs(coupling.data).max())
+    lo, hi = e_p.min(), e_p.max()
+    distance = np.where(e_q > hi, e_q - hi, np.where(e_q < lo, lo - e_q, 0.0))
+    reached = np.unique(coupling.col)
+    diag.gap = float(distance[reached].min())
+    denominators = np.abs(e_p[coupling.row] - e_q[coupling.col])
+    k = int(np.argmin(denominators))
+    diag.smallest_denominator = float(denominators[k])
+    diag.closest_states = (int(states[p_index[coupling.row[k]]]), int(states[q_index[coupling.col[k]]]))
+    diag.typical_denominator = float(np.median(denominators))
+    return diag
+
+
+def merge_diagnostics(parts: list[Diagnostics], label_of=None) -> Diagnostics:
+    """Combine the diagnostics of S^z blocks and write the warnings."""
+    merged = Diagnostics()
+    for part in parts:
+        merged.max_coupling_out = max(merged.max_coupling_out, part.max_coupling_out)
+        merged.gap = min(merged.gap, part.gap)
+        if part.smallest_denominator < merged.smallest_denominator:
+            merged.smallest_denominator = part.smallest_denominator
+            merged.closest_states = part.closest_states
+    typical = [p.typical_denominator for p in parts if np.isfinite(p.typical_denominator)]
+    merged.typical_denominator = float(np.median(typical)) if typical else np.nan
+    name = (lambda s: label_of(s)) if label_of else str
+    ratio = merged.validity_ratio
+    if ratio > RATIO_WARNING:
+        merged.warnings.append(
+            f"validity ratio |V_PQ|/gap = {ratio:.3g} is not small: the expansion may not "
+            "converge; compare the orders with the exact check")
+    if (np.isfinite(merged.typical_denominator) and merged.closest_states is not None
+            and merged.smallest_denominator < INTRUDER_FRACTION * merged.typical_denominator):
+        p, q = merged.closest_states
+        merged.warnings.append(
+            f"state {name(q)} outside the manifold lies only {merged.smallest_denominator:.3g} "
+            f"from {name(p)} (typical denominator {merged.typical_denominator:.3g}); "
+            "consider widening the window to include it")
+    return merged

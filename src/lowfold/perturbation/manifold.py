@@ -1,0 +1,222 @@
+"""The H0 / V split, the low-energy manifold P of H0, and the space reachable from it.
+
+H0 (the terms named in ``[perturbation] unperturbed``) must be diagonal in the occupation
+basis.  The manifold P is found without enumerating the sector when H0 acts site by site
+(Hubbard, potential, crystal-field and field terms): a dynamic programme over the sites gives
+the lowest energy compatible with the sector, and a pruned site-by-site expansion lists every
+state of P.  Otherwise (bond terms such as Ising couplings in H0) the sector is enumerated.
+
+Only the states reachable from P by at most ``floor(n/2)`` applications of V enter the
+order-``n`` effective Hamiltonian; :func:`reachable_states` finds them breadth first.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from itertools import product as cartesian
+
+import numpy as np
+import scipy.sparse as sp
+
+from .._kernels import operators as kernels
+from ..basis import explicit_basis
+from ..errors import ManifoldError, ModelError
+from ..hamiltonian import CompiledOperator, build_basis, compile_operator
+from ..model import Model
+
+__all__ = ["Manifold", "split_operators", "find_manifold", "reachable_states",
+           "restricted_operator", "diagonal_energies", "twice_sz", "state_labels"]
+
+
+@dataclass(frozen=True, eq=False)
+class Manifold:
+    """The states of P (ascending integers) and their H0 energies."""
+
+    states: np.ndarray
+    energies: np.ndarray
+
+    @property
+    def dimension(self) -> int:
+        return int(self.states.size)
+
+
+def split_operators(model: Model) -> tuple[CompiledOperator, CompiledOperator]:
+    """Compile H0 and V; ``ModelError`` naming the first H0 term that is not diagonal."""
+    for label in model.unperturbed_labels:
+        if not compile_operator(model, [label]).is_diagonal:
+            raise ModelError(f"term {label!r} is in perturbation.unperturbed but is not diagonal "
+                             "in the occupation basis; H0 must be diagonal (move it to V)")
+    h0 = compile_operator(model, model.unperturbed_labels)
+    v = compile_operator(model, model.perturbation_labels)
+    return h0, v
+
+
+def diagonal_energies(op: CompiledOperator, states: np.ndarray) -> np.ndarray:
+    """Diagonal of ``op`` on the given states (real part)."""
+    values = kernels.diagonal(np.ascontiguousarray(states), op.diagonal_strings, *op.arrays())
+    return np.real(values).astype(float)
+
+
+def _local_quantities(model: Model):
+    """Per local configuration of one site: digits per mode, particles, 2 S^z."""
+    site = model.site
+    configs = list(cartesian(range(site.radix), repeat=site.modes))
+    particles = [sum(d * site.slot_particles(m) for m, d in enumerate(c)) for c in configs]
+    if site.type == "spin":
+        twice_sz = [int(2 * site.spin) - 2 * c[0] for c in configs]
+    else:
+        twice_sz = [sum(d * site.slot_twice_sz(m) for m, d in enumerate(c)) for c in configs]
+    return configs, np.array(particles), np.array(twice_sz)
+
+
+def _is_site_local(op: CompiledOperator, n_sites: int) -> bool:
+    for k in range(op.n_strings):
+        slots = op.slot[op.ptr[k]:op.ptr[k + 1]]
+        if slots.size and np.unique(slots % n_sites).size > 1:
+            return False
+    return True
+
+
+def find_manifold(model: Model, h0: CompiledOperator, *, max_states: int = 20_000_000) -> Manifold:
+    """The manifold P: the lowest H0 level in the sector, or every state in the window."""
+    spec = model.perturbation
+    if _is_site_local(h0, model.n_sites):
+        states, energies = _manifold_by_sites(model, h0, spec)
+    else:
+        basis = build_basis(model, max_states=max_states)
+        energies = diagonal_energies(h0, basis.states)
+        keep = _in_manifold(energies, spec)
+        states, energies = basis.states[keep], energies[keep]
+    if states.size == 0:
+        raise ManifoldError(f"no H0 state lies in the window {spec.window}")
+    order = np.argsort(states)
+    return Manifold(states[order], energies[order])
+
+
+def _in_manifold(energies: np.ndarray, spec) -> np.ndarray:
+    if spec.window is not None:
+        return (energies >= spec.window[0]) & (energies <= spec.window[1])
+    lowest = energies.min()
+    return energies <= lowest + spec.tolerance * max(1.0, abs(lowest))
+
+
+def _manifold_by_sites(model: Model, h0: CompiledOperator, spec):
+    """Exact P for a site-local H0 by a dynamic programme over sites (no sector enumeration)."""
+    n_sites, site = model.n_sites, model.site
+    configs, particles, twice_sz = _local_quantities(model)
+    sector = model.sector
+    use_n, use_s = sector.particles is not None, sector.sz is not None
+    particles = particles if use_n else np.zeros_like(particles)
+    twice_sz = twice_sz if use_s else np.zeros_like(twice_sz)
+    target = (sector.particles if use_n else 0, int(2 * sector.sz) if use_s else 0)
+    # local energies: the H0 strings of site i on states where only site i is filled
+    local_states = np.array([[sum(d * site.radix ** (i + m * n_sites) for m, d in enumerate(c))
+                              for c in configs] for i in range(n_sites)], dtype=np.int64)
+    site_of_string = np.array([h0.slot[h0.ptr[k]] % n_sites if h0.ptr[k + 1] > h0.ptr[k] else -1
+                               for k in range(h0.n_strings)])
+    local_energy = np.zeros((n_sites, len(configs)))
+    constant = float(np.real(h0.coef[site_of_string == -1].sum())) if h0.n_strings else 0.0
+    for i in range(n_sites):
+        strings = np.flatnonzero(site_of_string == i).astype(np.int64)
+        if strings.size:
+            local_energy[i] = np.real(kernels.diagonal(local_states[i], strings, *h0.arrays()))
+    # best[i][n, s]: lowest energy of sites i.. with totals (n, s) (offset by the minima)
+    n_lo, n_hi = n_sites * particles.min(), n_sites * particles.max()
+    s_lo, s_hi = n_sites * twice_sz.min(), n_sites * twice_sz.max()
+    shape = (n_hi - n_lo + 1, s_hi - s_lo + 1)
+    best = np.full((n_sites + 1, *shape), np.inf)
+    best[n_sites, -n_lo, -s_lo] = 0.0
+    for i in range(n_sites - 1, -1, -1):
+        for c in range(len(configs)):
+            shifted = np.full(shape, np.inf)
+            dn, ds = particles[c], twice_sz[c]
+            src = best[i + 1][max(0, -dn):shape[0] - max(0, dn), max(0, -ds):shape[1] - max(0, ds)]
+            shifted[max(0, dn):shape[0] - max(0, -dn), max(0, ds):shape[1] - max(0, -ds)] = src
+            best[i] = np.minimum(best[i], shifted + local_energy[i, c])
+
+    def remaining(i, n, s):
+        """Lowest energy sites i.. can add so that the totals reach the target."""
+        a, b = target[0] - n - n_lo, target[1] - s - s_lo
+        ok = (a >= 0) & (a < shape[0]) & (b >= 0) & (b < shape[1])
+        out = np.full(n.shape, np.inf)
+        out[ok] = best[i][a[ok], b[ok]]
+        return out
+
+    lowest = remaining(0, np.zeros(1, dtype=np.int64), np.zeros(1, dtype=np.int64))[0]
+    if not np.isfinite(lowest):
+        raise ModelError("the sector contains no state")
+    if spec.window is not None:
+        emin, emax = spec.window[0] - constant, spec.window[1] - constant
+    else:
+        emin, emax = -np.inf, lowest + spec.tolerance * max(1.0, abs(lowest + constant))
+    slack = 1e-12 * max(1.0, abs(emax) if np.isfinite(emax) else 1.0)
+    # expand site by site, keeping partial states that can still end inside [emin, emax]
+    states = np.zeros(1, dtype=np.int64)
+    energy = np.zeros(1)
+    used_n = np.zeros(1, dtype=np.int64)
+    used_s = np.zeros(1, dtype=np.int64)
+    for i in range(n_sites):
+        parts = []
+        for c in range(len(configs)):
+            e = energy + local_energy[i, c]
+            n, s = used_n + particles[c], used_s + twice_sz[c]
+            keep = e + remaining(i + 1, n, s) <= emax + slack
+            parts.append((states[keep] + local_states[i, c], e[keep], n[keep], s[keep]))
+        states = np.concatenate([p[0] for p in parts])
+        energy = np.concatenate([p[1] for p in parts])
+        used_n = np.concatenate([p[2] for p in parts])
+        used_s = np.concatenate([p[3] for p in parts])
+    done = (used_n == target[0]) & (used_s == target[1]) & (energy >= emin - slack)
+    return states[done], energy[done] + constant
+
+
+def reachable_states(p_states: np.ndarray, v: CompiledOperator, steps: int) -> np.ndarray:
+    """P together with every state reachable from it by at most ``steps`` applications of V
+    (breadth first; the images are computed by a numba kernel)."""
+    visited = np.unique(p_states)
+    frontier = visited
+    for _ in range(steps):
+        if frontier.size == 0 or v.offdiagonal_strings.size == 0:
+            break
+        _, new, _ = kernels.images(frontier, v.offdiagonal_strings, *v.arrays(), False)
+        new = np.unique(new)
+        frontier = new[~np.isin(new, visited, assume_unique=True)]
+        visited = np.union1d(visited, frontier)
+    return visited
+
+
+def restricted_operator(op: CompiledOperator, states: np.ndarray, n_slots: int) -> sp.csr_matrix:
+    """Matrix of ``op`` between the given states only (images leaving the set are dropped)."""
+    basis = explicit_basis(states, n_slots, op.radix)
+    all_strings = np.arange(op.n_strings, dtype=np.int64)
+    rows, new, amps = kernels.images(basis.states, all_strings, *op.arrays(), False)
+    cols = basis.index(new)
+    inside = cols >= 0
+    # <new|O|state_row> = amp: entry (new, row)
+    return sp.csr_matrix((amps[inside], (cols[inside], rows[inside])),
+                         shape=(basis.size, basis.size))
+
+
+def twice_sz(model: Model, states: np.ndarray) -> np.ndarray:
+    """2 S^z of each state (spins and electrons)."""
+    site, n = model.site, model.n_sites
+    digits = (states[:, None] // (site.radix ** np.arange(n * site.modes, dtype=np.int64))) % site.radix
+    if site.type == "spin":
+        return (int(2 * site.spin) - 2 * digits).sum(axis=1)
+    if site.type == "electron":
+        return digits[:, :n].sum(axis=1) - digits[:, n:].sum(axis=1)
+    raise ModelError(f"{site.type} sites carry no spin")
+
+
+def state_labels(model: Model, states: np.ndarray) -> list[str]:
+    """Readable labels: electrons ``0 u d 2`` per site, spins ``u d`` (S = 1/2) or the digit,
+    fermions and bosons the occupation."""
+    site, n = model.site, model.n_sites
+    digits = (np.asarray(states)[:, None] // (site.radix ** np.arange(n * site.modes, dtype=np.int64))) % site.radix
+    if site.type == "electron":
+        symbols = np.array(["0", "u", "d", "2"])
+        return ["".join(symbols[row[:n] + 2 * row[n:]]) for row in digits]
+    if site.type == "spin" and site.radix == 2:
+        return ["".join("ud"[d] for d in row) for row in digits]
+    return [" ".join(str(d) for d in row) if site.radix > 10 else "".join(str(d) for d in row)
+            for row in digits]
