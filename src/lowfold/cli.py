@@ -20,8 +20,9 @@ from rich.console import Console
 from rich.table import Table
 
 from . import __version__
-from .errors import LowfoldError
+from .errors import LowfoldError, ModelError
 from .modelfile import load_model
+from .state_series import parse_sweep
 from .tasks import run_task
 
 app = typer.Typer(add_completion=False, no_args_is_help=True, pretty_exceptions_enable=False,
@@ -167,6 +168,78 @@ def derive(model: Path = typer.Argument(..., help="model file (TOML) with a [per
     if latex:
         return print(_latex(result))
     _print_derive(m, result)
+
+
+def _print_series(m, result: dict, order_shown: int) -> None:
+    diag = result["diagnostics"]
+    out.print(f"[bold]{m.title}[/bold]: series of the state {diag['reference']}")
+    table = Table(title="energy by order")
+    for name in ("order", "E_n", "partial sum", "|error| vs exact"):
+        table.add_column(name, justify="right")
+    errors = diag["error_by_order"] or {}
+    for (n, e), s in zip(result["orders"].items(), diag["partial_sums"]):
+        table.add_row(n, f"{e:.12g}", f"{s:.12g}", f"{errors[n]:.3e}" if n in errors else "")
+    out.print(table)
+    if diag["exact"] is not None:
+        out.print(f"exact eigenvalue (followed from lambda = 0): {diag['exact']:.12g}")
+    if diag["pade"]:
+        p = diag["pade"]
+        spread = f" +- {p['spread']:.2g}" if p["spread"] is not None else ""
+        out.print(f"Pade [{p['approximant'][0]}/{p['approximant'][1]}]: {p['value']:.12g}{spread}")
+    if diag["ratio_test"]:
+        r = diag["ratio_test"]
+        radius = "infinite" if r["radius"] is None else f"{r['radius']:.4g}"
+        out.print(f"radius of convergence (Domb-Sykes, in {r['variable']}): {radius}, "
+                  f"nearest singularity on the {r['side']} axis")
+    if diag["validity_ratio"] is not None:
+        out.print(f"validity ratio |V_mn| / |E_n - E_m|: {diag['validity_ratio']:.3g}")
+    if diag["second_order_contributions"]:
+        table = Table(title="largest second-order contributions")
+        for name in ("intermediate state", "|V_mn|^2", "E_n - E_m", "contribution"):
+            table.add_column(name, justify="right")
+        for c in diag["second_order_contributions"]:
+            table.add_row(c["state"], f"{c['coupling_squared']:.6g}", f"{c['denominator']:.6g}",
+                          f"{c['contribution']:.6g}")
+        out.print(table)
+    sweep = result.get("sweep")
+    if sweep:
+        for c in sweep["avoided_crossings"]:
+            out.print(f"avoided crossing at lambda = {c['lambda']:.4g}: gap {c['gap']:.4g} "
+                      f"(levels {c['levels'][0]}, {c['levels'][1]}, {c['sector']})")
+        for c in sweep["crossings"]:
+            out.print(f"true crossing near lambda = {c['lambda']:.4g} ({c['sectors'][0]} / {c['sectors'][1]})")
+        useful = ", ".join(f"order {n}: {'-' if v is None else f'{v:.3g}'}"
+                           for n, v in sweep["useful_up_to"].items())
+        out.print(f"series within 1% of the smallest denominator up to lambda = {useful}")
+    for warning in result["warnings"]:
+        err.print(f"warning: {warning}", markup=False)
+
+
+@app.command()
+def series(model: Path = typer.Argument(..., help="model file (TOML) with a [perturbation] table"),
+           order: Optional[int] = typer.Option(None, "--order", "-n", help="highest order (default: the file's)"),
+           json_out: bool = typer.Option(False, "--json", help="print one JSON object"),
+           state: Optional[str] = typer.Option(None, "--state",
+                                               help="basis-state label (e.g. uudd) or level:K"),
+           sweep: Optional[str] = typer.Option(None, "--sweep", help="lambda=START:STOP:COUNT"),
+           plot: Optional[Path] = typer.Option(None, "--plot", help="figure of the sweep (.png/.svg/.pdf)")):
+    """Perturbation series of one state of H0: energies by order, convergence, validity."""
+    m = load_model(model)
+    if plot is not None and sweep is None:
+        sweep = "lambda=0:1:41"
+    if plot is not None and plot.suffix.lower() not in (".png", ".svg", ".pdf"):
+        raise ModelError(f"--plot: use a .png, .svg or .pdf file name, got {plot.name!r}")
+    options = {"order": order, "state": state, "sweep": parse_sweep(sweep) if sweep else None}
+    with _progress(not json_out) as progress:
+        result = run_task("series", m, options, progress=progress)
+    if plot is not None:
+        from .plots import plot_sweep
+        plot_sweep(result["sweep"], title=m.title, output=plot)
+    if json_out:
+        return _emit_json(result)
+    _print_series(m, result, order)
+    if plot is not None:
+        out.print(f"figure written to {plot}")
 
 
 @app.command()

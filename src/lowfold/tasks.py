@@ -12,6 +12,7 @@ from .derive import derive
 from .errors import ModelError
 from .exact import spectrum
 from .model import Model
+from .state_series import parse_sweep, state_series
 
 __all__ = ["TASKS", "run_task"]
 
@@ -27,7 +28,16 @@ def _derive_task(model: Model, options: dict, progress) -> dict:
     return result.to_dict()
 
 
-TASKS: dict[str, Callable] = {"spectrum": _spectrum_task, "derive": _derive_task}
+def _series_task(model: Model, options: dict, progress) -> dict:
+    sweep = options.get("sweep")
+    result = state_series(model, options.get("order"), state=options.get("state"),
+                          sweep=parse_sweep(sweep) if isinstance(sweep, str) else sweep,
+                          progress=progress)
+    return result.to_dict()
+
+
+TASKS: dict[str, Callable] = {"spectrum": _spectrum_task, "derive": _derive_task,
+                              "series": _series_task}
 
 
 def run_task(task: str, model: Model, options: dict | None = None, *,

@@ -1,0 +1,372 @@
+"""Perturbation series of one state: energies to high order, convergence and validity.
+
+:func:`state_series` runs the Rayleigh-Schroedinger series of the eigenvalue that grows out
+of one eigenstate of H0 (the lowest by default), compares partial sums and Pade values with
+the exact eigenvalue followed adiabatically from the H0 state, estimates the radius of
+convergence (Domb-Sykes), and with a sweep follows the lowest exact levels as the coupling
+grows, marking avoided and true crossings.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass, field
+from fractions import Fraction
+from typing import Callable
+
+import numpy as np
+import scipy.linalg as la
+import scipy.sparse as sp
+
+from .basis import Basis, Sector
+from .errors import LowfoldError, ModelError, SizeError
+from .exact import lowest_eigenpairs
+from .hamiltonian import build_basis, compile_operator, hamiltonian_matrix
+from .model import Model
+from .perturbation.convergence import pade_estimate, partial_sums, ratio_test
+from .perturbation.manifold import diagonal_energies, state_labels
+from .perturbation.series import SeriesResult, rayleigh_schrodinger, rayleigh_schrodinger_general
+
+__all__ = ["StateSeries", "Sweep", "state_series", "parse_sweep", "MAX_ORDER"]
+
+MAX_ORDER = 200
+DENSE_FOLLOW_LIMIT = 2500     # follow the exact level by dense diagonalisation up to here
+FOLLOW_STEPS = 20
+
+
+@dataclass(eq=False)
+class Sweep:
+    """Exact levels against the coupling factor lambda (H = H0 + lambda V)."""
+
+    lambdas: np.ndarray
+    levels: np.ndarray                 # (n_lambda, k) lowest levels, ascending per lambda
+    sectors: list[str]                 # symmetry label of each column, per lambda below
+    level_sectors: np.ndarray          # (n_lambda, k) index into sectors
+    followed: np.ndarray               # exact level grown from the reference state
+    series: dict[int, np.ndarray]      # order -> partial sums at each lambda
+    avoided: list[dict] = field(default_factory=list)
+    crossings: list[dict] = field(default_factory=list)
+    useful_up_to: dict[int, float | None] = field(default_factory=dict)
+
+    def to_dict(self) -> dict:
+        return {"lambda": self.lambdas.tolist(), "levels": self.levels.tolist(),
+                "sectors": self.sectors, "level_sectors": self.level_sectors.tolist(),
+                "followed": self.followed.tolist(),
+                "series": {str(n): v.tolist() for n, v in self.series.items()},
+                "avoided_crossings": self.avoided, "crossings": self.crossings,
+                "useful_up_to": {str(n): v for n, v in self.useful_up_to.items()}}
+
+
+@dataclass(eq=False)
+class StateSeries:
+    """Result of :func:`state_series`; ``to_dict`` gives the ``lowfold series --json`` object."""
+
+    model: Model
+    reference: str
+    result: SeriesResult
+    exact: float | None
+    pade: dict | None
+    ratio: dict | None
+    validity_ratio: float | None
+    first_order: list[dict]
+    second_order: list[dict]
+    sweep: Sweep | None = None
+    warnings: list[str] = field(default_factory=list)
+
+    @property
+    def energies(self) -> np.ndarray:
+        return self.result.energies
+
+    def to_dict(self) -> dict:
+        sums = partial_sums(self.energies)
+        errors = None
+        if self.exact is not None:
+            errors = {str(n): float(abs(s - self.exact)) for n, s in enumerate(sums)}
+        out = {
+            "orders": {str(n): float(e) for n, e in enumerate(self.energies)},
+            "energy": float(sums[-1]),
+            "diagnostics": {
+                "reference": self.reference,
+                "partial_sums": [float(s) for s in sums],
+                "exact": self.exact,
+                "error_by_order": errors,
+                "pade": self.pade,
+                "ratio_test": self.ratio,
+                "validity_ratio": self.validity_ratio,
+                "first_order_norm": float(self.result.first_order_norm),
+                "first_order_state": self.first_order,
+                "second_order_contributions": self.second_order,
+                "smallest_denominator": _finite(self.result.smallest_denominator),
+            },
+            "warnings": list(self.warnings) + list(self.result.warnings),
+        }
+        if self.sweep is not None:
+            out["sweep"] = self.sweep.to_dict()
+        return out
+
+
+def _finite(x):
+    return float(x) if x is not None and np.isfinite(x) else None
+
+
+# --------------------------------------------------------------------------- input
+
+def parse_sweep(text: str) -> np.ndarray:
+    """``"lambda=0:1:41"`` -> 41 values from 0 to 1 (start:stop:count)."""
+    match = re.fullmatch(r"\s*lambda\s*=\s*([^:]+):([^:]+):(\d+)\s*", text or "")
+    if not match:
+        raise ModelError(f"--sweep must look like lambda=START:STOP:COUNT (e.g. lambda=0:1:41), got {text!r}")
+    try:
+        start, stop = float(match.group(1)), float(match.group(2))
+    except ValueError:
+        raise ModelError(f"--sweep: START and STOP must be numbers, got {text!r}") from None
+    count = int(match.group(3))
+    if count < 2 or count > 2000 or not (np.isfinite(start) and np.isfinite(stop)) or start == stop:
+        raise ModelError("--sweep: need 2 to 2000 points between two different finite values")
+    return np.linspace(start, stop, count)
+
+
+def _reference_index(model: Model, basis: Basis, h0_diag: np.ndarray, state: str | None) -> int:
+    if state is None:
+        return int(np.argmin(h0_diag))
+    level = re.fullmatch(r"level:(\d+)", state.strip())
+    if level:
+        values = np.unique(np.round(h0_diag, 10))
+        k = int(level.group(1))
+        if k >= values.size:
+            raise ModelError(f"--state level:{k}: H0 has only {values.size} distinct levels")
+        return int(np.flatnonzero(np.abs(h0_diag - values[k]) <= 1e-9 * max(1, abs(values[k])))[0])
+    labels = state_labels(model, basis.states) if basis.size <= 2_000_000 else []
+    try:
+        return labels.index(state.strip())
+    except ValueError:
+        example = labels[int(np.argmin(h0_diag))] if labels else "..."
+        raise ModelError(f"--state {state!r} is not a basis state of the sector (labels look "
+                         f"like {example!r}, or use level:K)") from None
+
+
+# --------------------------------------------------------------------------- the job
+
+def state_series(model: Model, order: int | None = None, *, state: str | None = None,
+                 sweep: np.ndarray | None = None,
+                 progress: Callable[[str], None] | None = None) -> StateSeries:
+    """Rayleigh-Schroedinger series of one state of H0 with convergence analysis.
+
+    Parameters
+    ----------
+    model : Model
+        With a ``[perturbation]`` table naming H0.
+    order : int, optional
+        Highest order (default: the file's), 1 .. MAX_ORDER.
+    state : str, optional
+        A basis-state label (as ``lowfold`` prints them, e.g. ``"uudd"``) or ``"level:K"``
+        for the K-th distinct H0 level; default the lowest H0 state.
+    sweep : array, optional
+        Coupling factors lambda at which to follow the lowest exact levels.
+    """
+    say = progress or (lambda message: None)
+    spec = model.perturbation
+    if spec is None:
+        model.unperturbed_labels
+    order = spec.order if order is None else order
+    if isinstance(order, bool) or not isinstance(order, (int, np.integer)) or not 1 <= order <= MAX_ORDER:
+        raise ModelError(f"order must be an integer from 1 to {MAX_ORDER}, got {order!r}")
+    basis = build_basis(model)
+    say(f"building H0 and V on {basis.size:,} states")
+    h0_op = compile_operator(model, model.unperturbed_labels)
+    h0 = hamiltonian_matrix(model, basis, model.unperturbed_labels)
+    v = hamiltonian_matrix(model, basis, model.perturbation_labels)
+    warnings: list[str] = []
+    say(f"series to order {order}")
+    if h0_op.is_diagonal:
+        h0_diag = diagonal_energies(h0_op, basis.states)
+        index = _reference_index(model, basis, h0_diag, state)
+        result = rayleigh_schrodinger(h0_diag, v, index, order)
+        reference = state_labels(model, basis.states[[index]])[0]
+        psi0 = np.zeros(basis.size)
+        psi0[index] = 1.0
+        first, second, validity = _explicit_low_orders(model, basis, h0_diag, v, index, result)
+    else:
+        psi0, e0, reference, validity = _h0_eigenstate(h0, v, state)
+        result = rayleigh_schrodinger_general(h0, v, psi0, e0, order)
+        first, second = [], []
+        warnings.append("H0 is not diagonal: the series used iterative solves; no list of "
+                        "intermediate states")
+    say("exact eigenvalue")
+    exact = _exact_followed(h0, v, psi0, warnings)
+    pade, ratio = _convergence(result.energies, warnings)
+    out = StateSeries(model, reference, result, exact, pade, ratio, validity, first, second,
+                      warnings=warnings)
+    if sweep is not None:
+        say("sweeping the coupling")
+        out.sweep = _sweep(model, basis, h0, v, psi0, result, sweep)
+    return out
+
+
+def _explicit_low_orders(model, basis, h0_diag, v, index, result):
+    """First-order state and second-order contributions with labels; validity ratio."""
+    column = v[:, index].toarray().ravel()
+    column[index] = 0
+    denominators = h0_diag[index] - h0_diag
+    connected = np.flatnonzero(column != 0)
+    partners = set(result.degenerate_partners.tolist()) | {index}
+    usable = np.array([m for m in connected if m not in partners], dtype=np.int64)
+    first, validity = [], None
+    if usable.size:
+        amplitude = column[usable] / denominators[usable]
+        top = usable[np.argsort(-np.abs(amplitude))[:10]]
+        labels = state_labels(model, basis.states[top])
+        first = [{"state": lab, "amplitude": float(np.real(column[m] / denominators[m]))}
+                 for lab, m in zip(labels, top)]
+        validity = float(np.max(np.abs(column[usable])) / np.min(np.abs(denominators[usable])))
+    second = []
+    entries = result.second_order_contributions
+    if entries:
+        labels = state_labels(model, basis.states[[int(e[0]) for e in entries]])
+        second = [{"state": lab, "coupling_squared": float(e[1]), "denominator": float(e[2]),
+                   "contribution": float(e[3])} for lab, e in zip(labels, entries)]
+    return first, second, validity
+
+
+def _h0_eigenstate(h0, v, state):
+    """Eigenstate of a non-diagonal H0 (lowest, or ``level:K``) and a validity ratio."""
+    k = 0
+    if state is not None:
+        level = re.fullmatch(r"level:(\d+)", state.strip())
+        if not level:
+            raise ModelError("H0 is not diagonal: choose the state as level:K (K-th eigenstate of H0)")
+        k = int(level.group(1))
+    count = min(h0.shape[0], k + 3)
+    values, vectors = lowest_eigenpairs(h0, count, vectors=True)
+    if k >= values.size:
+        raise ModelError(f"--state level:{k}: H0 has only {values.size} levels")
+    e0, psi0 = values[k], vectors[:, k]
+    others = np.delete(values, k)
+    spacing = np.min(np.abs(others - e0)) if others.size else np.inf
+    if spacing <= 1e-9 * max(1.0, abs(e0)):
+        raise ModelError(f"H0 level {k} is degenerate: use lowfold derive for a degenerate "
+                         "treatment")
+    v_psi = v @ psi0
+    off = v_psi - np.vdot(psi0, v_psi) * psi0
+    return psi0, float(e0), f"level:{k}", float(np.linalg.norm(off) / spacing)
+
+
+def _exact_followed(h0, v, psi0, warnings) -> float | None:
+    """Exact eigenvalue of H0 + V grown adiabatically from ``psi0`` (lambda from 0 to 1)."""
+    n = h0.shape[0]
+    if n <= DENSE_FOLLOW_LIMIT:
+        h0_dense, v_dense = h0.toarray(), v.toarray()
+        vector = psi0
+        value = None
+        for lam in np.linspace(0, 1, FOLLOW_STEPS + 1)[1:]:
+            values, vectors = la.eigh(h0_dense + lam * v_dense)
+            k = int(np.argmax(np.abs(vectors.conj().T @ vector)))
+            value, vector = float(values[k]), vectors[:, k]
+        return value
+    if abs(np.vdot(psi0, h0 @ psi0) - lowest_eigenpairs(h0, 1)[0][0]) > 1e-9:
+        warnings.append("exact comparison skipped: following an excited state needs a space "
+                        f"of at most {DENSE_FOLLOW_LIMIT} states")
+        return None
+    try:
+        return float(lowest_eigenpairs(h0 + v, 1)[0][0])
+    except LowfoldError as exc:
+        warnings.append(f"exact comparison skipped: {exc}")
+        return None
+
+
+def _convergence(energies, warnings):
+    pade = ratio = None
+    try:
+        estimate = pade_estimate(energies)
+        pade = {"value": float(estimate.value), "spread": _finite(estimate.spread),
+                "approximant": list(estimate.approximant)}
+    except (ModelError, np.linalg.LinAlgError, ValueError) as exc:
+        warnings.append(f"no Pade estimate: {exc}")
+    try:
+        test = ratio_test(energies)
+        ratio = {"variable": test["variable"], "radius": _finite(test["radius"]),
+                 "singularity": _finite(test["singularity"]), "side": test["side"],
+                 "exponent": _finite(test["exponent"]), "fit_residual": test["fit_residual"]}
+    except ModelError as exc:
+        warnings.append(f"no ratio test: {exc}")
+    return pade, ratio
+
+
+# --------------------------------------------------------------------------- sweep
+
+def _sector_blocks(model: Model, basis: Basis, h0, v):
+    """Split the basis into S^z blocks when H0 and V conserve S^z (labels, index arrays)."""
+    h_all = compile_operator(model)
+    if not (model.site.has_spin and h_all.conserves_sz and model.sector.sz is None):
+        return ["all"], [np.arange(basis.size)]
+    from .perturbation.manifold import twice_sz
+    sz2 = twice_sz(model, basis.states)
+    values = np.unique(sz2)
+    return [f"Sz={Fraction(int(s), 2)}" for s in values], [np.flatnonzero(sz2 == s) for s in values]
+
+
+def _sweep(model, basis, h0, v, psi0, result, lambdas) -> Sweep:
+    names, blocks = _sector_blocks(model, basis, h0, v)
+    k_total = min(6, basis.size)
+    rows, labels, followed = [], [], []
+    vector = psi0
+    for lam in lambdas:
+        h = (h0 + lam * v).tocsr()
+        values, owners, vecs = [], [], []
+        for b, idx in enumerate(blocks):
+            sub = h[idx][:, idx]
+            k = min(k_total, idx.size)
+            e, vec = lowest_eigenpairs(sub, k, vectors=True)
+            full = np.zeros((basis.size, e.size), dtype=vec.dtype)
+            full[idx] = vec
+            values.extend(e.tolist()), owners.extend([b] * e.size), vecs.append(full)
+        vecs = np.hstack(vecs)
+        order = np.argsort(values)[:k_total]
+        overlaps = np.abs(vecs.conj().T @ vector)
+        best = int(np.argmax(overlaps))
+        followed.append(values[best])
+        vector = vecs[:, best]
+        rows.append(np.array(values)[order])
+        labels.append(np.array(owners)[order])
+    levels, level_sectors = np.array(rows), np.array(labels)
+    series = {n: np.array([result.energy(l, order=n) for l in lambdas])
+              for n in range(2, result.order + 1, 2)} or {result.order: np.array([result.energy(l) for l in lambdas])}
+    sweep = Sweep(np.asarray(lambdas), levels, names, level_sectors, np.array(followed), series)
+    _mark_crossings(sweep)
+    scale = result.smallest_denominator if np.isfinite(result.smallest_denominator) else 1.0
+    for n, values in series.items():
+        bad = np.flatnonzero(np.abs(values - sweep.followed) > 0.01 * abs(scale))
+        sweep.useful_up_to[n] = None if bad.size and bad[0] == 0 else float(
+            sweep.lambdas[bad[0] - 1] if bad.size else sweep.lambdas[-1])
+    return sweep
+
+
+def _mark_crossings(sweep: Sweep) -> None:
+    """Avoided crossings: local minima of the gap between neighbouring levels of one
+    sector; true crossings: neighbouring levels of different sectors swapping order."""
+    lam, levels, owners = sweep.lambdas, sweep.levels, sweep.level_sectors
+    n_lam, k = levels.shape
+    for s in range(len(sweep.sectors)):
+        own = [levels[i][owners[i] == s] for i in range(n_lam)]
+        depth = min(len(o) for o in own)
+        for j in range(depth - 1):
+            gaps = np.array([o[j + 1] - o[j] for o in own])
+            tol = 1e-8 * max(1.0, float(np.abs(levels).max()))
+            for i in range(1, n_lam - 1):
+                # a pronounced dip on both sides, not a pair of degenerate levels
+                if tol < gaps[i] < 0.5 * min(gaps[:i].max(), gaps[i + 1:].max()) \
+                        and gaps[i] < gaps[i - 1] and gaps[i] <= gaps[i + 1]:
+                    sweep.avoided.append({"lambda": float(lam[i]), "gap": float(gaps[i]),
+                                          "levels": [j, j + 1], "sector": sweep.sectors[s]})
+    lowest = [np.array([levels[i][owners[i] == s].min() if np.any(owners[i] == s) else np.nan
+                        for i in range(n_lam)]) for s in range(len(sweep.sectors))]
+    tol = 1e-9 * max(1.0, float(np.nanmax(np.abs(levels))))
+    for a in range(len(sweep.sectors)):
+        for b in range(a + 1, len(sweep.sectors)):
+            diff = lowest[a] - lowest[b]
+            signs = np.where(np.abs(diff) > tol, np.sign(diff), 0)
+            nonzero = np.flatnonzero(signs)
+            for i0, i1 in zip(nonzero[:-1], nonzero[1:]):
+                if signs[i0] != signs[i1]:
+                    sweep.crossings.append({"lambda": float(0.5 * (lam[i0] + lam[i1])),
+                                            "sectors": [sweep.sectors[a], sweep.sectors[b]]})
