@@ -14,6 +14,13 @@ from .model import Model, PerturbationSpec
 from .modelfile import load_model, parse_model
 from .hamiltonian import build_basis, hamiltonian_matrix, hamiltonian_operator
 from .exact import SpectrumResult, spectrum
+from .perturbation.schrieffer_wolff import (effective_hamiltonian_orders,
+                                            exact_effective_hamiltonian)
+from .perturbation.series import SeriesResult, rayleigh_schrodinger, rayleigh_schrodinger_general
+from .perturbation.convergence import pade_estimate, pade_table, partial_sums, ratio_test
+from .readout import Coupling, pauli_coefficients, recognise_rational, spin_couplings
+from .derive import EffectiveModel, derive
+from .state_series import StateSeries, state_series
 from .tasks import run_task
 
 __all__ = [
@@ -23,5 +30,10 @@ __all__ = [
     "Site", "make_site", "Basis", "Sector", "Term", "Model", "PerturbationSpec",
     "load_model", "parse_model",
     "build_basis", "hamiltonian_matrix", "hamiltonian_operator",
-    "SpectrumResult", "spectrum", "run_task",
+    "SpectrumResult", "spectrum",
+    "effective_hamiltonian_orders", "exact_effective_hamiltonian",
+    "SeriesResult", "rayleigh_schrodinger", "rayleigh_schrodinger_general",
+    "partial_sums", "pade_table", "pade_estimate", "ratio_test",
+    "Coupling", "pauli_coefficients", "spin_couplings", "recognise_rational",
+    "EffectiveModel", "derive", "StateSeries", "state_series", "run_task",
 ]
