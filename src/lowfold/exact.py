@@ -13,7 +13,7 @@ from scipy.sparse.linalg import ArpackNoConvergence, LinearOperator, eigsh
 from ._kernels import operators as kernels
 from .basis import Basis
 from .errors import ConvergenceError, ModelError, SizeError
-from .hamiltonian import (available_memory, build_basis, check_hermitian, compile_operator,
+from .hamiltonian import (available_memory, build_basis, check_model_hermitian, compile_operator,
                           operator_linear, operator_matrix)
 from .model import Model
 
@@ -88,7 +88,7 @@ def spectrum(model: Model, levels: int = 4, *, vectors: bool = False, method: st
         matrix = operator_linear(op, basis)
     else:
         matrix = operator_matrix(op, basis, memory_limit=limit - lanczos_bytes)
-    check_hermitian(matrix)
+    check_model_hermitian(model, basis, matrix)
     say(f"diagonalising ({basis.size:,} states, {levels} levels)")
     if chosen == "dense" and basis.size > DENSE_LIMIT:
         energies, vecs = _dense(matrix, levels, vectors)

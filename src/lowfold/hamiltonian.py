@@ -26,7 +26,7 @@ from .model import Model
 from .sites import SlotOperator
 
 __all__ = ["CompiledOperator", "compile_operator", "build_basis", "hamiltonian_matrix",
-           "hamiltonian_operator", "check_hermitian", "available_memory"]
+           "hamiltonian_operator", "check_hermitian", "check_model_hermitian", "available_memory"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -125,12 +125,13 @@ def _check_conservation(model: Model, label: str, strings: dict) -> None:
     sector = model.sector
     for key in strings:
         d_particles, d_twice_sz = _deltas(model, key)
+        where = f"{model.source}: {model.term_key(label)}"
         if sector.particles is not None and d_particles != 0:
-            raise ModelError(f"term {label!r} changes the particle number, but the sector fixes "
-                             "it; remove sector.particles or the term")
+            raise ModelError(f"{where} changes the particle number, but the sector fixes it; "
+                             "remove sector.particles or the term")
         if sector.sz is not None and d_twice_sz != 0:
-            raise ModelError(f"term {label!r} changes S^z, but the sector fixes it; remove "
-                             "sector.sz or the term")
+            raise ModelError(f"{where} changes S^z, but the sector fixes it; remove sector.sz "
+                             "or the term")
 
 
 def compile_operator(model: Model, labels=None, *, check_sector: bool = True) -> CompiledOperator:
@@ -225,7 +226,7 @@ def hamiltonian_matrix(model: Model, basis: Basis | None = None, labels=None, *,
     op = compile_operator(model, labels)
     matrix = operator_matrix(op, basis, memory_limit=memory_limit)
     if check:
-        check_hermitian(matrix, what=_what(model, labels))
+        check_model_hermitian(model, basis, matrix, labels)
     return matrix
 
 
@@ -265,6 +266,22 @@ def _what(model: Model, labels) -> str:
     return "the Hamiltonian" if labels is None else f"the terms {', '.join(labels)}"
 
 
+def check_model_hermitian(model: Model, basis: Basis, matrix, labels=None) -> None:
+    """``check_hermitian`` for a model's operator; on failure, name the first term that is
+    not Hermitian by itself (the usual culprit: a product without ``conjugate = true``)."""
+    try:
+        check_hermitian(matrix, what=_what(model, labels))
+    except ModelError as exc:
+        for label in (labels or [t.label for t in model.terms]):
+            alone = operator_linear(compile_operator(model, [label]), basis)
+            try:
+                check_hermitian(alone)
+            except ModelError:
+                raise ModelError(f"{model.source}: {model.term_key(label)} is not Hermitian; add "
+                                 "conjugate = true or its Hermitian partner") from None
+        raise ModelError(f"{model.source}: {exc}") from None
+
+
 def check_hermitian(matrix, *, what: str = "the Hamiltonian", rtol: float = 1e-10,
                     rng: np.random.Generator | None = None) -> None:
     """Raise ``ModelError`` unless ``matrix`` (sparse or LinearOperator) is Hermitian.
@@ -299,7 +316,7 @@ def hamiltonian_operator(model: Model, basis: Basis | None = None, labels=None, 
     op = compile_operator(model, labels)
     linear = operator_linear(op, basis)
     if check:
-        check_hermitian(linear, what=_what(model, labels))
+        check_model_hermitian(model, basis, linear, labels)
     return linear
 
 

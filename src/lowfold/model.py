@@ -54,7 +54,11 @@ class Model:
             if labels.count(label) > 1:
                 raise ModelError(f"term label {label!r} is used twice; labels must be unique")
         for term in self.terms:      # validates strengths, selectors and operator names
-            expand_term(term, self.strength(term), self.lattice, self.site)
+            try:
+                expand_term(term, self.strength(term), self.lattice, self.site)
+            except ModelError as exc:
+                prefix = f"term {term.label!r}"
+                raise ModelError(str(exc) if str(exc).startswith(prefix) else f"{prefix}: {exc}") from None
         if self.perturbation is not None:
             for label in self.perturbation.unperturbed:
                 if label not in labels:
@@ -70,6 +74,13 @@ class Model:
             if term.label == label:
                 return term
         raise ModelError(f"no term labelled {label!r}")
+
+    def term_key(self, label: str) -> str:
+        """Where a term sits in the model file, e.g. ``term[2] (tilt)``."""
+        for index, term in enumerate(self.terms):
+            if term.label == label:
+                return f"term[{index}] ({label})"
+        return f"term {label!r}"
 
     def strength(self, term: Term) -> float:
         """Numeric strength of ``term`` (a number, or a parameter's value)."""

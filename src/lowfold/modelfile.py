@@ -187,6 +187,8 @@ def _parse_terms(entries, parameters: dict) -> tuple[Term, ...]:
     terms = []
     for index, table in enumerate(entries):
         where = f"term[{index}]"
+        if not isinstance(table, dict):
+            raise ModelError(f"{where}: must be a table; write each term as [[term]]")
         _unknown(table, _TERM_KEYS, where)
         kind = table.get("type")
         if kind not in TERM_TYPES:
@@ -276,4 +278,6 @@ def _parse_perturbation(table: dict, terms) -> PerturbationSpec:
     if manifold is not None and manifold != "lowest":
         raise ModelError(f"perturbation.manifold: must be \"lowest\" (or give a window), got {manifold!r}")
     tolerance = _number(table.get("tolerance", 1e-9), "perturbation.tolerance")
+    if not 0 < tolerance < 1:
+        raise ModelError(f"perturbation.tolerance: must lie between 0 and 1 (relative), got {tolerance}")
     return PerturbationSpec(tuple(unperturbed), order, manifold, window, tolerance)
