@@ -26,14 +26,14 @@ def load(text):
     return lowfold.parse_model(tomllib.loads(text), source="<test>")
 
 
-def lowfold_levels(model, k=LEVELS):
-    res = lowfold.spectrum(model, levels=k)
+def lowfold_levels(model, k=LEVELS, method="auto"):
+    res = lowfold.spectrum(model, levels=k, method=method)
     return np.sort(np.asarray(res.energies, dtype=float))
 
 
-def assert_levels(model, expected, k=LEVELS):
+def assert_levels(model, expected, k=LEVELS, method="auto"):
     expected = np.sort(np.asarray(expected))[:k]
-    got = lowfold_levels(model, k=len(expected))
+    got = lowfold_levels(model, k=len(expected), method=method)
     np.testing.assert_allclose(got, expected, rtol=0, atol=ATOL)
 
 
@@ -137,6 +137,26 @@ def test_hubbard_ladder(particles, sz):
     model = load(hubbard_text("ladder", [3], "open", t, U, particles, sz))
     same_bonds(model, LADDER_2x3_OPEN)
     assert_levels(model, quspin_hubbard(6, LADDER_2x3_OPEN, t, U, particles, sz))
+
+
+@pytest.mark.parametrize("method", ["csr", "matrix-free"])
+def test_hubbard_ring_degenerate_levels_by_iteration(method):
+    # L = 7, N = 6, all S^z: 3003 states, above the size where lowfold diagonalises densely;
+    # the iterative routes must return every member of the spin multiplets
+    t, U = 1.0, 4.5
+    model = load(hubbard_text("chain", [7], "periodic", t, U, 6))
+    bonds = chain_bonds(7, True)
+    expected = quspin_hubbard(7, bonds, t, U, 6, k=8)
+    assert np.min(np.diff(expected)) < 1e-9          # the case does contain degeneracies
+    assert_levels(model, expected, k=8, method=method)
+
+
+def test_hubbard_ring_above_dense_limit():
+    # L = 7, N = 7, S^z = 1/2: 35 * 35 = 1225 states, odd ring, odd particle number
+    t, U = 1.0, 3.0
+    model = load(hubbard_text("chain", [7], "periodic", t, U, 7, 0.5))
+    bonds = chain_bonds(7, True)
+    assert_levels(model, quspin_hubbard(7, bonds, t, U, 7, 0.5))
 
 
 # --------------------------------------------------------------------------------------
