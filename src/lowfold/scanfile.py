@@ -1,0 +1,257 @@
+"""Scan files (TOML): a model, a task and a grid of parameters, sizes and sectors.
+
+A scan file names a model file, a task and a grid::
+
+    model = "dot_chain.toml"          # relative to the scan file
+    title = "exchange of a dot chain" # optional (default: the model's title)
+
+    [task]
+    name = "derive"                   # spectrum | derive | series
+    order = 4                         # every other key is an option of the task
+
+    [grid]
+    U = {start = 8, stop = 40, num = 9}   # inclusive; spacing = "log" for geometric steps
+    t = [1.0]                             # or a list of values
+    size = [[4], [6], [8]]                # lattice sizes (an int stands for [n])
+    boundary = ["open"]                   # or ["open", "periodic"], or per-direction lists
+    combine = "product"                   # all combinations (default) or "zip"
+
+    [sector]                              # optional: the sector at every point
+    filling = 1                           # particles per site (or particles = 6)
+    sz = 0
+
+``particles``, ``filling`` and ``sz`` may also be grid axes.  With ``combine = "zip"``
+the axes are walked together (lists of length 1 are repeated).
+
+Every problem is a :class:`~lowfold.errors.ModelError` whose message names the file and
+the key, e.g. ``scan.toml: grid.U: range needs num``.
+"""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Mapping
+
+from lowfold.errors import ModelError
+from lowfold.modelfile import read_toml
+
+__all__ = ["TASK_NAMES", "SECTOR_AXES", "ScanSpec", "parse_scan", "load_scan", "scan_error"]
+
+TASK_NAMES = ("spectrum", "derive", "series")
+SECTOR_AXES = ("particles", "filling", "sz")
+_TOP_KEYS = {"model", "title", "task", "grid", "sector"}
+
+
+@dataclass(frozen=True)
+class ScanSpec:
+    """A parsed scan file.
+
+    Attributes
+    ----------
+    source : str
+        Where it came from (for messages).
+    model_path : Path
+        The model file (absolute, or relative to the working directory).
+    task : str
+    options : Mapping
+        The task's options (``[task]`` minus ``name``).
+    axes : tuple of (name, tuple of values)
+        Grid axes in file order: parameters, ``size``, ``boundary``, sector axes.
+    combine : str
+        ``"product"`` or ``"zip"``.
+    sector : Mapping
+        Fixed ``[sector]`` entries (``particles``, ``filling``, ``sz``).
+    title : str
+    """
+
+    source: str
+    model_path: Path
+    task: str
+    options: Mapping[str, Any]
+    axes: tuple[tuple[str, tuple], ...]
+    combine: str = "product"
+    sector: Mapping[str, Any] = field(default_factory=dict)
+    title: str = ""
+
+
+def scan_error(source: str, key: str, message: str) -> ModelError:
+    return ModelError(f"{source}: {key}: {message}")
+
+
+def _is_number(value) -> bool:
+    return isinstance(value, (int, float)) and not isinstance(value, bool)
+
+
+def _values(source: str, key: str, spec) -> tuple[float, ...]:
+    """Parameter values from a number, a list, or ``{start, stop, num[, spacing]}``."""
+    if _is_number(spec):
+        return (float(spec),)
+    if isinstance(spec, list):
+        if not spec or not all(_is_number(v) for v in spec):
+            raise scan_error(source, key, "must be a non-empty list of numbers")
+        return tuple(float(v) for v in spec)
+    if isinstance(spec, dict):
+        unknown = set(spec) - {"start", "stop", "num", "spacing"}
+        if unknown:
+            raise scan_error(source, key, f"unknown range key(s) {', '.join(sorted(unknown))} "
+                        "(a range is {start = a, stop = b, num = n, spacing = 'linear'|'log'})")
+        missing = {"start", "stop", "num"} - set(spec)
+        if missing:
+            raise scan_error(source, key, f"range needs {', '.join(sorted(missing))} "
+                        "(a range is {start = a, stop = b, num = n}, both ends included)")
+        start, stop, num = spec["start"], spec["stop"], spec["num"]
+        if not (_is_number(start) and _is_number(stop)):
+            raise scan_error(source, key, "start and stop must be numbers")
+        if not isinstance(num, int) or isinstance(num, bool) or num < 1:
+            raise scan_error(source, key, f"num must be an integer >= 1, got {num!r}")
+        spacing = spec.get("spacing", "linear")
+        if spacing not in ("linear", "log"):
+            raise scan_error(source, key, f"spacing must be 'linear' or 'log', got {spacing!r}")
+        if spacing == "log" and not (start > 0 and stop > 0 or start < 0 and stop < 0):
+            raise scan_error(source, key, "a log range needs start and stop of the same sign, not 0")
+        if num == 1:
+            raw = [float(start)]
+        elif spacing == "linear":
+            raw = [start + (stop - start) * k / (num - 1) for k in range(num)]
+        else:
+            ratio = stop / start
+            raw = [start * ratio ** (k / (num - 1)) for k in range(num)]
+        return tuple(float(f"{v:.12g}") for v in raw)   # stable keys: no 5.999999999
+    raise scan_error(source, key, "must be a number, a list of numbers or {start, stop, num}")
+
+
+def _sizes(source: str, spec) -> tuple[tuple[int, ...], ...]:
+    if isinstance(spec, int) and not isinstance(spec, bool):
+        spec = [spec]
+    if not isinstance(spec, list) or not spec:
+        raise scan_error(source, "grid.size", "must be a list of sizes, e.g. [[4], [6]] or [4, 6]")
+    out = []
+    for entry in spec:
+        entry = [entry] if isinstance(entry, int) and not isinstance(entry, bool) else entry
+        if (not isinstance(entry, list) or not entry
+                or not all(isinstance(n, int) and not isinstance(n, bool) and n >= 1 for n in entry)):
+            raise scan_error(source, "grid.size", f"entries must be lists of integers >= 1, got {entry!r}")
+        out.append(tuple(entry))
+    return tuple(out)
+
+
+def _boundaries(source: str, spec) -> tuple:
+    spec = [spec] if isinstance(spec, str) else spec
+    if not isinstance(spec, list) or not spec:
+        raise scan_error(source, "grid.boundary", "must be a list such as ['open', 'periodic']")
+    out = []
+    for entry in spec:
+        items = [entry] if isinstance(entry, str) else entry
+        if not isinstance(items, list) or not all(b in ("open", "periodic") for b in items):
+            raise scan_error(source, "grid.boundary",
+                        f"entries must be 'open' or 'periodic' (or a list of them), got {entry!r}")
+        out.append(entry if isinstance(entry, str) else tuple(entry))
+    return tuple(out)
+
+
+def _sector_value(source: str, key: str, name: str, value):
+    if name == "particles":
+        if not isinstance(value, int) or isinstance(value, bool) or value < 0:
+            raise scan_error(source, key, f"particles must be a non-negative integer, got {value!r}")
+        return value
+    if not _is_number(value):
+        raise scan_error(source, key, f"{name} must be a number, got {value!r}")
+    if name == "sz" and (2 * value) % 1:
+        raise scan_error(source, key, f"sz must be a multiple of 1/2, got {value!r}")
+    if name == "filling" and value < 0:
+        raise scan_error(source, key, f"filling must be >= 0, got {value!r}")
+    return float(value)
+
+
+def _task(source: str, table) -> tuple[str, dict]:
+    if not isinstance(table, dict) or "name" not in table:
+        raise scan_error(source, "task", "needs a [task] table with name = 'spectrum' | 'derive' | 'series'")
+    name = table["name"]
+    if name not in TASK_NAMES:
+        raise scan_error(source, "task.name", f"unknown task {name!r} (known: {', '.join(TASK_NAMES)})")
+    options = {k: v for k, v in table.items() if k != "name"}
+    for key, value in options.items():
+        if isinstance(value, dict):
+            raise scan_error(source, f"task.{key}", "options must be numbers, strings, booleans or lists")
+    return name, options
+
+
+def parse_scan(data: Mapping[str, Any], *, source: str = "<scan>", base_dir: str | os.PathLike = ".") -> ScanSpec:
+    """Validate a parsed scan document (see the module docstring for the format).
+
+    Parameters
+    ----------
+    data : dict
+        The parsed TOML.
+    source : str, keyword-only
+        Name used in error messages.
+    base_dir : path, keyword-only
+        Directory the model path is relative to.
+
+    Raises
+    ------
+    ModelError
+        Naming the file and the key.
+    """
+    unknown = set(data) - _TOP_KEYS
+    if unknown:
+        raise scan_error(source, ", ".join(sorted(unknown)),
+                    f"unknown key (allowed: {', '.join(sorted(_TOP_KEYS))})")
+    model = data.get("model")
+    if not isinstance(model, str) or not model:
+        raise scan_error(source, "model", "needs model = 'path/to/model.toml' (relative to the scan file)")
+    title = data.get("title", "")
+    if not isinstance(title, str):
+        raise scan_error(source, "title", "must be a string")
+    task, options = _task(source, data.get("task"))
+    grid = data.get("grid", {})
+    if not isinstance(grid, dict):
+        raise scan_error(source, "grid", "must be a table")
+    combine = grid.get("combine", "product")
+    if combine not in ("product", "zip"):
+        raise scan_error(source, "grid.combine", f"must be 'product' or 'zip', got {combine!r}")
+    axes = []
+    for name, spec in grid.items():
+        key = f"grid.{name}"
+        if name == "combine":
+            continue
+        if name == "size":
+            axes.append((name, _sizes(source, spec)))
+        elif name == "boundary":
+            axes.append((name, _boundaries(source, spec)))
+        elif name in SECTOR_AXES:
+            spec = spec if isinstance(spec, list) else [spec]
+            axes.append((name, tuple(_sector_value(source, key, name, v) for v in spec)))
+        else:
+            axes.append((name, _values(source, key, spec)))
+    names = [n for n, _ in axes]
+    if "particles" in names and "filling" in names:
+        raise scan_error(source, "grid.filling", "give particles or filling, not both")
+    if combine == "zip":
+        lengths = {len(v) for _, v in axes if len(v) > 1}
+        if len(lengths) > 1:
+            raise scan_error(source, "grid.combine", "with combine = 'zip' every axis needs the same "
+                        "number of values (or just one), got lengths "
+                        + ", ".join(f"{n}: {len(v)}" for n, v in axes))
+    sector = data.get("sector", {})
+    if not isinstance(sector, dict):
+        raise scan_error(source, "sector", "must be a table")
+    extra = set(sector) - set(SECTOR_AXES)
+    if extra:
+        raise scan_error(source, f"sector.{sorted(extra)[0]}", f"unknown key (allowed: {', '.join(SECTOR_AXES)})")
+    if "particles" in sector and "filling" in sector:
+        raise scan_error(source, "sector.filling", "give particles or filling, not both")
+    sector = {k: _sector_value(source, f"sector.{k}", k, v) for k, v in sector.items()}
+    for name in sector:
+        if name in names:
+            raise scan_error(source, f"sector.{name}", "is also a grid axis; give it in one place")
+    return ScanSpec(source=source, model_path=Path(base_dir) / model, task=task, options=options,
+                    axes=tuple(axes), combine=combine, sector=sector, title=title)
+
+
+def load_scan(path: str | os.PathLike) -> ScanSpec:
+    """Read and validate a scan file (the model path is taken relative to it)."""
+    path = Path(path)
+    return parse_scan(read_toml(path), source=str(path), base_dir=path.parent)
