@@ -126,6 +126,24 @@ def test_heisenberg_ring4(J):
 
 
 # --------------------------------------------------------------------------------------
+# two spins s coupled by J S_1.S_2 = (J/2)[S(S+1) - 2 s(s+1)], S = 0..2s, each level
+# (2S+1)-fold (addition of angular momenta, common practice)
+
+
+@pytest.mark.parametrize("s", [0.5, 1.0, 1.5, 2.0])
+def test_spin_dimer_all_spins(s):
+    J = 0.8
+    expected = np.sort([J / 2 * (S * (S + 1) - 2 * s * (s + 1))
+                        for S in range(int(2 * s) + 1) for _ in range(2 * S + 1)])
+    text = chain_text(f'type = "spin"\nspin = {s}', 2, "open",
+                      term("exchange", J, 'bonds = "nearest"'))
+    np.testing.assert_allclose(lowfold_levels(text, len(expected)), expected, atol=ATOL)
+    ref_levels = reference_levels("spin", 2, ref.expand_term("spin", "exchange", J,
+                                                             bonds=[(0, 1)]), spin=s)
+    np.testing.assert_allclose(ref_levels, expected, atol=ATOL)
+
+
+# --------------------------------------------------------------------------------------
 # free fermions on a ring
 # H = -t sum_i (c+_i c_{i+1} + h.c.) with the wrap bond (L-1, 0) written with fermion
 # operators is translation invariant with c_L = c_0: one-body energies -2t cos(2 pi m / L),

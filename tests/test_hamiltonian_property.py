@@ -26,6 +26,8 @@ SITE_KINDS = {
                  ref.SPIN_NAMES + ref.PAULI_NAMES),
     "spin-1": ({"type": "spin", "spin": 1.0}, ("exchange", "field", "product"),
                ref.SPIN_NAMES),
+    "spin-3/2": ({"type": "spin", "spin": 1.5}, ("exchange", "field", "product"),
+                 ref.SPIN_NAMES),
     "fermion": ({"type": "fermion"}, ("hopping", "interaction", "potential", "product"),
                 ref.FERMION_NAMES),
     "electron": ({"type": "electron"},
@@ -81,7 +83,7 @@ def is_hermitian(site, n_sites, terms):
 def random_models(draw):
     kind = draw(st.sampled_from(sorted(SITE_KINDS)))
     site, term_types, names = SITE_KINDS[kind]
-    n = draw(st.integers(2, 3 if kind == "electron" else 4))
+    n = draw(st.integers(2, 3 if kind in ("electron", "spin-3/2") else 4))
     pairs = list(itertools.combinations(range(n), 2))
     graph_bonds = draw(st.lists(st.sampled_from(pairs), min_size=1, max_size=len(pairs),
                                 unique=True))
