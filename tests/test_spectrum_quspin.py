@@ -132,9 +132,11 @@ def test_hubbard_ring_small(L, particles):
 
 
 @pytest.mark.parametrize("particles, sz", [(6, 0), (5, None), (4, 0)])
-def test_hubbard_ladder(particles, sz):
+def test_hubbard_ladder(particles, sz, tmp_path):
     t, U = 1.0, 6.0
-    model = load(hubbard_text("ladder", [3], "open", t, U, particles, sz))
+    path = tmp_path / "ladder.toml"
+    path.write_text(hubbard_text("ladder", [3], "open", t, U, particles, sz))
+    model = lowfold.load_model(path)
     same_bonds(model, LADDER_2x3_OPEN)
     assert_levels(model, quspin_hubbard(6, LADDER_2x3_OPEN, t, U, particles, sz))
 
@@ -305,6 +307,27 @@ sites = "all"
     bonds = chain_bonds(L, True)
     same_bonds(model, bonds)
     assert_levels(model, ref.quspin_xxz_energies(L, bonds, jxy, jz, sz=sz, hz=h, k=LEVELS))
+
+
+@pytest.mark.xfail(strict=True, raises=lowfold.ModelError,
+                   reason="sector conservation is checked term by term: the product term "
+                          "X X alone changes S^z, so the sector is refused although "
+                          "X X + Y Y conserves it")
+def test_xxz_chain_from_pauli_products_in_sz_sector():
+    # (J/4)(X X + Y Y) + (Jz/4) Z Z conserves total S^z although X X and Y Y separately do
+    # not: their S+ S+ and S- S- parts cancel, so the S^z sector must be accepted
+    J, jz, L = 1.0, 0.4, 8
+    terms = "".join(f"""
+[[term]]
+type = "product"
+label = "{name}"
+strength = {strength}
+operators = ["{op}", "{op}"]
+bonds = "nearest"
+""" for name, op, strength in (("xx", "X", J / 4), ("yy", "Y", J / 4), ("zz", "Z", jz / 4)))
+    model = load(spin_text("chain", [L], "periodic", terms, sz=0))
+    bonds = chain_bonds(L, True)
+    assert_levels(model, ref.quspin_xxz_energies(L, bonds, J, jz, sz=0, k=LEVELS))
 
 
 @pytest.mark.parametrize("size, boundary, bonds, sz", [
