@@ -309,10 +309,6 @@ sites = "all"
     assert_levels(model, ref.quspin_xxz_energies(L, bonds, jxy, jz, sz=sz, hz=h, k=LEVELS))
 
 
-@pytest.mark.xfail(strict=True, raises=lowfold.ModelError,
-                   reason="sector conservation is checked term by term: the product term "
-                          "X X alone changes S^z, so the sector is refused although "
-                          "X X + Y Y conserves it")
 def test_xxz_chain_from_pauli_products_in_sz_sector():
     # (J/4)(X X + Y Y) + (Jz/4) Z Z conserves total S^z although X X and Y Y separately do
     # not: their S+ S+ and S- S- parts cancel, so the S^z sector must be accepted

@@ -21,7 +21,7 @@ from scipy.sparse.linalg import lobpcg
 from .basis import Sector
 from .errors import LowfoldError, ModelError, SizeError
 from .exact import lowest_eigenpairs
-from .hamiltonian import build_basis, hamiltonian_matrix
+from .hamiltonian import build_basis, hamiltonian_matrix, kernel_threads
 from .model import Model
 from .perturbation.diagnostics import Diagnostics, manifold_diagnostics, merge_diagnostics
 from .perturbation.manifold import (Manifold, diagonal_energies, find_manifold,
@@ -240,7 +240,8 @@ def _coupling_rows(v, p_states, working, n_slots) -> sp.csr_matrix:
     from .basis import explicit_basis
     basis = explicit_basis(working, n_slots, v.radix)
     strings = np.arange(v.n_strings, dtype=np.int64)
-    rows, new, amps = images(np.ascontiguousarray(p_states), strings, *v.arrays(), False)
+    with kernel_threads(p_states.size):
+        rows, new, amps = images(np.ascontiguousarray(p_states), strings, *v.arrays(), False)
     cols = basis.index(new)
     keep = cols >= 0
     # <new|V|p> = amp, so <p|V|new> = conj(amp)

@@ -10,10 +10,10 @@ import scipy.linalg as la
 import scipy.sparse as sp
 from scipy.sparse.linalg import ArpackNoConvergence, LinearOperator, eigsh
 
-from ._kernels import operators as kernels
 from .basis import Basis
 from .errors import ConvergenceError, ModelError, SizeError
 from .hamiltonian import (available_memory, build_basis, check_model_hermitian, compile_operator,
+                          count_nonzeros,
                           operator_linear, operator_matrix)
 from .model import Model
 
@@ -114,8 +114,7 @@ def _choose_method(method, op, basis: Basis, limit: int, say) -> str:
     if basis.size <= DENSE_LIMIT:
         return "csr"
     say(f"counting non-zeros on {basis.size:,} states")
-    images = kernels.count_images(basis.states, op.offdiagonal_strings, *op.arrays())
-    nnz = int(images.sum()) + basis.size
+    nnz = count_nonzeros(op, basis)
     csr_bytes = nnz * (np.dtype(op.coef.dtype).itemsize + 4) + 8 * basis.size
     if csr_bytes <= limit:
         return "csr"

@@ -11,10 +11,12 @@ The numba kernels in ``lowfold._kernels.operators`` apply the strings to basis s
 
 from __future__ import annotations
 
+import contextlib
 import os
 from dataclasses import dataclass
 from itertools import product as cartesian
 
+import numba
 import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.linalg import LinearOperator
@@ -25,7 +27,9 @@ from .errors import ModelError, SizeError
 from .model import Model
 from .sites import SlotOperator
 
-__all__ = ["CompiledOperator", "compile_operator", "build_basis", "hamiltonian_matrix",
+PARALLEL_MIN_STATES = 20_000   # below this, thread start-up costs more than it saves
+
+__all__ = ["kernel_threads", "CompiledOperator", "compile_operator", "build_basis", "hamiltonian_matrix",
            "hamiltonian_operator", "check_hermitian", "check_model_hermitian", "available_memory"]
 
 
@@ -67,6 +71,21 @@ class CompiledOperator:
         """The string arrays in the order the kernels take them (after the string list)."""
         return (self.ptr, self.slot, self.table, self.odd, self.table_new, self.table_amp,
                 self.coef, self.radix, self.powers)
+
+
+@contextlib.contextmanager
+def kernel_threads(size: int):
+    """Run the parallel numba kernels on one thread for inputs of fewer than
+    ``PARALLEL_MIN_STATES`` states, where waking the thread pool dominates."""
+    if size >= PARALLEL_MIN_STATES:
+        yield
+        return
+    previous = numba.get_num_threads()
+    numba.set_num_threads(1)
+    try:
+        yield
+    finally:
+        numba.set_num_threads(previous)
 
 
 def _canonical(factors):
@@ -135,16 +154,21 @@ def _check_conservation(model: Model, label: str, strings: dict) -> None:
 
 
 def compile_operator(model: Model, labels=None, *, check_sector: bool = True) -> CompiledOperator:
-    """Compile the terms named by ``labels`` (default: all) into kernel arrays."""
+    """Compile the terms named by ``labels`` (default: all) into kernel arrays.
+
+    The sector's conservation laws are checked on the collected strings, so terms that
+    conserve only together (``X X`` and ``Y Y`` in an S^z sector) are accepted."""
     collected: dict = {}
+    sources: dict = {}
     for label, products in model.products(labels):
-        strings = _term_strings(model, label, products)
-        if check_sector:
-            _check_conservation(model, label, strings)
-        for key, c in strings.items():
+        for key, c in _term_strings(model, label, products).items():
             collected[key] = collected.get(key, 0) + c
+            sources.setdefault(key, label)
     scale = max((abs(c) for c in collected.values()), default=0.0)
     collected = {k: c for k, c in collected.items() if abs(c) > 1e-14 * scale}
+    if check_sector:
+        for key in collected:
+            _check_conservation(model, sources[key], {key: collected[key]})
     deltas = np.array([_deltas(model, key) for key in collected], dtype=np.int64).reshape(-1, 2)
     return _to_arrays(collected, model.site.radix, model.n_sites * model.site.modes, deltas)
 
@@ -206,12 +230,14 @@ def build_basis(model: Model, *, max_states: int | None = None) -> Basis:
 
 
 def _diagonal(op: CompiledOperator, basis: Basis) -> np.ndarray:
-    return kernels.diagonal(basis.states, op.diagonal_strings, *op.arrays())
+    with kernel_threads(basis.size):
+        return kernels.diagonal(basis.states, op.diagonal_strings, *op.arrays())
 
 
 def count_nonzeros(op: CompiledOperator, basis: Basis) -> int:
     """Upper bound of the stored entries of the CSR matrix (exact unless entries merge)."""
-    images = kernels.count_images(basis.states, op.offdiagonal_strings, *op.arrays())
+    with kernel_threads(basis.size):
+        images = kernels.count_images(basis.states, op.offdiagonal_strings, *op.arrays())
     return int(images.sum()) + basis.size
 
 
@@ -233,7 +259,8 @@ def hamiltonian_matrix(model: Model, basis: Basis | None = None, labels=None, *,
 def operator_matrix(op: CompiledOperator, basis: Basis, *, memory_limit: int | None = None) -> sp.csr_matrix:
     """CSR matrix of a compiled operator on a basis closed under it."""
     diag = _diagonal(op, basis)
-    counts = kernels.count_images(basis.states, op.offdiagonal_strings, *op.arrays())
+    with kernel_threads(basis.size):
+        counts = kernels.count_images(basis.states, op.offdiagonal_strings, *op.arrays())
     counts += diag != 0
     nnz = int(counts.sum())
     wide = nnz >= 2**31 or basis.size >= 2**31
@@ -248,8 +275,10 @@ def operator_matrix(op: CompiledOperator, basis: Basis, *, memory_limit: int | N
     np.cumsum(counts, out=indptr[1:])
     indices = np.empty(nnz, dtype=index_dtype)
     data = np.empty(nnz, dtype=op.coef.dtype)
-    unique, missing = kernels.fill_rows(basis.states, diag, op.offdiagonal_strings, *op.arrays(),
-                                        *basis.lookup_arrays, indptr, indices, data)
+    with kernel_threads(basis.size):
+        unique, missing = kernels.fill_rows(basis.states, diag, op.offdiagonal_strings,
+                                            *op.arrays(), *basis.lookup_arrays, indptr, indices,
+                                            data)
     if missing:
         raise ModelError("the operator leads out of the basis (it does not conserve the sector)")
     if int(unique.sum()) != nnz:
@@ -328,9 +357,10 @@ def operator_linear(op: CompiledOperator, basis: Basis) -> LinearOperator:
         x = np.ascontiguousarray(np.ravel(x))
         dtype = np.result_type(op.coef.dtype, x.dtype)
         y = np.empty(basis.size, dtype=dtype)
-        kernels.matvec(basis.states, diag.astype(dtype, copy=False), op.offdiagonal_strings,
-                       *op.arrays(), *lookup,
-                       x.astype(dtype, copy=False), y)
+        with kernel_threads(basis.size):
+            kernels.matvec(basis.states, diag.astype(dtype, copy=False),
+                           op.offdiagonal_strings, *op.arrays(), *lookup,
+                           x.astype(dtype, copy=False), y)
         return y
 
     return LinearOperator((basis.size, basis.size), matvec=matvec, rmatvec=matvec,

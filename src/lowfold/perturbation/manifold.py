@@ -21,7 +21,7 @@ import scipy.sparse as sp
 from .._kernels import operators as kernels
 from ..basis import explicit_basis
 from ..errors import ManifoldError, ModelError
-from ..hamiltonian import CompiledOperator, build_basis, compile_operator
+from ..hamiltonian import CompiledOperator, build_basis, compile_operator, kernel_threads
 from ..model import Model
 
 __all__ = ["Manifold", "split_operators", "find_manifold", "reachable_states",
@@ -53,7 +53,8 @@ def split_operators(model: Model) -> tuple[CompiledOperator, CompiledOperator]:
 
 def diagonal_energies(op: CompiledOperator, states: np.ndarray) -> np.ndarray:
     """Diagonal of ``op`` on the given states (real part)."""
-    values = kernels.diagonal(np.ascontiguousarray(states), op.diagonal_strings, *op.arrays())
+    with kernel_threads(len(states)):
+        values = kernels.diagonal(np.ascontiguousarray(states), op.diagonal_strings, *op.arrays())
     return np.real(values).astype(float)
 
 
@@ -119,7 +120,8 @@ def _manifold_by_sites(model: Model, h0: CompiledOperator, spec):
     for i in range(n_sites):
         strings = np.flatnonzero(site_of_string == i).astype(np.int64)
         if strings.size:
-            local_energy[i] = np.real(kernels.diagonal(local_states[i], strings, *h0.arrays()))
+            with kernel_threads(0):
+                local_energy[i] = np.real(kernels.diagonal(local_states[i], strings, *h0.arrays()))
     # best[i][n, s]: lowest energy of sites i.. with totals (n, s) (offset by the minima)
     n_lo, n_hi = n_sites * particles.min(), n_sites * particles.max()
     s_lo, s_hi = n_sites * twice_sz.min(), n_sites * twice_sz.max()
@@ -178,7 +180,8 @@ def reachable_states(p_states: np.ndarray, v: CompiledOperator, steps: int) -> n
     for _ in range(steps):
         if frontier.size == 0 or v.offdiagonal_strings.size == 0:
             break
-        _, new, _ = kernels.images(frontier, v.offdiagonal_strings, *v.arrays(), False)
+        with kernel_threads(frontier.size):
+            _, new, _ = kernels.images(frontier, v.offdiagonal_strings, *v.arrays(), False)
         new = np.unique(new)
         frontier = new[~np.isin(new, visited, assume_unique=True)]
         visited = np.union1d(visited, frontier)
@@ -189,7 +192,8 @@ def restricted_operator(op: CompiledOperator, states: np.ndarray, n_slots: int) 
     """Matrix of ``op`` between the given states only (images leaving the set are dropped)."""
     basis = explicit_basis(states, n_slots, op.radix)
     all_strings = np.arange(op.n_strings, dtype=np.int64)
-    rows, new, amps = kernels.images(basis.states, all_strings, *op.arrays(), False)
+    with kernel_threads(basis.size):
+        rows, new, amps = kernels.images(basis.states, all_strings, *op.arrays(), False)
     cols = basis.index(new)
     inside = cols >= 0
     # <new|O|state_row> = amp: entry (new, row)
