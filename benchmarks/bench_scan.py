@@ -3,7 +3,8 @@
 Each point is the two lowest levels of a 10-dot chain (examples/dot_chain.toml, ten
 electrons, S^z = 1: 44100 states), about a second of single-threaded work.  Reported:
 
-* loop:       the same points one after the other in this process (after a warm-up);
+* loop:       the same points one after the other in this process (after a warm-up),
+              run before and after the scans and averaged (the machine may be shared);
 * scan N:     ``run_scan`` on a fresh LocalCluster of N workers, wall time including the
               cluster start-up, and the span from the first point's start to the last
               point's end (both from the stored timings);
@@ -57,6 +58,13 @@ def _span(directory: Path) -> tuple[float, float]:
     return (max(ends) - min(starts)).total_seconds(), sum(r["timing"]["seconds"] for r in records)
 
 
+def _loop(points) -> float:
+    clock = time.perf_counter()
+    for point in points:
+        run_task("spectrum", point.model, {"levels": 2})
+    return time.perf_counter() - clock
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--points", type=int, default=16)
@@ -70,12 +78,8 @@ def main() -> None:
         points = plan_scan(load_scan(work / "scan.toml"))
 
         run_task("spectrum", points[0].model, {"levels": 2})      # warm-up: numba compilation
-        clock = time.perf_counter()
-        for point in points:
-            run_task("spectrum", point.model, {"levels": 2})
-        loop = time.perf_counter() - clock
-
-        rows = {"loop": {"wall": loop, "span": loop, "work": loop}}
+        loop_before = _loop(points)
+        rows = {}
         for workers in (1, 2):
             out = work / f"out-{workers}"
             clock = time.perf_counter()
@@ -85,9 +89,12 @@ def main() -> None:
                 raise SystemExit(f"scan failed: {summary.failures}")
             span, work_sum = _span(out)
             rows[f"scan {workers}"] = {"wall": wall, "span": span, "work": work_sum}
+        loop_after = _loop(points)          # the machine may be shared: loop before and after
     finally:
         shutil.rmtree(work, ignore_errors=True)
 
+    loop = 0.5 * (loop_before + loop_after)
+    rows = {"loop": {"wall": loop, "span": loop, "work": loop}, **rows}
     n = len(points)
     one, two = rows["scan 1"], rows["scan 2"]
     figures = {
@@ -102,7 +109,8 @@ def main() -> None:
     print(f"{'run':<8} {'wall s':>8} {'span s':>8} {'work s':>8}")
     for name, row in rows.items():
         print(f"{name:<8} {row['wall']:8.2f} {row['span']:8.2f} {row['work']:8.2f}")
-    print(f"points: {n}, {loop / n:.2f} s each in the loop")
+    print(f"points: {n}, {loop / n:.2f} s each in the loop (before {loop_before:.1f} s, "
+          f"after {loop_after:.1f} s)")
     print(f"speed-up 2 vs 1 worker: {figures['speedup_2_vs_1_wall']:.2f} (wall), "
           f"{figures['speedup_2_vs_1_span']:.2f} (span); 2 workers vs loop: "
           f"{figures['speedup_2_vs_loop_wall']:.2f}")
@@ -113,7 +121,8 @@ def main() -> None:
     results.mkdir(exist_ok=True)
     stamp = datetime.now(timezone.utc).strftime("%Y%m%dT%H%M%SZ")
     payload = {"benchmark": "bench_scan", "date": stamp, "cores": os.cpu_count(),
-               "load_average": os.getloadavg(), "size": args.size, "rows": rows, **figures}
+               "load_average": os.getloadavg(), "size": args.size, "rows": rows,
+               "loop_before": loop_before, "loop_after": loop_after, **figures}
     path = results / f"bench_scan-{stamp}.json"
     path.write_text(json.dumps(payload, indent=1))
     print(f"written {path}")

@@ -17,7 +17,7 @@ import numpy as np
 import pytest
 
 from lowfold.errors import ModelError
-from lowfold.scan import (WORKER_ENV, load_scan, parse_scan, plan_scan, run_scan,
+from lowfold.scan import (WORKER_ENV, WORKER_MALLOC, load_scan, parse_scan, plan_scan, run_scan,
                           start_local_cluster)
 from lowfold.store import load_results
 from lowfold.tasks import run_task
@@ -175,9 +175,10 @@ def test_grid_must_name_model_parameters_and_valid_sizes(tmp_path):
 
 # ------------------------------------------------------------------ execution
 def test_workers_run_single_threaded(client):
-    env = client.run(lambda: {k: os.environ.get(k) for k in WORKER_ENV})
+    wanted = {**WORKER_ENV, **WORKER_MALLOC}
+    env = client.run(lambda: {k: os.environ.get(k) for k in wanted})
     assert len(env) == 2
-    assert all(values == WORKER_ENV for values in env.values())
+    assert all(values == wanted for values in env.values())
     assert set(client.nthreads().values()) == {1}
 
 
@@ -367,7 +368,7 @@ def test_batch_cluster_job_script_runs_single_threaded_workers():
         cluster.close()
     assert "#SBATCH -t 02:00:00" in script and "#SBATCH -p cpu" in script
     assert "--nthreads 1" in script and "--nworkers 8" in script
-    for name, value in WORKER_ENV.items():
+    for name, value in {**WORKER_ENV, **WORKER_MALLOC}.items():
         assert f"export {name}={value}" in script
     assert "module load python" in script
     with pytest.raises(ModelError, match="unknown batch system"):

@@ -30,13 +30,21 @@ from lowfold.scanfile import SECTOR_AXES, TASK_NAMES, ScanSpec, load_scan, parse
 from lowfold.store import RECORD_FORMAT, ResultStore, point_key, write_csv
 
 __all__ = [
-    "TASK_NAMES", "WORKER_ENV", "ScanSpec", "ScanPoint", "ScanSummary", "load_scan",
-    "parse_scan", "plan_scan", "run_scan", "start_local_cluster", "evaluate_point",
+    "TASK_NAMES", "WORKER_ENV", "WORKER_MALLOC", "ScanSpec", "ScanPoint", "ScanSummary",
+    "load_scan", "parse_scan", "plan_scan", "run_scan", "start_local_cluster", "evaluate_point",
     "available_cores", "format_summary", "start_batch_cluster",
 ]
 
 WORKER_ENV = {"NUMBA_NUM_THREADS": "1", "OMP_NUM_THREADS": "1", "MKL_NUM_THREADS": "1",
               "OPENBLAS_NUM_THREADS": "1"}
+# dask's nanny sets MALLOC_TRIM_THRESHOLD_=65536 by default, which also switches off
+# glibc's dynamic mmap threshold: every NumPy temporary above 128 KiB then costs an
+# mmap/munmap pair and fresh zeroed pages, and Lanczos points ran 1.5-2x slower on a
+# worker than in a plain loop (measured with benchmarks/bench_scan.py).  These values
+# restore the upper end of glibc's own dynamic behaviour (mmap above 32 MiB, trim above
+# 64 MiB; mallopt(3)).
+WORKER_MALLOC = {"MALLOC_MMAP_THRESHOLD_": str(32 * 2**20),
+                 "MALLOC_TRIM_THRESHOLD_": str(64 * 2**20)}
 
 
 # --------------------------------------------------------------------------- planning
@@ -276,25 +284,42 @@ def start_local_cluster(workers: int | None = None, **kwargs):
     """A LocalCluster of ``workers`` processes (default: all cores), one thread each.
 
     The workers get ``NUMBA_NUM_THREADS = OMP_NUM_THREADS = ... = 1`` in their
-    environment before they import anything, so points never oversubscribe the cores.
-    Extra keyword arguments go to :class:`distributed.LocalCluster`.
+    environment before they import anything, so points never oversubscribe the cores, and
+    the malloc settings of :data:`WORKER_MALLOC` (see there).  Extra keyword arguments go
+    to :class:`distributed.LocalCluster`.
     """
     import logging
 
+    import dask
     from distributed import LocalCluster
 
     options = {"n_workers": workers or available_cores(), "threads_per_worker": 1,
                "processes": True, "env": dict(WORKER_ENV), "dashboard_address": None,
                "silence_logs": logging.ERROR}
     options.update(kwargs)
-    return LocalCluster(**options)
+    # The nanny sets its pre-spawn variables before starting a worker process (and again
+    # when it restarts one), taking a value from os.environ before the dask config: set
+    # both while the nannies are made, then restore the environment of this process.
+    config = {f"distributed.nanny.pre-spawn-environ.{k}": v for k, v in WORKER_MALLOC.items()}
+    saved = {k: os.environ.get(k) for k in WORKER_MALLOC}
+    try:
+        os.environ.update(WORKER_MALLOC)
+        with dask.config.set(config):
+            return LocalCluster(**options)
+    finally:
+        for name, value in saved.items():
+            if value is None:
+                os.environ.pop(name, None)
+            else:
+                os.environ[name] = value
 
 
 def start_batch_cluster(system: str, *, jobs: int, cores: int, memory: str, walltime: str, **options):
     """Workers in batch jobs through dask-jobqueue (optional: ``pip install 'lowfold[cluster]'``).
 
-    Each job runs ``cores`` single-threaded worker processes sharing ``memory``, with the
-    thread-limiting environment of :data:`WORKER_ENV` exported in the job script.
+    Each job runs ``cores`` single-threaded worker processes sharing ``memory``, with
+    :data:`WORKER_ENV` and :data:`WORKER_MALLOC` exported in the job script (the job's
+    exports come after dask's defaults, so they win).
 
     Parameters
     ----------
@@ -319,7 +344,7 @@ def start_batch_cluster(system: str, *, jobs: int, cores: int, memory: str, wall
     classes = {"slurm": dask_jobqueue.SLURMCluster, "pbs": dask_jobqueue.PBSCluster}
     if system not in classes:
         raise ModelError(f"unknown batch system {system!r} (known: {', '.join(classes)})")
-    prologue = [f"export {k}={v}" for k, v in WORKER_ENV.items()]
+    prologue = [f"export {k}={v}" for k, v in {**WORKER_ENV, **WORKER_MALLOC}.items()]
     prologue += list(options.pop("job_script_prologue", []))
     cluster = classes[system](cores=cores, processes=cores, memory=memory, walltime=walltime,
                               job_script_prologue=prologue, **options)
@@ -524,7 +549,26 @@ def _execute(todo, spec, meta, store, summary, display, compute, retries, *, cli
         return
     n_workers = min(workers or available_cores(), len(todo))
     with start_local_cluster(n_workers) as cluster, Client(cluster) as own:
+        own.register_plugin(_make_quiet_plugin())
         _run_points(own, todo, spec, meta, store, summary, display, compute, retries)
+
+
+def _make_quiet_plugin():
+    """A worker plugin making local workers ignore Ctrl-C: the terminal sends SIGINT to
+    the whole process group, and the scan process shuts its own cluster down anyway."""
+    from distributed.diagnostics.plugin import WorkerPlugin
+
+    class IgnoreInterrupt(WorkerPlugin):
+        name = "lowfold-ignore-interrupt"
+
+        def setup(self, worker):
+            import signal
+            import threading
+
+            if threading.current_thread() is threading.main_thread():
+                signal.signal(signal.SIGINT, signal.SIG_IGN)
+
+    return IgnoreInterrupt()
 
 
 def format_summary(summary: ScanSummary) -> str:
