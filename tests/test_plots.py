@@ -223,3 +223,18 @@ def test_parse_where():
         parse_where(["size"])
     with pytest.raises(ModelError, match="size must look like"):
         parse_where(["size=big"])
+
+
+def test_plot_results_couplings_with_exact_gap_string(tmp_path):
+    from lowfold.plots import plot_results
+    from lowfold.store import ResultStore
+
+    store = ResultStore(tmp_path / "res")
+    for U in U_VALUES:
+        store.put(dimer_derive(U))
+    plot_results(tmp_path / "res", kind="couplings", x="t/U", exact_levels="0,1",
+                 output=tmp_path / "c.svg")
+    assert ET.parse(tmp_path / "c.svg").getroot().tag.endswith("svg")
+    with pytest.raises(ModelError, match="two level indices"):
+        plot_results(tmp_path / "res", kind="couplings", x="t/U", exact_levels="0",
+                     output=tmp_path / "c.svg")

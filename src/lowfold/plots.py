@@ -545,7 +545,7 @@ def plot_results(
     quantity: str | None = None,
     orders: Sequence[int] | None = None,
     unit: str | None = None,
-    exact_levels: tuple[int, int] | None = None,
+    exact_levels: tuple[int, int] | str | None = None,
     series: str | os.PathLike | None = None,
     levels: int | None = None,
     variable: str = "L",
@@ -569,7 +569,7 @@ def plot_results(
     quantity : str, optional
         Quantity selector (defaults: ``coupling:exchange`` for couplings, ``error`` for
         errors, ``energy`` for finite-size).
-    exact_levels : (i, j), optional
+    exact_levels : (i, j) or "i,j", optional
         Exact reference ``E_j - E_i`` for couplings and errors.
     series : path, optional
         Results directory of a series scan to overlay on a levels plot.
@@ -591,6 +591,12 @@ def plot_results(
     if kind != "finite-size" and not x:
         raise ModelError(f"a {kind} plot needs an x axis (a parameter, e.g. 'U' or 't/U')")
     records = load_results(results)
+    if isinstance(exact_levels, str):
+        try:
+            first, second = (int(v) for v in exact_levels.split(","))
+        except ValueError:
+            raise ModelError(f"--exact-gap: expected two level indices I,J, got {exact_levels!r}") from None
+        exact_levels = (first, second)
     exact = exact_gap(*exact_levels) if exact_levels is not None else None
     summary: dict[str, Any] = {"kind": kind, "output": os.fspath(output), "points": len(records)}
     if kind == "couplings":
