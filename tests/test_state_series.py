@@ -662,8 +662,6 @@ def test_exact_eigenvalue_is_the_adiabatically_connected_level(load, state):
         assert int(np.sum(d < d[k])) != int(np.sum(whole < in_sector - 1e-9))
 
 
-@pytest.mark.xfail(strict=True, reason="above DENSE_FOLLOW_LIMIT state_series reports the "
-                   "lowest eigenvalue of the whole H, whatever the reference's S^z sector")
 def test_exact_eigenvalue_on_a_large_basis_stays_in_the_reference_sector(load):
     # Twelve spins (4096 states, above the dense-following limit): H0 = -sum S^z, V = sum
     # S.S.  The all-up state is an exact eigenstate of H for every lambda, at
@@ -678,9 +676,7 @@ def test_exact_eigenvalue_on_a_large_basis_stays_in_the_reference_sector(load):
     assert result.exact == pytest.approx(level, abs=1e-10)
 
 
-@pytest.mark.parametrize("b", [0.2, pytest.param(0.05, marks=pytest.mark.xfail(
-    strict=True, reason="20 fixed lambda steps of overlap following jump a narrow avoided "
-    "crossing onto the diabatic level"))])
+@pytest.mark.parametrize("b", [0.2, 0.05])
 def test_exact_eigenvalue_of_ground_state_through_avoided_crossing(load, b):
     # Two levels and no symmetry: the ground state of H0 grows into the ground state of H
     # for every lambda (non-crossing rule, von Neumann and Wigner 1929), however narrow the
@@ -761,8 +757,6 @@ def test_sweep_two_level_avoided_crossing(load):
     np.testing.assert_allclose(levels, np.stack([-gaps / 2, gaps / 2], axis=1), atol=1e-12)
 
 
-@pytest.mark.xfail(strict=True, reason="avoided crossings are sought only between neighbouring "
-                   "levels of an S^z block; the uncoupled triplet between them hides it")
 def test_sweep_hubbard_dimer_avoided_crossing(load):
     # Offset dimer with a tilt +lambda n_0: the pair on dot 0 (diagonal -3 + 2 lambda) meets
     # the singlet with one electron per dot (-2 + lambda) at lambda = 1, and the hopping

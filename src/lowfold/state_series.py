@@ -30,8 +30,7 @@ from .perturbation.series import SeriesResult, rayleigh_schrodinger, rayleigh_sc
 __all__ = ["StateSeries", "Sweep", "state_series", "parse_sweep", "MAX_ORDER"]
 
 MAX_ORDER = 200
-DENSE_FOLLOW_LIMIT = 2500     # follow the exact level by dense diagonalisation up to here
-FOLLOW_STEPS = 20
+DENSE_FOLLOW_LIMIT = 600      # follow the exact level by dense diagonalisation up to here
 
 
 @dataclass(eq=False)
@@ -193,7 +192,7 @@ def state_series(model: Model, order: int | None = None, *, state: str | None = 
         warnings.append("H0 is not diagonal: the series used iterative solves; no list of "
                         "intermediate states")
     say("exact eigenvalue")
-    exact = _exact_followed(h0, v, psi0, warnings)
+    exact = _exact_followed(model, basis, h0, v, psi0, warnings)
     pade, ratio = _convergence(result.energies, warnings)
     out = StateSeries(model, reference, result, exact, pade, ratio, validity, first, second,
                       warnings=warnings)
@@ -251,27 +250,55 @@ def _h0_eigenstate(h0, v, state):
     return psi0, float(e0), f"level:{k}", float(np.linalg.norm(off) / spacing)
 
 
-def _exact_followed(h0, v, psi0, warnings) -> float | None:
-    """Exact eigenvalue of H0 + V grown adiabatically from ``psi0`` (lambda from 0 to 1)."""
-    n = h0.shape[0]
-    if n <= DENSE_FOLLOW_LIMIT:
-        h0_dense, v_dense = h0.toarray(), v.toarray()
-        vector = psi0
-        value = None
-        for lam in np.linspace(0, 1, FOLLOW_STEPS + 1)[1:]:
-            values, vectors = la.eigh(h0_dense + lam * v_dense)
-            k = int(np.argmax(np.abs(vectors.conj().T @ vector)))
-            value, vector = float(values[k]), vectors[:, k]
-        return value
-    if abs(np.vdot(psi0, h0 @ psi0) - lowest_eigenpairs(h0, 1)[0][0]) > 1e-9:
-        warnings.append("exact comparison skipped: following an excited state needs a space "
+def _exact_followed(model, basis, h0, v, psi0, warnings) -> float | None:
+    """Exact eigenvalue of H0 + V grown adiabatically from ``psi0`` (lambda from 0 to 1),
+    within the reference's S^z block.  Small blocks: dense diagonalisation along lambda with
+    the step halved wherever the overlap with the previous vector drops (narrow avoided
+    crossings are followed adiabatically).  Large blocks: Lanczos for the lowest level,
+    valid when the reference is the lowest H0 state of its block."""
+    idx = _reference_block(model, basis, psi0)
+    h0b, vb, ref = h0[idx][:, idx], v[idx][:, idx], psi0[idx]
+    if idx.size <= DENSE_FOLLOW_LIMIT:
+        return _follow_dense(h0b.toarray(), vb.toarray(), ref)
+    e_ref = float(np.real(np.vdot(ref, h0b @ ref)))
+    if e_ref > lowest_eigenpairs(h0b, 1)[0][0] + 1e-9 * max(1.0, abs(e_ref)):
+        warnings.append("exact comparison skipped: following an excited state needs a block "
                         f"of at most {DENSE_FOLLOW_LIMIT} states")
         return None
     try:
-        return float(lowest_eigenpairs(h0 + v, 1)[0][0])
+        values, vectors = lowest_eigenpairs(h0b + vb, 1, vectors=True)
     except LowfoldError as exc:
         warnings.append(f"exact comparison skipped: {exc}")
         return None
+    if abs(np.vdot(ref, vectors[:, 0])) < 0.1:
+        warnings.append("the exact ground state of its block has little overlap with the "
+                        "reference state: a level crossing may lie between lambda = 0 and 1")
+    return float(values[0])
+
+
+def _reference_block(model, basis, psi0) -> np.ndarray:
+    """Indices of the S^z block that holds the reference state (all states if none)."""
+    support = np.flatnonzero(np.abs(psi0) > 1e-12)
+    for idx in _sector_blocks(model, basis)[1]:
+        if np.all(np.isin(support, idx)):
+            return idx
+    return np.arange(basis.size)
+
+
+def _follow_dense(h0, v, vector, *, max_step=0.05, min_step=1e-5) -> float:
+    lam, step, value = 0.0, max_step, float(np.real(np.vdot(vector, h0 @ vector)))
+    while lam < 1.0 - 1e-12:
+        step = min(step, 1.0 - lam)
+        values, vectors = la.eigh(h0 + (lam + step) * v)
+        overlaps = np.abs(vectors.conj().T @ vector)
+        k = int(np.argmax(overlaps))
+        if overlaps[k] < 0.99 and step > min_step:
+            step /= 2
+            continue
+        lam += step
+        value, vector = float(values[k]), vectors[:, k]
+        step = min(2 * step, max_step)
+    return value
 
 
 def _convergence(energies, warnings):
@@ -294,7 +321,7 @@ def _convergence(energies, warnings):
 
 # --------------------------------------------------------------------------- sweep
 
-def _sector_blocks(model: Model, basis: Basis, h0, v):
+def _sector_blocks(model: Model, basis: Basis):
     """Split the basis into S^z blocks when H0 and V conserve S^z (labels, index arrays)."""
     h_all = compile_operator(model)
     if not (model.site.has_spin and h_all.conserves_sz and model.sector.sz is None):
@@ -306,10 +333,11 @@ def _sector_blocks(model: Model, basis: Basis, h0, v):
 
 
 def _sweep(model, basis, h0, v, psi0, result, lambdas) -> Sweep:
-    names, blocks = _sector_blocks(model, basis, h0, v)
+    names, blocks = _sector_blocks(model, basis)
     k_total = min(6, basis.size)
-    rows, labels, followed = [], [], []
+    rows, labels, followed, coupled_gaps = [], [], [], []
     vector = psi0
+    v_scale = max(abs(v).max() if v.nnz else 0.0, 1e-300)
     for lam in lambdas:
         h = (h0 + lam * v).tocsr()
         values, owners, vecs = [], [], []
@@ -326,13 +354,15 @@ def _sweep(model, basis, h0, v, psi0, result, lambdas) -> Sweep:
         best = int(np.argmax(overlaps))
         followed.append(values[best])
         vector = vecs[:, best]
-        rows.append(np.array(values)[order])
+        energies, vecs = np.array(values)[order], vecs[:, order]
+        rows.append(energies)
         labels.append(np.array(owners)[order])
+        coupled_gaps.append(_coupled_gaps(energies, np.abs(vecs.conj().T @ (v @ vecs)), v_scale))
     levels, level_sectors = np.array(rows), np.array(labels)
     series = {n: np.array([result.energy(l, order=n) for l in lambdas])
               for n in range(2, result.order + 1, 2)} or {result.order: np.array([result.energy(l) for l in lambdas])}
     sweep = Sweep(np.asarray(lambdas), levels, names, level_sectors, np.array(followed), series)
-    _mark_crossings(sweep)
+    _mark_crossings(sweep, coupled_gaps)
     scale = result.smallest_denominator if np.isfinite(result.smallest_denominator) else 1.0
     for n, values in series.items():
         bad = np.flatnonzero(np.abs(values - sweep.followed) > 0.01 * abs(scale))
@@ -341,23 +371,36 @@ def _sweep(model, basis, h0, v, psi0, result, lambdas) -> Sweep:
     return sweep
 
 
-def _mark_crossings(sweep: Sweep) -> None:
-    """Avoided crossings: local minima of the gap between neighbouring levels of one
-    sector; true crossings: neighbouring levels of different sectors swapping order."""
+def _coupled_gaps(energies, coupling, scale) -> list[tuple[float, int]]:
+    """For each level, the gap to the nearest higher level that V couples to it."""
+    out = []
+    for j in range(energies.size):
+        partners = [k for k in range(j + 1, energies.size) if coupling[j, k] > 1e-8 * scale]
+        out.append((energies[partners[0]] - energies[j], partners[0]) if partners else (np.inf, -1))
+    return out
+
+
+def _mark_crossings(sweep: Sweep, coupled_gaps) -> None:
+    """Avoided crossings: pronounced local minima, in lambda, of the gap between a level and
+    the nearest higher level that V couples to it (an uncoupled level running between them
+    does not hide the repulsion); true crossings: the lowest levels of two S^z sectors
+    changing order."""
     lam, levels, owners = sweep.lambdas, sweep.levels, sweep.level_sectors
-    n_lam, k = levels.shape
-    for s in range(len(sweep.sectors)):
-        own = [levels[i][owners[i] == s] for i in range(n_lam)]
-        depth = min(len(o) for o in own)
-        for j in range(depth - 1):
-            gaps = np.array([o[j + 1] - o[j] for o in own])
-            tol = 1e-8 * max(1.0, float(np.abs(levels).max()))
-            for i in range(1, n_lam - 1):
-                # a pronounced dip on both sides, not a pair of degenerate levels
-                if tol < gaps[i] < 0.5 * min(gaps[:i].max(), gaps[i + 1:].max()) \
-                        and gaps[i] < gaps[i - 1] and gaps[i] <= gaps[i + 1]:
-                    sweep.avoided.append({"lambda": float(lam[i]), "gap": float(gaps[i]),
-                                          "levels": [j, j + 1], "sector": sweep.sectors[s]})
+    n_lam = lam.size
+    tol = 1e-8 * max(1.0, float(np.abs(levels).max()))
+    for j in range(levels.shape[1]):
+        gaps = np.array([coupled_gaps[i][j][0] for i in range(n_lam)])
+        for i in range(1, n_lam - 1):
+            if not np.isfinite(gaps[i]):
+                continue
+            left = gaps[:i][np.isfinite(gaps[:i])]
+            right = gaps[i + 1:][np.isfinite(gaps[i + 1:])]
+            if left.size and right.size and tol < gaps[i] <= gaps[i + 1] and gaps[i] < gaps[i - 1] \
+                    and gaps[i] < 0.5 * min(left.max(), right.max()):
+                partner = coupled_gaps[i][j][1]
+                sweep.avoided.append({"lambda": float(lam[i]), "gap": float(gaps[i]),
+                                      "levels": [j, int(partner)],
+                                      "sector": sweep.sectors[owners[i, j]]})
     lowest = [np.array([levels[i][owners[i] == s].min() if np.any(owners[i] == s) else np.nan
                         for i in range(n_lam)]) for s in range(len(sweep.sectors))]
     tol = 1e-9 * max(1.0, float(np.nanmax(np.abs(levels))))
