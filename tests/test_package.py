@@ -19,8 +19,11 @@ import lowfold
 
 PACKAGE = Path(lowfold.__file__).parent
 
+# DESIGN.md's layout, with lowfold's extensions (README "Layout"): lanczos beside exact,
+# derive and state_series above readout, the scan support modules before scan.
 LAYERS = ("errors", "lattice", "sites", "basis", "terms", "model", "modelfile", "hamiltonian",
-          "exact", "perturbation", "readout", "tasks", "scan", "plots", "cli")
+          "lanczos", "exact", "perturbation", "readout", "derive", "state_series", "tasks",
+          "scanfile", "store", "extrapolate", "scan", "plots", "cli")
 
 
 def source_files(folder: Path = PACKAGE):

@@ -243,6 +243,56 @@ def series(model: Path = typer.Argument(..., help="model file (TOML) with a [per
 
 
 @app.command()
+def scan(scan_file: Path = typer.Argument(..., metavar="SCAN", help="scan file (TOML)"),
+         scheduler: Optional[str] = typer.Option(None, "--scheduler",
+                                                 help="address (or scheduler JSON file) of a running Dask scheduler"),
+         out: Optional[Path] = typer.Option(None, "--out", help="results directory (default: next to the scan file)"),
+         workers: Optional[int] = typer.Option(None, "--workers", help="local workers (default: one per core)"),
+         retry_failed: bool = typer.Option(False, "--retry-failed", help="recompute points stored as errors"),
+         json_out: bool = typer.Option(False, "--json", help="print one JSON summary")):
+    """Run a parameter / size scan on Dask, storing every finished point as it completes."""
+    from .scan import format_summary, run_scan
+    summary = run_scan(scan_file, out=out, scheduler=scheduler, workers=workers,
+                       retry_failed=retry_failed, progress=False if json_out else None)
+    if json_out:
+        _emit_json(summary.to_dict())
+    else:
+        print(format_summary(summary))
+    if not summary.ok:
+        raise typer.Exit(1)
+
+
+@app.command()
+def plot(results: Path = typer.Argument(..., help="results directory of a scan"),
+         kind: str = typer.Option(..., "--kind", help="couplings | errors | finite-size | levels"),
+         output: Path = typer.Option(..., "--output", "-o", help="image file (.png, .svg, .pdf)"),
+         x: Optional[str] = typer.Option(None, "--x", help="x axis: a parameter or ratio such as t/U"),
+         quantity: Optional[str] = typer.Option(None, "--quantity", help="e.g. coupling:exchange:0-1"),
+         order: Optional[list[int]] = typer.Option(None, "--order", help="orders to draw (repeatable)"),
+         unit: Optional[str] = typer.Option(None, "--unit", help="parameter used as the energy unit"),
+         where: Optional[list[str]] = typer.Option(None, "--where", help="AXIS=VALUE slice (repeatable)"),
+         exact_gap: Optional[str] = typer.Option(None, "--exact-gap", help="exact reference E_J - E_I as I,J"),
+         series_dir: Optional[Path] = typer.Option(None, "--series", help="series results to overlay (levels)"),
+         levels: Optional[int] = typer.Option(None, "--levels", help="number of exact levels (levels)"),
+         variable: str = typer.Option("L", "--variable", help="finite size variable: L or N"),
+         degree: int = typer.Option(1, "--degree", help="polynomial degree of the finite-size fit"),
+         power: float = typer.Option(1.0, "--power", help="fit in 1/L^power"),
+         per_site: bool = typer.Option(False, "--per-site", help="divide by the number of sites"),
+         title: Optional[str] = typer.Option(None, "--title", help="figure title"),
+         json_out: bool = typer.Option(False, "--json", help="print one JSON object")):
+    """Draw a figure from scan results (see docs/scans.md)."""
+    from .plots import parse_where, plot_results
+    info = plot_results(results, kind=kind, output=output, x=x, quantity=quantity,
+                        orders=order or None, unit=unit, where=parse_where(where or []),
+                        exact_levels=exact_gap, series=series_dir, levels=levels,
+                        variable=variable, degree=degree, power=power, per_site=per_site,
+                        title=title)
+    if json_out:
+        return _emit_json(info)
+    print(f"figure written to {output}")
+
+
+@app.command()
 def demo(json_out: bool = typer.Option(False, "--json", help="print one JSON object")):
     """Run the main job on a built-in example: four quantum dots in a row."""
     path = resources.files("lowfold") / "data" / "quantum_dots.toml"
