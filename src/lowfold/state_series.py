@@ -335,7 +335,7 @@ def _sector_blocks(model: Model, basis: Basis):
 def _sweep(model, basis, h0, v, psi0, result, lambdas) -> Sweep:
     names, blocks = _sector_blocks(model, basis)
     k_total = min(6, basis.size)
-    rows, labels, followed, coupled_gaps = [], [], [], []
+    rows, labels, followed, coupled_gaps, sector_lowest = [], [], [], [], []
     vector = psi0
     v_scale = max(abs(v).max() if v.nnz else 0.0, 1e-300)
     for lam in lambdas:
@@ -349,6 +349,7 @@ def _sweep(model, basis, h0, v, psi0, result, lambdas) -> Sweep:
             full[idx] = vec
             values.extend(e.tolist()), owners.extend([b] * e.size), vecs.append(full)
         vecs = np.hstack(vecs)
+        sector_lowest.append([min(e for e, o in zip(values, owners) if o == b) for b in range(len(blocks))])
         order = np.argsort(values)[:k_total]
         overlaps = np.abs(vecs.conj().T @ vector)
         best = int(np.argmax(overlaps))
@@ -362,7 +363,7 @@ def _sweep(model, basis, h0, v, psi0, result, lambdas) -> Sweep:
     series = {n: np.array([result.energy(l, order=n) for l in lambdas])
               for n in range(2, result.order + 1, 2)} or {result.order: np.array([result.energy(l) for l in lambdas])}
     sweep = Sweep(np.asarray(lambdas), levels, names, level_sectors, np.array(followed), series)
-    _mark_crossings(sweep, coupled_gaps)
+    _mark_crossings(sweep, coupled_gaps, np.array(sector_lowest))
     scale = result.smallest_denominator if np.isfinite(result.smallest_denominator) else 1.0
     for n, values in series.items():
         bad = np.flatnonzero(np.abs(values - sweep.followed) > 0.01 * abs(scale))
@@ -380,7 +381,7 @@ def _coupled_gaps(energies, coupling, scale) -> list[tuple[float, int]]:
     return out
 
 
-def _mark_crossings(sweep: Sweep, coupled_gaps) -> None:
+def _mark_crossings(sweep: Sweep, coupled_gaps, sector_lowest: np.ndarray) -> None:
     """Avoided crossings: pronounced local minima, in lambda, of the gap between a level and
     the nearest higher level that V couples to it (an uncoupled level running between them
     does not hide the repulsion); true crossings: the lowest levels of two S^z sectors
@@ -401,15 +402,14 @@ def _mark_crossings(sweep: Sweep, coupled_gaps) -> None:
                 sweep.avoided.append({"lambda": float(lam[i]), "gap": float(gaps[i]),
                                       "levels": [j, int(partner)],
                                       "sector": sweep.sectors[owners[i, j]]})
-    lowest = [np.array([levels[i][owners[i] == s].min() if np.any(owners[i] == s) else np.nan
-                        for i in range(n_lam)]) for s in range(len(sweep.sectors))]
-    tol = 1e-9 * max(1.0, float(np.nanmax(np.abs(levels))))
+    top = levels[:, -1]                       # the highest level shown at each lambda
     for a in range(len(sweep.sectors)):
         for b in range(a + 1, len(sweep.sectors)):
-            diff = lowest[a] - lowest[b]
+            diff = sector_lowest[:, a] - sector_lowest[:, b]
             signs = np.where(np.abs(diff) > tol, np.sign(diff), 0)
             nonzero = np.flatnonzero(signs)
             for i0, i1 in zip(nonzero[:-1], nonzero[1:]):
-                if signs[i0] != signs[i1]:
+                low = max(sector_lowest[i0, a], sector_lowest[i0, b])
+                if signs[i0] != signs[i1] and low <= top[i0] + tol:
                     sweep.crossings.append({"lambda": float(0.5 * (lam[i0] + lam[i1])),
                                             "sectors": [sweep.sectors[a], sweep.sectors[b]]})
