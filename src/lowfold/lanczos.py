@@ -128,13 +128,16 @@ class _Space:
             w = np.array(w, dtype=self.dtype, order="C")
         return w
 
-    def add(self, x: np.ndarray, y: np.ndarray, a) -> None:
-        """``y += a x`` in place."""
+    def _chunks(self):
         for start in range(0, self.n, self.CHUNK):
             stop = min(start + self.CHUNK, self.n)
-            part = self.scratch[: stop - start]
-            np.multiply(x[start:stop], a, out=part)
-            np.add(y[start:stop], part, out=y[start:stop])
+            yield slice(start, stop), self.scratch[: stop - start]
+
+    def add(self, x: np.ndarray, y: np.ndarray, a) -> None:
+        """``y += a x`` in place."""
+        for part, tmp in self._chunks():
+            np.multiply(x[part], a, out=tmp)
+            np.add(y[part], tmp, out=y[part])
 
     def dot(self, x: np.ndarray, y: np.ndarray):
         """``x^H y``."""
@@ -145,7 +148,7 @@ class _Space:
         return complex(real, imag)
 
     def norm(self, w: np.ndarray) -> float:
-        return float(np.sqrt(max(self.dot(w, w).real, 0.0)))
+        return float(np.sqrt(max(np.real(self.dot(w, w)), 0.0)))
 
     def deflate(self, w: np.ndarray) -> None:
         """Remove the locked directions from ``w`` (twice is enough: Kahan's rule, in
@@ -153,6 +156,44 @@ class _Space:
         for _ in range(2 if self.locked else 0):
             for y in self.locked:
                 self.add(y, w, -self.dot(y, w))
+
+    def three_term(self, w, v, v_prev, beta_prev) -> tuple[float, float]:
+        """``w <- w - beta_prev v_prev - alpha v`` with ``alpha = v^H (w - beta_prev v_prev)``,
+        then deflated; returns ``(alpha, ||w||)``.  Two sweeps over memory, chunk by chunk."""
+        alpha = 0.0
+        for part, tmp in self._chunks():
+            if v_prev is not None:
+                np.multiply(v_prev[part], beta_prev, out=tmp)
+                np.subtract(w[part], tmp, out=w[part])
+            alpha += np.real(self.dot(v[part], w[part]))
+        squared = 0.0
+        for part, tmp in self._chunks():
+            np.multiply(v[part], alpha, out=tmp)
+            np.subtract(w[part], tmp, out=w[part])
+            if not self.locked:
+                squared += np.real(self.dot(w[part], w[part]))
+        if self.locked:
+            self.deflate(w)
+            return float(alpha), self.norm(w)
+        return float(alpha), float(np.sqrt(max(squared, 0.0)))
+
+    def replay(self, w, v, v_prev, beta_prev, alpha, beta, y, coef) -> None:
+        """Second-pass step with known coefficients: ``w <- (w - beta_prev v_prev - alpha v)
+        / beta`` (deflated), then ``y += coef w``; one sweep without locked vectors."""
+        for part, tmp in self._chunks():
+            if v_prev is not None:
+                np.multiply(v_prev[part], beta_prev, out=tmp)
+                np.subtract(w[part], tmp, out=w[part])
+            np.multiply(v[part], alpha, out=tmp)
+            np.subtract(w[part], tmp, out=w[part])
+            if not self.locked:
+                np.multiply(w[part], 1.0 / beta, out=w[part])
+                np.multiply(w[part], coef, out=tmp)
+                np.add(y[part], tmp, out=y[part])
+        if self.locked:
+            self.deflate(w)
+            w *= 1.0 / beta
+            self.add(w, y, coef)
 
 
 def _lowest_ritz(alphas, betas):
@@ -179,12 +220,7 @@ def _first_pass(space: _Space, start: np.ndarray, *, tol: float, maxiter: int) -
     theta, ritz, residual = np.nan, np.ones(1), np.inf
     for _ in range(maxiter):
         w = space.apply(v)
-        if v_prev is not None:
-            space.add(v_prev, w, -betas[-1])
-        alpha = float(np.real(space.dot(v, w)))
-        space.add(v, w, -alpha)
-        space.deflate(w)
-        beta = space.norm(w)
+        alpha, beta = space.three_term(w, v, v_prev, betas[-1] if betas else 0.0)
         alphas.append(alpha)
         betas.append(beta)
         theta, ritz, norm_t = _lowest_ritz(alphas, betas)
@@ -210,12 +246,8 @@ def _second_pass(space: _Space, start: np.ndarray, run: _Run) -> np.ndarray:
     v = start
     for j in range(m - 1):
         w = space.apply(v)
-        if v_prev is not None:
-            space.add(v_prev, w, -run.betas[j - 1])
-        space.add(v, w, -run.alphas[j])
-        space.deflate(w)
-        w *= 1.0 / run.betas[j]
-        space.add(w, y, run.ritz[j + 1])
+        space.replay(w, v, v_prev, run.betas[j - 1] if j else 0.0, run.alphas[j],
+                     run.betas[j], y, run.ritz[j + 1])
         v_prev, v = v, w
     space.deflate(y)
     y *= 1.0 / space.norm(y)
@@ -251,7 +283,7 @@ def _level(space: _Space, make_start, *, want_vector: bool, tol: float, maxiter:
             return run.energy, None, run.residual, run.alphas.size
         y = _second_pass(space, _prepared(space, start_of()), run)
         r = space.apply(y)
-        energy = float(np.real(space.dot(y, r)))           # Rayleigh quotient of the rebuilt vector
+        energy = float(np.real(space.dot(y, r)))     # Rayleigh quotient of the rebuilt vector
         space.add(y, r, -energy)
         space.deflate(r)
         residual = space.norm(r)
