@@ -295,7 +295,7 @@ def test_interrupted_scan_resumes_without_recomputing(tmp_path, client):
         sys.path.insert(0, {str(TESTS)!r})
         import test_scan
         from lowfold.scan import run_scan
-        compute = functools.partial(test_scan.counting_compute, counter=sys.argv[1], delay=0.4)
+        compute = functools.partial(test_scan.counting_compute, counter=sys.argv[1], delay=1.5)
         summary = run_scan({str(scan)!r}, out={str(out)!r}, scheduler={address!r},
                            compute=compute, progress=False)
         print(summary.computed)
