@@ -15,12 +15,18 @@ Fixed-sum sectors are ranked by the combinatorial number system generalised to a
 state is the number of sector states that are smaller integers.  For radix 2 this is the
 classic ``sum_k C(position_k, k)`` ranking of fixed-popcount bit strings.  Every basis is
 in ascending integer order, so all kinds agree with bisection in the sorted state list.
+
+Radix-2 fixed-sum ranks have a faster form: the rank ``sum_j C(p_j, j)`` over the set bits
+``p_1 < p_2 < ...`` splits into chunks of ``CHUNK`` bits, and :func:`rank_tables` tabulates
+each chunk's share for every chunk value and number of ones below the chunk, so a rank is
+one table read and one popcount per chunk (:func:`lookup_fast`).
 """
 
 import numpy as np
 from numba import njit, prange
 
 FULL, FIXED_SUM, TWO_SPECIES, SORTED = 0, 1, 2, 3
+CHUNK = 8
 
 
 def weight_table(n_slots, radix, total):
@@ -133,4 +139,79 @@ def enumerate_states(params, weights, size):
             low = _unrank_fixed_sum(i % size_a, 0, n_a, radix, params[3], weights)
             high = _unrank_fixed_sum(i // size_a, n_a, params[4], radix, params[5], weights)
             out[i] = low + high
+    return out
+
+
+def rank_tables(n_bits, total):
+    """Chunk tables of the radix-2 fixed-popcount rank (int64, shape
+    ``(chunks, 2**CHUNK, total + 1)``): ``t[c, v, b]`` is the share of rank of the bits
+    ``v`` of chunk ``c`` when ``b`` ones lie below the chunk."""
+    from math import comb
+
+    chunks = max((n_bits + CHUNK - 1) // CHUNK, 1)
+    t = np.zeros((chunks, 1 << CHUNK, total + 1), dtype=np.int64)
+    for c in range(chunks):
+        width = min(CHUNK, n_bits - c * CHUNK)
+        for v in range(1 << max(width, 0)):
+            for b in range(total + 1):
+                r, j = 0, b
+                for i in range(width):
+                    if (v >> i) & 1:
+                        j += 1
+                        r += comb(c * CHUNK + i, j)
+                t[c, v, b] = r if j <= total else 0
+    return t
+
+
+@njit(cache=True, inline="always")
+def _popcount(x):
+    x = x - ((x >> 1) & 0x5555555555555555)
+    x = (x & 0x3333333333333333) + ((x >> 2) & 0x3333333333333333)
+    x = (x + (x >> 4)) & 0x0F0F0F0F0F0F0F0F
+    return (x * 0x0101010101010101 & 0xFFFFFFFFFFFFFFFF) >> 56
+
+
+@njit(cache=True, inline="always")
+def _rank_bits(bits, n_bits, total, table):
+    """Rank of ``bits`` (``n_bits`` wide) among bit strings with ``total`` ones, or -1."""
+    if _popcount(bits) != total:
+        return -1
+    rank = 0
+    below = 0
+    c = 0
+    offset = 0
+    while offset < n_bits:
+        v = (bits >> offset) & ((1 << CHUNK) - 1)
+        rank += table[c, v, below]
+        below += _popcount(v)
+        offset += CHUNK
+        c += 1
+    return rank
+
+
+@njit(cache=True)
+def lookup_fast(state, params, table_a, table_b, weights, sorted_states):
+    """:func:`lookup_one` with chunk-table ranks for radix-2 FIXED_SUM and TWO_SPECIES
+    bases (``table_a``, ``table_b`` from :func:`rank_tables`; unused for other kinds)."""
+    kind = params[0]
+    if params[1] != 2 or (kind != FIXED_SUM and kind != TWO_SPECIES):
+        return lookup_one(state, params, weights, sorted_states)
+    n_a = params[2]
+    if state < 0 or (state >> (n_a + params[4])) != 0:
+        return -1
+    low = state & ((np.int64(1) << n_a) - 1)
+    rank_a = _rank_bits(low, n_a, params[3], table_a)
+    if rank_a < 0 or kind == FIXED_SUM:
+        return rank_a
+    rank_b = _rank_bits(state >> n_a, params[4], params[5], table_b)
+    if rank_b < 0:
+        return -1
+    return rank_b * params[6] + rank_a
+
+
+@njit(cache=True, parallel=True)
+def lookup_many_fast(states, params, table_a, table_b, weights, sorted_states):
+    out = np.empty(states.shape[0], dtype=np.int64)
+    for i in prange(states.shape[0]):
+        out[i] = lookup_fast(states[i], params, table_a, table_b, weights, sorted_states)
     return out
