@@ -19,6 +19,9 @@ the lowest eigenvalue.  Variants:
 * ``csr-lanczos``: lowfold CSR matrix and ``lowfold.lanczos.lanczos_lowest``;
 * ``mf-lanczos``: lowfold matrix-free operator and ``lanczos_lowest``.
 
+lowfold builds through its ``route="auto"`` (species split for the Hubbard ring, bit-mask
+strings for the Heisenberg ring); ``--route general`` measures the any-radix kernels instead.
+
 The machines are shared and noisy: compare the ratios of one run, not times across runs.
 Results go to ``benchmarks/results/bench_build.json``.
 
@@ -29,6 +32,7 @@ Usage::
     python benchmarks/bench_build.py --sizes hubbard=10,12 heisenberg=20
     python benchmarks/bench_build.py --skip-quspin --variants csr-lanczos
     python benchmarks/bench_build.py --l14           # also the 11.8 M-state matrix-free run
+    python benchmarks/bench_build.py --route general # lowfold's any-radix kernels
 """
 
 from __future__ import annotations
@@ -121,16 +125,16 @@ class Counted:
                                        dtype=inner.dtype)
 
 
-def lowfold_build(kind: str, L: int, form: str):
+def lowfold_build(kind: str, L: int, form: str, route: str = "auto"):
     """(states, nnz or None, operator) built through lowfold's public functions."""
     import lowfold
 
     model = lowfold_model(kind, L)
     basis = lowfold.build_basis(model)
     if form == "csr":
-        matrix = lowfold.hamiltonian_matrix(model, basis, check=False)
+        matrix = lowfold.hamiltonian_matrix(model, basis, check=False, route=route)
         return basis.size, int(matrix.nnz), matrix
-    operator = lowfold.hamiltonian_operator(model, basis, check=False)
+    operator = lowfold.hamiltonian_operator(model, basis, check=False, route=route)
     return basis.size, None, operator
 
 
@@ -167,7 +171,7 @@ def warm_up(task: dict) -> None:
     if task["tool"] == "quspin":
         _, matrix = quspin_build(task["kind"], L)
     else:
-        _, _, matrix = lowfold_build(task["kind"], L, task["form"])
+        _, _, matrix = lowfold_build(task["kind"], L, task["form"], task.get("route", "auto"))
     matrix @ np.ones(matrix.shape[0])
     solve(matrix, task["solver"], 1, 0)
 
@@ -185,7 +189,8 @@ def child(task: dict) -> dict:
         states, matrix = quspin_build(task["kind"], task["L"])
         operator, nnz = matrix, int(matrix.nnz)
     else:
-        states, nnz, operator = lowfold_build(task["kind"], task["L"], task["form"])
+        states, nnz, operator = lowfold_build(task["kind"], task["L"], task["form"],
+                                              task.get("route", "auto"))
     built = time.perf_counter()
     energies, matvecs = solve(operator, task["solver"], task["levels"], task["seed"])
     done = time.perf_counter()
@@ -231,11 +236,11 @@ def run_child(task: dict, env: dict, timeout: float) -> dict:
 
 
 def tasks_for(kind: str, L: int, variants, *, quspin: bool, levels: int, seed: int,
-              mf_max_states: int) -> list[dict]:
+              mf_max_states: int, route: str = "auto") -> list[dict]:
     from math import comb
 
     states = comb(L, L // 2) ** 2 if kind == "hubbard" else comb(L, L // 2)
-    base = {"kind": kind, "L": L, "levels": levels, "seed": seed}
+    base = {"kind": kind, "L": L, "levels": levels, "seed": seed, "route": route}
     tasks = []
     if quspin:
         tasks.append(dict(base, tool="quspin", variant="quspin", form="csr",
@@ -384,6 +389,8 @@ def main(argv=None) -> int:
                         help="also the L = 14 Hubbard ring (11.8 M states), matrix-free")
     parser.add_argument("--variants", default=",".join(VARIANTS),
                         help=f"comma-separated lowfold variants ({', '.join(VARIANTS)})")
+    parser.add_argument("--route", default="auto", choices=("auto", "split", "mask", "general"),
+                        help="lowfold's build route (default: auto)")
     parser.add_argument("--levels", type=int, default=1, help="lowest levels to compute")
     parser.add_argument("--threads", type=int, default=os.cpu_count() or 1,
                         help="NUMBA_NUM_THREADS and OMP_NUM_THREADS of both tools")
@@ -414,10 +421,10 @@ def main(argv=None) -> int:
         for L in Ls:
             tasks += tasks_for(kind, L, variants, quspin=not args.skip_quspin,
                                levels=args.levels, seed=args.seed,
-                               mf_max_states=args.mf_max_states)
+                               mf_max_states=args.mf_max_states, route=args.route)
     if args.l14:
         tasks += tasks_for("hubbard", 14, ["mf-lanczos"], quspin=False, levels=args.levels,
-                           seed=args.seed, mf_max_states=10**9)
+                           seed=args.seed, mf_max_states=10**9, route=args.route)
     results = []
     for task in tasks:
         print(f"... {task['kind']} L={task['L']} {task['variant']}", file=sys.stderr, flush=True)
@@ -431,6 +438,7 @@ def main(argv=None) -> int:
     report = {
         "settings": {"threads": args.threads, "blas_threads": blas_threads,
                      "hubbard_U": HUBBARD_U, "levels": args.levels, "seed": args.seed,
+                     "route": args.route,
                      "variants": variants, "sizes": {k: list(v) for k, v in sizes.items()},
                      "l14": args.l14},
         "machine": {"cpus": os.cpu_count(), "platform": platform.platform(),
