@@ -25,7 +25,7 @@ from lowfold._kernels import operators as op_kernels
 from lowfold.basis import fixed_sum_basis, two_species_basis
 from lowfold.errors import ModelError
 from lowfold.hamiltonian import (compile_operator, count_nonzeros, operator_linear,
-                                 operator_matrix)
+                                 operator_matrix, prefers_matrix_free)
 
 ATOL = 1e-12
 
@@ -242,3 +242,22 @@ def test_routes_that_do_not_apply_are_refused():
             operator_matrix(op, basis, route=route)
     with pytest.raises(ModelError, match="unknown route"):
         operator_linear(op, basis, route="fast")
+
+
+def test_matrix_free_preferred_only_for_one_species_strings():
+    def electrons(terms):
+        return lowfold.parse_model({"title": "e", "site": {"type": "electron"},
+                                    "lattice": {"shape": "chain", "size": [4]},
+                                    "sector": {"particles": 4, "sz": 0}, "term": terms})
+
+    hubbard = electrons([{"type": "hopping", "strength": 1.0},
+                         {"type": "hubbard", "strength": 4.0}])
+    t_j = electrons([{"type": "hopping", "strength": 1.0},
+                     {"type": "exchange", "strength": 0.5}])
+    for model, expected in ((hubbard, True), (t_j, False)):
+        basis = lowfold.build_basis(model)
+        assert prefers_matrix_free(compile_operator(model), basis) is expected
+    spins = lowfold.parse_model({"title": "s", "site": {"type": "spin", "spin": 0.5},
+                                 "lattice": {"shape": "chain", "size": [4]},
+                                 "term": [{"type": "exchange", "strength": 1.0}]})
+    assert not prefers_matrix_free(compile_operator(spins), lowfold.build_basis(spins))

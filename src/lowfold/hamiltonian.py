@@ -48,7 +48,7 @@ PARALLEL_MIN_STATES = 20_000   # below this, thread start-up costs more than it 
 __all__ = ["kernel_threads", "CompiledOperator", "compile_operator", "build_basis", "hamiltonian_matrix",
            "hamiltonian_operator", "check_hermitian", "check_model_hermitian", "available_memory",
            "operator_matrix", "operator_linear", "count_nonzeros", "SpeciesSplit",
-           "species_split", "ROUTES"]
+           "species_split", "prefers_matrix_free", "ROUTES"]
 
 ROUTES = ("auto", "split", "mask", "general")
 
@@ -338,6 +338,15 @@ def species_split(op: CompiledOperator, basis: Basis) -> SpeciesSplit | None:
         grid = diag.reshape(sub_b.size, sub_a.size)
         grid += d_a[None, :].astype(diag.dtype) + d_b[:, None].astype(diag.dtype)
     return SpeciesSplit(t_a, t_b, diag, as_array["mixed"])
+
+
+def prefers_matrix_free(op: CompiledOperator, basis: Basis) -> bool:
+    """Whether the matrix-free product is the better choice at any size: a two-species
+    basis whose strings all act on one species (the split product is about as fast as a
+    CSR product and stores only the diagonal and the small species matrices)."""
+    if basis.params[0] != basis_kernels.TWO_SPECIES:
+        return False
+    return _species_strings(op, int(basis.params[2]))["mixed"].size == 0
 
 
 def _masks(op: CompiledOperator, strings: np.ndarray):
