@@ -148,9 +148,9 @@ def explicit_basis(states, n_slots: int, radix: int) -> Basis:
 
 def sector_totals(site: Site, n_sites: int, sector: Sector) -> list[tuple[int, int]] | None:
     """Digit-sum constraints of a sector as ``[(n_slots, total), ...]`` per species, or
-    ``None`` for the full space.  Raises ``ModelError`` for a sector that cannot exist.
-    Electrons with fixed S^z but free particle number return ``"sz-only"`` handling via
-    :func:`sector_basis`."""
+    ``None`` for the full space, or ``"sz-only"`` for electrons with fixed S^z and free
+    particle number (a union of two-species blocks).  Raises ``ModelError`` for a sector
+    that cannot exist."""
     particles, sz = sector.particles, sector.sz
     if sector.is_full:
         return None
@@ -180,7 +180,10 @@ def sector_totals(site: Site, n_sites: int, sector: Sector) -> list[tuple[int, i
     if sz is None:
         return [(2 * n_sites, particles)]
     if particles is None:
-        raise ModelError("for electron sites, sector.sz needs sector.particles too")
+        twice = Fraction(sz) * 2
+        if twice.denominator != 1 or abs(twice) > n_sites:
+            raise ModelError(f"sector.sz = {sz} is impossible for {n_sites} electron sites")
+        return "sz-only"
     n_up = Fraction(particles, 2) + Fraction(sz)
     n_dn = Fraction(particles, 2) - Fraction(sz)
     if n_up.denominator != 1 or not (0 <= n_up <= n_sites and 0 <= n_dn <= n_sites):
@@ -193,6 +196,13 @@ def sector_basis(site: Site, n_sites: int, sector: Sector, *, max_states: int | 
     """Enumerate the basis of ``sector`` for ``n_sites`` sites of type ``site``."""
     totals = sector_totals(site, n_sites, sector)
     n_slots = n_sites * site.modes
+    if totals == "sz-only":
+        shift = int(2 * sector.sz)
+        blocks = [two_species_basis(n_sites, n_up, n_up - shift).states
+                  for n_up in range(max(0, shift), min(n_sites, n_sites + shift) + 1)]
+        size = sum(b.size for b in blocks)
+        _check_size(size, max_states)
+        return explicit_basis(np.concatenate(blocks), n_slots, 2)
     if totals is None:
         return full_basis(n_slots, site.radix, max_states=max_states)
     if len(totals) == 1:
@@ -203,4 +213,8 @@ def sector_basis(site: Site, n_sites: int, sector: Sector, *, max_states: int | 
 def sector_size(site: Site, n_sites: int, sector: Sector) -> int:
     """Number of states of a sector, without enumerating it."""
     totals = sector_totals(site, n_sites, sector)
+    if totals == "sz-only":
+        shift = int(2 * sector.sz)
+        return sum(basis_size(n_sites, 2, [(n_sites, n_up)]) * basis_size(n_sites, 2, [(n_sites, n_up - shift)])
+                   for n_up in range(max(0, shift), min(n_sites, n_sites + shift) + 1))
     return basis_size(n_sites * site.modes, site.radix, totals)

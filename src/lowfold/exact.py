@@ -13,7 +13,7 @@ from scipy.sparse.linalg import ArpackNoConvergence, LinearOperator, eigsh
 from .basis import Basis
 from .errors import ConvergenceError, ModelError, SizeError
 from .hamiltonian import (available_memory, build_basis, check_model_hermitian, compile_operator,
-                          count_nonzeros,
+                          count_nonzeros, prefers_matrix_free,
                           operator_linear, operator_matrix)
 from .lanczos import lanczos_lowest
 from .model import Model
@@ -120,6 +120,8 @@ def _choose_method(method, op, basis: Basis, limit: int, say) -> str:
         return method
     if basis.size <= DENSE_LIMIT:
         return "csr"
+    if prefers_matrix_free(op, basis):
+        return "matrix-free"          # electrons at fixed N_up, N_dn: species-split product
     say(f"counting non-zeros on {basis.size:,} states")
     nnz = count_nonzeros(op, basis)
     csr_bytes = nnz * (np.dtype(op.coef.dtype).itemsize + 4) + 8 * basis.size
