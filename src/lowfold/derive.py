@@ -19,7 +19,7 @@ import scipy.sparse as sp
 from scipy.sparse.linalg import lobpcg
 
 from .basis import Sector
-from .errors import LowfoldError, ModelError, SizeError
+from .errors import ModelError, SizeError
 from .exact import lowest_eigenpairs
 from .hamiltonian import build_basis, hamiltonian_matrix, kernel_threads
 from .model import Model

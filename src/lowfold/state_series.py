@@ -16,10 +16,9 @@ from typing import Callable
 
 import numpy as np
 import scipy.linalg as la
-import scipy.sparse as sp
 
-from .basis import Basis, Sector
-from .errors import LowfoldError, ModelError, SizeError
+from .basis import Basis
+from .errors import LowfoldError, ModelError
 from .exact import lowest_eigenpairs
 from .hamiltonian import build_basis, compile_operator, hamiltonian_matrix
 from .model import Model
