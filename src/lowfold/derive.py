@@ -18,7 +18,7 @@ import scipy.linalg as la
 import scipy.sparse as sp
 from scipy.sparse.linalg import lobpcg
 
-from .basis import Sector
+from .basis import Sector, sector_size
 from .errors import ModelError, SizeError
 from .exact import lowest_eigenpairs
 from .hamiltonian import build_basis, hamiltonian_matrix, kernel_threads
@@ -358,15 +358,19 @@ def _check(result: EffectiveModel, blocks: list[_Block], scaling: bool, say) -> 
     model = result.model
     exact_all, scaled = [], {}
     factors = (1.0, 0.8, 0.64, 0.5, 0.4) if scaling else (1.0,)
+    try:      # every block's size first, so that nothing is diagonalised in vain
+        sizes = [sector_size(model.site, model.n_sites, b.sector) for b in blocks]
+        if max(sizes) > CHECK_MAX_STATES:
+            raise SizeError(f"a sector block has {max(sizes):,} states, more than the "
+                            f"{CHECK_MAX_STATES:,} the exact check diagonalises")
+    except SizeError as exc:
+        result.warnings.append(f"exact check skipped: {exc}")
+        return
     for block in blocks:
         block_model = model.with_sector(block.sector)
-        try:
-            basis = build_basis(block_model, max_states=CHECK_MAX_STATES)
-            h0 = hamiltonian_matrix(block_model, basis, model.unperturbed_labels, check=False)
-            v = hamiltonian_matrix(block_model, basis, model.perturbation_labels, check=False)
-        except SizeError as exc:
-            result.warnings.append(f"exact check skipped: {exc}")
-            return
+        basis = build_basis(block_model, max_states=CHECK_MAX_STATES)
+        h0 = hamiltonian_matrix(block_model, basis, model.unperturbed_labels, check=False)
+        v = hamiltonian_matrix(block_model, basis, model.perturbation_labels, check=False)
         idx = block.p_positions
         p_in_basis = basis.index(result.manifold.states[idx])
         at_bottom = h0.diagonal().real.min() >= result.manifold.energies[idx].min() - 1e-9
