@@ -18,9 +18,13 @@ Energies in units of the file's parameters; S = sigma/2; exchange ``J S_i.S_j``.
 from __future__ import annotations
 
 import importlib
-import tomllib
 from dataclasses import replace
 from functools import cache
+
+try:
+    import tomllib
+except ModuleNotFoundError:          # Python 3.10
+    import tomli as tomllib
 
 import numpy as np
 import pytest
@@ -29,10 +33,15 @@ import scipy.linalg as la
 import lowfold
 from lowfold import ManifoldError, ModelError, build_basis, hamiltonian_matrix
 from lowfold.derive import derive
-from lowfold.perturbation.manifold import find_manifold, reachable_states, split_operators
-from lowfold.perturbation.schrieffer_wolff import (effective_hamiltonian_orders,
-                                                   exact_effective_hamiltonian)
-
+from lowfold.perturbation.manifold import (
+    find_manifold,
+    reachable_states,
+    split_operators,
+)
+from lowfold.perturbation.schrieffer_wolff import (
+    effective_hamiltonian_orders,
+    exact_effective_hamiltonian,
+)
 
 # ----------------------------------------------------------------------------- model files
 
@@ -146,30 +155,31 @@ def random_spin_text(seed: int, *, n_sites: int = 5, n_pinned: int = 3, scale: f
     ising = {}
     for i in range(n_pinned):
         params[f"h{i}"] = fields[i]
-        terms.append(dict(type="field", axis="z", strength=f"h{i}", sites=[i], label=f"pin{i}"))
+        terms.append({"type": "field", "axis": "z", "strength": f"h{i}", "sites": [i],
+                      "label": f"pin{i}"})
         h0.append(f"pin{i}")
     for i in range(n_pinned):
         for j in range(i + 1, n_pinned):
             ising[i, j] = params[f"J{i}{j}"] = rng.uniform(-0.3, 0.3)
-            terms.append(dict(type="product", operators=["Sz", "Sz"], strength=f"J{i}{j}",
-                              bonds=[[i, j]], label=f"ising{i}{j}"))
+            terms.append({"type": "product", "operators": ["Sz", "Sz"], "strength": f"J{i}{j}",
+                          "bonds": [[i, j]], "label": f"ising{i}{j}"})
             h0.append(f"ising{i}{j}")
     if split:
         params["eps"] = split
-        terms.append(dict(type="field", axis="z", strength="eps", sites=[n_sites - 1],
-                          label="split"))
+        terms.append({"type": "field", "axis": "z", "strength": "eps", "sites": [n_sites - 1],
+                      "label": "split"})
         h0.append("split")
     names = ["Sx", "Sy", "Sz"]
     for k, (i, j) in enumerate(pairs):
         a, b = rng.integers(0, 3, 2)
         params[f"v{k}"] = scale * rng.uniform(-1, 1)
-        terms.append(dict(type="product", operators=[names[a], names[b]], strength=f"v{k}",
-                          bonds=[[i, j]], label=f"v{k}"))
+        terms.append({"type": "product", "operators": [names[a], names[b]], "strength": f"v{k}",
+                      "bonds": [[i, j]], "label": f"v{k}"})
     for i in range(n_sites):
         k = len(pairs) + i
         params[f"v{k}"] = scale * rng.uniform(-1, 1)
-        terms.append(dict(type="field", axis="xyz"[rng.integers(0, 3)], strength=f"v{k}",
-                          sites=[i], label=f"v{k}"))
+        terms.append({"type": "field", "axis": "xyz"[rng.integers(0, 3)], "strength": f"v{k}",
+                      "sites": [i], "label": f"v{k}"})
     lines = [f'title = "random spin model {seed}"',
              f'[lattice]\nshape = "graph"\nsites = {n_sites}\nbonds = {_toml(pairs)}',
              '[site]\ntype = "spin"\nspin = 0.5', "[parameters]"]

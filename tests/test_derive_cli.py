@@ -17,7 +17,6 @@ from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
 import pytest
-
 from test_derive import ISING_CHAIN, NO_GAP_SPINS, hubbard_text
 
 LOWFOLD = shutil.which("lowfold")
@@ -28,7 +27,7 @@ def run(*args: str) -> subprocess.CompletedProcess:
     """The installed script with pipes (not a terminal) and no forced colours."""
     env = {k: v for k, v in os.environ.items()
            if k not in ("FORCE_COLOR", "TTY_COMPATIBLE", "TTY_INTERACTIVE", "COLUMNS")}
-    return subprocess.run([LOWFOLD, *args], capture_output=True, text=True, timeout=300,
+    return subprocess.run([LOWFOLD, *args], capture_output=True, text=True, timeout=300, check=False,
                           env=env, stdin=subprocess.DEVNULL)
 
 
@@ -182,7 +181,7 @@ def test_demo_runs_the_main_job(runs):
     ("no-perturbation", "perturbation"),
 ])
 def test_user_error_is_one_line_exit_2(runs, case, words):
-    path, proc = runs[case]
+    _, proc = runs[case]
     assert proc.returncode == 2, (proc.stdout, proc.stderr)
     assert "Traceback" not in proc.stderr
     assert proc.stdout == ""
