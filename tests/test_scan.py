@@ -290,8 +290,11 @@ def test_interrupted_scan_resumes_without_recomputing(tmp_path, client):
     scan = write_scan(tmp_path, RESUME_SCAN)
     out = tmp_path / "out"
     address = client.scheduler.address
+    # a shell without job control starts background jobs with SIGINT ignored, and Python then
+    # keeps it ignored: restore the usual Ctrl-C behaviour in the child explicitly
     script = textwrap.dedent(f"""
-        import functools, sys
+        import functools, signal, sys
+        signal.signal(signal.SIGINT, signal.default_int_handler)
         sys.path.insert(0, {str(TESTS)!r})
         import test_scan
         from lowfold.scan import run_scan
