@@ -310,6 +310,10 @@ def main() -> None:
     except LowfoldError as exc:
         err.print(f"lowfold: error: {exc}", markup=False, soft_wrap=True)
         sys.exit(2)
+    except MemoryError:
+        err.print("lowfold: error: out of memory; use a smaller cluster, sector or order",
+                  markup=False)
+        sys.exit(2)
     except KeyboardInterrupt:
         err.print("lowfold: interrupted", markup=False)
         sys.exit(130)

@@ -171,7 +171,12 @@ def derive(model: Model, order: int | None = None, *, check: bool = True,
     for number, block in enumerate(blocks):
         p_states = manifold.states[block.p_positions]
         say(f"block {number + 1}/{len(blocks)}: {p_states.size:,} manifold states, order {order}")
-        block_orders, diag = _block_orders(p_states, h0, v, order, n_slots)
+        try:
+            block_orders, diag = _block_orders(p_states, h0, v, order, n_slots)
+        except MemoryError:
+            raise SizeError(f"order {order} on {p_states.size:,} manifold states of one S^z "
+                            "block does not fit in memory; use a lower order or a smaller "
+                            "cluster") from None
         parts.append(diag)
         for m, h in enumerate(block_orders):
             h = sp.coo_matrix(h)
