@@ -59,6 +59,9 @@ def _span(directory: Path) -> tuple[float, float]:
 
 
 def _loop(points) -> float:
+    """The same points in a plain loop, on one numba thread like each scan worker."""
+    import numba
+    numba.set_num_threads(1)
     clock = time.perf_counter()
     for point in points:
         run_task("spectrum", point.model, {"levels": 2})
@@ -129,6 +132,7 @@ def main() -> None:
         "overhead_per_point_wall": (one["wall"] - loop) / n,
         "overhead_per_point_span": (one["span"] - loop) / n,
         "machine_parallel_speedup": capacity,
+        "scheduling_overhead_per_point": (one["span"] - one["work"]) / n,
     }
     print(f"{'run':<8} {'wall s':>8} {'span s':>8} {'work s':>8}")
     for name, row in rows.items():
@@ -138,6 +142,8 @@ def main() -> None:
     print(f"speed-up 2 vs 1 worker: {figures['speedup_2_vs_1_wall']:.2f} (wall), "
           f"{figures['speedup_2_vs_1_span']:.2f} (span); 2 workers vs loop: "
           f"{figures['speedup_2_vs_loop_wall']:.2f}")
+    print(f"scheduling overhead per point (1 worker: span minus time inside the points): "
+          f"{1000 * figures['scheduling_overhead_per_point']:.1f} ms")
     print(f"control: two plain CPU-bound processes run {capacity:.2f}x faster than one on this "
           "machine (the ceiling for any 2-worker speed-up)")
     print(f"overhead per point (1 worker vs loop): {figures['overhead_per_point_wall']:.3f} s "
