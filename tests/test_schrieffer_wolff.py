@@ -195,7 +195,7 @@ def two_site_hubbard(t, u):
 
 def test_two_site_hubbard_singlet_triplet_splitting():
     # Exact two-site spectrum: E_triplet = 0, E_singlet = (U - sqrt(U^2 + 16 t^2))/2
-    # (e.g. Fazekas, Lecture Notes on Electron Correlation and Magnetism, 1999, from memory);
+    # (textbook closed form, e.g. P. Fazekas, World Scientific, 1999, from memory);
     # its Taylor series gives the splitting 4t^2/U - 16t^4/U^3 + 128t^6/U^5 - 1280t^8/U^7.
     t, u = 1.0, 20.0
     h0, v = two_site_hubbard(t, u)
