@@ -653,3 +653,12 @@ def test_window_with_no_state_is_rejected():
                                                 window=(5.5, 6.0)))
     with pytest.raises(ManifoldError, match="window"):
         derive(model, 2)
+
+
+def test_constant_h0_is_refused_without_enumerating_the_sector():
+    # U = 0: H0 = hubbard is zero on every state, so the "manifold" would be the whole sector
+    # and no gap separates it from anything (DESIGN.md: refuse with ManifoldError); on a
+    # 16-site cluster this must be refused at once, not after listing 6e8 states
+    model = hubbard("square", (4, 4), "periodic", U=0.0)
+    with pytest.raises(ManifoldError, match="constant"):
+        derive(model, 2, check=False)

@@ -122,6 +122,9 @@ def _manifold_by_sites(model: Model, h0: CompiledOperator, spec):
         if strings.size:
             with kernel_threads(0):
                 local_energy[i] = np.real(kernels.diagonal(local_states[i], strings, *h0.arrays()))
+    if spec.window is None and np.all(np.ptp(local_energy, axis=1) == 0):
+        raise ManifoldError("H0 is constant on the sector: the manifold would be the whole "
+                            "sector, with no gap to expand across (is its strength zero?)")
     # best[i][n, s]: lowest energy of sites i.. with totals (n, s) (offset by the minima)
     n_lo, n_hi = n_sites * particles.min(), n_sites * particles.max()
     s_lo, s_hi = n_sites * twice_sz.min(), n_sites * twice_sz.max()
