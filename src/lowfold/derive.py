@@ -18,7 +18,8 @@ import scipy.linalg as la
 import scipy.sparse as sp
 from scipy.sparse.linalg import lobpcg
 
-from .basis import Sector, sector_size
+from ._kernels.operators import images
+from .basis import Sector, explicit_basis, sector_size
 from .errors import ModelError, SizeError
 from .exact import lowest_eigenpairs
 from .hamiltonian import build_basis, hamiltonian_matrix, kernel_threads
@@ -241,8 +242,6 @@ def _block_orders(p_states, h0, v, order, n_slots):
 
 def _coupling_rows(v, p_states, working, n_slots) -> sp.csr_matrix:
     """Rows ``<p|V|w>`` for p in P and w in the working space (dimP x dimW)."""
-    from ._kernels.operators import images
-    from .basis import explicit_basis
     basis = explicit_basis(working, n_slots, v.radix)
     strings = np.arange(v.n_strings, dtype=np.int64)
     with kernel_threads(p_states.size):
@@ -387,8 +386,8 @@ def _check(result: EffectiveModel, blocks: list[_Block], scaling: bool, say) -> 
         for factor in factors:
             effective = sum(factor**m * partial[m] for m in range(result.order + 1))
             guess = np.zeros((basis.size, idx.size), dtype=effective.dtype)
-            guess[p_in_basis] = la.eigh(effective)[1]
-            exact = _exact_levels(h0 + factor * v, guess, la.eigvalsh(effective), at_bottom)
+            effective_levels, guess[p_in_basis] = la.eigh(effective)
+            exact = _exact_levels(h0 + factor * v, guess, effective_levels, at_bottom)
             if factor == 1.0:
                 exact_all.extend(exact.tolist())
             running = np.zeros_like(partial[0])
