@@ -144,7 +144,7 @@ def solve(operator, solver: str, levels: int, seed: int):
 
     counted = Counted(operator)
     if solver == "eigsh":
-        from lowfold.exact import lowest_eigenpairs
+        from lowfold.solve.exact import lowest_eigenpairs
 
         energies, _ = lowest_eigenpairs(counted.operator, levels,
                                         rng=np.random.default_rng(seed))
@@ -155,7 +155,7 @@ def solve(operator, solver: str, levels: int, seed: int):
         energies = eigsh(counted.operator, k=levels, which="SA", v0=v0,
                          ncv=max(2 * levels + 1, 20), tol=0, return_eigenvectors=False)
     else:
-        from lowfold.lanczos import lanczos_lowest
+        from lowfold.solve.lanczos import lanczos_lowest
 
         energies = lanczos_lowest(counted.operator, levels,
                                   rng=np.random.default_rng(seed)).energies

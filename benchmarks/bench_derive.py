@@ -84,7 +84,7 @@ def hubbard(shape: str, size: list, boundary: str, order: int):
 
 def warm_up() -> None:
     """Compile / load every kernel derive and the check use, on the Hubbard dimer."""
-    from lowfold.derive import derive
+    from lowfold.jobs.derive import derive
 
     for order in (2, 4):
         derive(hubbard("chain", [2], "open", order), order, check=True)
@@ -98,7 +98,7 @@ def nearest_exchange(result) -> float | None:
 
 
 def run_derive(task: dict) -> dict:
-    from lowfold.derive import derive
+    from lowfold.jobs.derive import derive
 
     model = hubbard(task["shape"], task["size"], task["boundary"], task["order"])
     start = time.perf_counter()

@@ -113,8 +113,8 @@ def run_series(kind: str, L: int) -> dict:
     import numpy as np
 
     import lowfold
-    from lowfold.exact import lowest_eigenpairs
-    from lowfold.hamiltonian import compile_operator
+    from lowfold.solve.exact import lowest_eigenpairs
+    from lowfold.build.hamiltonian import compile_operator
     from lowfold.perturbation.manifold import diagonal_energies
 
     model = load(kind, L)
@@ -158,7 +158,7 @@ def run_state_series(kind: str, L: int) -> dict:
 
 def run_lanczos(kind: str, L: int) -> dict:
     import lowfold
-    from lowfold.exact import lowest_eigenpairs
+    from lowfold.solve.exact import lowest_eigenpairs
 
     model = load(kind, L)
     start = time.perf_counter()

@@ -22,10 +22,11 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from lowfold.basis import (Sector, explicit_basis, fixed_sum_basis, full_basis, sector_basis,
-                           sector_size, two_species_basis)
+from lowfold.model.sector import Sector
+from lowfold.build.basis import (explicit_basis, fixed_sum_basis, full_basis, sector_basis,
+                                 sector_size, two_species_basis)
 from lowfold.errors import ModelError
-from lowfold.sites import make_site
+from lowfold.model.sites import make_site
 
 # ---------------------------------------------------------------------------------------
 # the slow twin

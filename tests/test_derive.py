@@ -32,7 +32,7 @@ import scipy.linalg as la
 
 import lowfold
 from lowfold import ManifoldError, ModelError, build_basis, hamiltonian_matrix
-from lowfold.derive import derive
+from lowfold.jobs.derive import derive
 from lowfold.perturbation.manifold import (
     find_manifold,
     reachable_states,
@@ -431,7 +431,7 @@ def test_skipped_check_spends_no_exact_diagonalisation(monkeypatch):
     # 3.3 M-state block says "skip" (more than 5 minutes; benchmarks/bench_derive.py).
     # Here: a 6-site chain with the limit lowered to 300 states, so that the S^z = 0 block
     # (400 states) does not fit and the S^z = -3, -2, -1 blocks (1, 36, 225 states) do.
-    module = importlib.import_module("lowfold.derive")   # the attribute is the function
+    module = importlib.import_module("lowfold.jobs.derive")   # the attribute is the function
     calls = []
     original = module._exact_levels
     monkeypatch.setattr(module, "CHECK_MAX_STATES", 300)

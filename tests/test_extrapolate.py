@@ -7,7 +7,7 @@ import pytest
 from scipy import integrate, special
 
 from lowfold.errors import ModelError
-from lowfold.extrapolate import extrapolate_records, fit_finite_size
+from lowfold.scans.extrapolate import extrapolate_records, fit_finite_size
 
 
 def test_noise_free_polynomial_is_recovered_exactly():
@@ -146,8 +146,8 @@ def test_hubbard_chain_extrapolates_to_lieb_wu(tmp_path):
     9 zeta(3) t^4/U^3 of the Heisenberg-limit value -(4t^2/U) ln 2 (Hulthen, Ark. Mat.
     Astron. Fys. 26A (1938)).
     """
-    from lowfold.scan import run_scan
-    from lowfold.store import load_results
+    from lowfold.scans.run import run_scan
+    from lowfold.scans.store import load_results
 
     (tmp_path / "ring.toml").write_text(MODEL)
     (tmp_path / "scan.toml").write_text(SCAN)

@@ -22,9 +22,9 @@ import lowfold
 import reference as ref
 from lowfold._kernels import basis as basis_kernels
 from lowfold._kernels import operators as op_kernels
-from lowfold.basis import fixed_sum_basis, two_species_basis
+from lowfold.build.basis import fixed_sum_basis, two_species_basis
 from lowfold.errors import ModelError
-from lowfold.hamiltonian import (compile_operator, count_nonzeros, operator_linear,
+from lowfold.build.hamiltonian import (compile_operator, count_nonzeros, operator_linear,
                                  operator_matrix, prefers_matrix_free)
 
 ATOL = 1e-12

@@ -17,7 +17,7 @@ from scipy.sparse.linalg import LinearOperator, eigsh
 
 import lowfold
 from lowfold.errors import ConvergenceError, ModelError
-from lowfold.lanczos import LanczosResult, lanczos_lowest
+from lowfold.solve.lanczos import LanczosResult, lanczos_lowest
 
 ATOL = 1e-10
 

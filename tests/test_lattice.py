@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 
 from lowfold.errors import ModelError
-from lowfold.lattice import BOND_CLASSES, SHAPES, Lattice, make_lattice
+from lowfold.model.lattice import BOND_CLASSES, SHAPES, Lattice, make_lattice
 
 S2, S3 = np.sqrt(2.0), np.sqrt(3.0)
 

@@ -15,7 +15,7 @@ import pytest
 import scipy.sparse as sp
 
 from lowfold.errors import ModelError, SizeError
-from lowfold.readout import (
+from lowfold.readout.couplings import (
     Coupling,
     parse_pauli_string,
     pauli_coefficients,

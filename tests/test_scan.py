@@ -17,10 +17,10 @@ import numpy as np
 import pytest
 
 from lowfold.errors import ModelError
-from lowfold.scan import (WORKER_ENV, WORKER_MALLOC, load_scan, parse_scan, plan_scan, run_scan,
+from lowfold.scans.run import (WORKER_ENV, WORKER_MALLOC, load_scan, parse_scan, plan_scan, run_scan,
                           start_local_cluster)
-from lowfold.store import load_results
-from lowfold.tasks import run_task
+from lowfold.scans.store import load_results
+from lowfold.jobs.tasks import run_task
 
 TESTS = Path(__file__).resolve().parent
 
@@ -297,7 +297,7 @@ def test_interrupted_scan_resumes_without_recomputing(tmp_path, client):
         signal.signal(signal.SIGINT, signal.default_int_handler)
         sys.path.insert(0, {str(TESTS)!r})
         import test_scan
-        from lowfold.scan import run_scan
+        from lowfold.scans.run import run_scan
         compute = functools.partial(test_scan.counting_compute, counter=sys.argv[1], delay=1.5)
         summary = run_scan({str(scan)!r}, out={str(out)!r}, scheduler={address!r},
                            compute=compute, progress=False)
@@ -360,7 +360,7 @@ def test_killed_worker_does_not_lose_or_duplicate_points(tmp_path, client):
 
 def test_batch_cluster_job_script_runs_single_threaded_workers():
     pytest.importorskip("dask_jobqueue")        # optional extra lowfold[cluster]
-    from lowfold.scan import start_batch_cluster
+    from lowfold.scans.run import start_batch_cluster
 
     cluster = start_batch_cluster("slurm", jobs=0, cores=8, memory="16GB", walltime="02:00:00",
                                   queue="cpu", job_script_prologue=["module load python"],

@@ -16,7 +16,7 @@ import numpy as np
 import pytest
 
 from lowfold import ModelError, build_basis, hamiltonian_matrix, load_model, state_series
-from lowfold.state_series import parse_sweep
+from lowfold.jobs.state_series import parse_sweep
 
 # ---------------------------------------------------------------------------------------
 # model files (TOML); spin labels: one letter per site, site 0 first, u = S^z +1/2

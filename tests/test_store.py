@@ -7,7 +7,7 @@ import os
 import pytest
 
 from lowfold.errors import LowfoldError, ModelError
-from lowfold.store import (ResultStore, axis_value, load_results, point_key, scalar, table_rows,
+from lowfold.scans.store import (ResultStore, axis_value, load_results, point_key, scalar, table_rows,
                            to_dataframe, write_csv, write_json_atomic)
 
 

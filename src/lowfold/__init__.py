@@ -5,23 +5,24 @@ The public API is re-exported here; everything else is an implementation detail.
 
 __version__ = "0.1.0"
 
-from .errors import ConvergenceError, LowfoldError, ManifoldError, ModelError, SizeError
-from .lattice import BOND_CLASSES, SHAPES, Lattice, make_lattice
-from .sites import Site, make_site
-from .basis import Basis, Sector
-from .terms import Term
-from .model import Model, PerturbationSpec
-from .modelfile import load_model, parse_model
-from .hamiltonian import build_basis, hamiltonian_matrix, hamiltonian_operator
-from .exact import SpectrumResult, spectrum
-from .perturbation.schrieffer_wolff import (effective_hamiltonian_orders,
+from lowfold.errors import ConvergenceError, LowfoldError, ManifoldError, ModelError, SizeError
+from lowfold.model.lattice import BOND_CLASSES, SHAPES, Lattice, make_lattice
+from lowfold.model.sites import Site, make_site
+from lowfold.model.sector import Sector
+from lowfold.build.basis import Basis
+from lowfold.model.terms import Term
+from lowfold.model.model import Model, PerturbationSpec
+from lowfold.model.modelfile import load_model, parse_model
+from lowfold.build.hamiltonian import build_basis, hamiltonian_matrix, hamiltonian_operator
+from lowfold.solve.exact import SpectrumResult, spectrum
+from lowfold.perturbation.schrieffer_wolff import (effective_hamiltonian_orders,
                                             exact_effective_hamiltonian)
-from .perturbation.series import SeriesResult, rayleigh_schrodinger, rayleigh_schrodinger_general
-from .perturbation.convergence import pade_estimate, pade_table, partial_sums, ratio_test
-from .readout import Coupling, pauli_coefficients, recognise_rational, spin_couplings
-from .derive import EffectiveModel, derive
-from .state_series import StateSeries, state_series
-from .tasks import run_task
+from lowfold.perturbation.series import SeriesResult, rayleigh_schrodinger, rayleigh_schrodinger_general
+from lowfold.perturbation.convergence import pade_estimate, pade_table, partial_sums, ratio_test
+from lowfold.readout.couplings import Coupling, pauli_coefficients, recognise_rational, spin_couplings
+from lowfold.jobs.derive import EffectiveModel, derive
+from lowfold.jobs.state_series import StateSeries, state_series
+from lowfold.jobs.tasks import run_task
 
 __all__ = [
     "__version__",

@@ -23,7 +23,7 @@ the original state.  The mask kernels give the same images as :func:`apply_strin
 import numpy as np
 from numba import njit, prange
 
-from .basis import lookup_fast, lookup_one
+from lowfold._kernels.basis import lookup_fast, lookup_one
 
 
 @njit(cache=True, inline="always")

@@ -18,11 +18,11 @@ from itertools import product as cartesian
 import numpy as np
 import scipy.sparse as sp
 
-from .._kernels import operators as kernels
-from ..basis import explicit_basis
-from ..errors import ManifoldError, ModelError
-from ..hamiltonian import CompiledOperator, build_basis, compile_operator, kernel_threads
-from ..model import Model
+from lowfold._kernels import operators as kernels
+from lowfold.build.basis import explicit_basis
+from lowfold.errors import ManifoldError, ModelError
+from lowfold.build.hamiltonian import CompiledOperator, build_basis, compile_operator, kernel_threads
+from lowfold.model.model import Model
 
 __all__ = ["Manifold", "split_operators", "find_manifold", "reachable_states",
            "restricted_operator", "diagonal_energies", "twice_sz", "state_labels"]

@@ -42,7 +42,7 @@ import scipy.sparse as sp
 from scipy.linalg import eigh_tridiagonal
 from scipy.sparse.linalg import LinearOperator, aslinearoperator
 
-from .errors import ConvergenceError, ModelError
+from lowfold.errors import ConvergenceError, ModelError
 
 __all__ = ["LanczosResult", "lanczos_lowest"]
 
@@ -298,7 +298,8 @@ def _level(space: _Space, make_start, *, want_vector: bool, tol: float, maxiter:
 
 def lanczos_lowest(operator, levels: int = 1, *, vectors: bool = False, tol: float = 1e-10,
                    maxiter: int = 3000, restarts: int = 2, v0: np.ndarray | None = None,
-                   rng: np.random.Generator | None = None) -> LanczosResult:
+                   rng: np.random.Generator | None = None,
+                   exclude: np.ndarray | None = None) -> LanczosResult:
     """The ``levels`` lowest eigenvalues of a Hermitian operator, keeping few vectors.
 
     Parameters
@@ -321,6 +322,9 @@ def lanczos_lowest(operator, levels: int = 1, *, vectors: bool = False, tol: flo
         Start vector of the first level (default: random from ``rng``).
     rng : numpy.random.Generator, keyword-only
         Source of the random start vectors (default: a fixed seed, so runs repeat).
+    exclude : ndarray, keyword-only
+        Orthonormal columns ``(n, m)`` (eigenvectors already known): the levels are those of
+        ``H`` on their orthogonal complement.
 
     Returns
     -------
@@ -354,6 +358,13 @@ def lanczos_lowest(operator, levels: int = 1, *, vectors: bool = False, tol: flo
         dtype = np.result_type(dtype, v0.dtype)
     rng = np.random.default_rng(20240611) if rng is None else rng
     locked: list[np.ndarray] = []
+    if exclude is not None:
+        exclude = np.asarray(exclude)
+        if exclude.ndim != 2 or exclude.shape[0] != n or exclude.shape[1] + levels > n:
+            raise ModelError(f"exclude must have shape (n, m) with m + levels <= n = {n}")
+        dtype = np.result_type(dtype, exclude.dtype)
+        locked.extend(np.array(exclude[:, j], dtype=dtype) for j in range(exclude.shape[1]))
+    n_excluded = len(locked)
     space = _Space(matvec, n, dtype, locked)
     energies, residuals, steps = [], [], []
     for level in range(levels):
@@ -380,6 +391,6 @@ def lanczos_lowest(operator, levels: int = 1, *, vectors: bool = False, tol: flo
     if vectors:
         result_vectors = np.empty((n, levels), dtype=dtype)
         for column, index in enumerate(order):
-            result_vectors[:, column] = locked[index]
+            result_vectors[:, column] = locked[n_excluded + index]
     return LanczosResult(np.asarray(energies)[order], result_vectors,
                          np.asarray(residuals)[order], np.asarray(steps)[order], space.count)

@@ -35,13 +35,13 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.linalg import LinearOperator
 
-from ._kernels import basis as basis_kernels
-from ._kernels import operators as kernels
-from ._kernels import species as species_kernels
-from .basis import Basis, fixed_sum_basis, sector_basis
-from .errors import ModelError, SizeError
-from .model import Model
-from .sites import SlotOperator
+from lowfold._kernels import basis as basis_kernels
+from lowfold._kernels import operators as kernels
+from lowfold._kernels import species as species_kernels
+from lowfold.build.basis import Basis, fixed_sum_basis, sector_basis
+from lowfold.errors import ModelError, SizeError
+from lowfold.model.model import Model
+from lowfold.model.sites import SlotOperator
 
 PARALLEL_MIN_STATES = 20_000   # below this, thread start-up costs more than it saves
 

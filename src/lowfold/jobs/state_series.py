@@ -17,14 +17,14 @@ from typing import Callable
 import numpy as np
 import scipy.linalg as la
 
-from .basis import Basis
-from .errors import LowfoldError, ModelError
-from .exact import lowest_eigenpairs
-from .hamiltonian import build_basis, compile_operator, hamiltonian_matrix
-from .model import Model
-from .perturbation.convergence import pade_estimate, partial_sums, ratio_test
-from .perturbation.manifold import diagonal_energies, state_labels
-from .perturbation.series import SeriesResult, rayleigh_schrodinger, rayleigh_schrodinger_general
+from lowfold.build.basis import Basis
+from lowfold.errors import LowfoldError, ModelError
+from lowfold.solve.exact import lowest_eigenpairs
+from lowfold.build.hamiltonian import build_basis, compile_operator, hamiltonian_matrix
+from lowfold.model.model import Model
+from lowfold.perturbation.convergence import pade_estimate, partial_sums, ratio_test
+from lowfold.perturbation.manifold import diagonal_energies, state_labels
+from lowfold.perturbation.series import SeriesResult, rayleigh_schrodinger, rayleigh_schrodinger_general
 
 __all__ = ["StateSeries", "Sweep", "state_series", "parse_sweep", "MAX_ORDER"]
 
@@ -325,7 +325,7 @@ def _sector_blocks(model: Model, basis: Basis):
     h_all = compile_operator(model)
     if not (model.site.has_spin and h_all.conserves_sz and model.sector.sz is None):
         return ["all"], [np.arange(basis.size)]
-    from .perturbation.manifold import twice_sz
+    from lowfold.perturbation.manifold import twice_sz
     sz2 = twice_sz(model, basis.states)
     values = np.unique(sz2)
     return [f"Sz={Fraction(int(s), 2)}" for s in values], [np.flatnonzero(sz2 == s) for s in values]

@@ -33,8 +33,8 @@ import numpy as np
 from matplotlib.figure import Figure
 
 from lowfold.errors import ModelError
-from lowfold.extrapolate import extrapolate_records
-from lowfold.store import axis_value, scalar
+from lowfold.scans.extrapolate import extrapolate_records
+from lowfold.scans.store import axis_value, scalar
 
 __all__ = [
     "PALETTE", "MARKERS", "LINESTYLES",
@@ -584,7 +584,7 @@ def plot_results(
         ``{"kind", "output", "points"}`` plus, for finite-size, ``"extrapolations"``: a list
         of ``{"group", "value", "error", "form", "warnings"}``.
     """
-    from lowfold.store import load_results
+    from lowfold.scans.store import load_results
 
     if kind not in KINDS:
         raise ModelError(f"unknown plot kind {kind!r} (known: {', '.join(KINDS)})")

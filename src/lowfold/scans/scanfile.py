@@ -35,7 +35,7 @@ from pathlib import Path
 from typing import Any, Mapping
 
 from lowfold.errors import ModelError
-from lowfold.modelfile import read_toml
+from lowfold.model.modelfile import read_toml
 
 __all__ = ["TASK_NAMES", "SECTOR_AXES", "ScanSpec", "parse_scan", "load_scan", "scan_error"]
 

@@ -32,7 +32,7 @@ from fractions import Fraction
 
 import numpy as np
 
-from .errors import ModelError
+from lowfold.errors import ModelError
 
 __all__ = ["SlotOperator", "Site", "make_site", "SITE_TYPES"]
 

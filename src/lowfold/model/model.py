@@ -6,11 +6,11 @@ from dataclasses import dataclass, field, replace
 from types import MappingProxyType
 from typing import Mapping
 
-from .basis import Sector
-from .errors import ModelError
-from .lattice import Lattice, make_lattice
-from .sites import Site
-from .terms import Term, expand_term
+from lowfold.model.sector import Sector
+from lowfold.errors import ModelError
+from lowfold.model.lattice import Lattice, make_lattice
+from lowfold.model.sites import Site
+from lowfold.model.terms import Term, expand_term
 
 __all__ = ["Model", "PerturbationSpec"]
 

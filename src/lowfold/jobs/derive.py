@@ -18,18 +18,19 @@ import scipy.linalg as la
 import scipy.sparse as sp
 from scipy.sparse.linalg import lobpcg
 
-from ._kernels.operators import images
-from .basis import Sector, explicit_basis, sector_size
-from .errors import ModelError, SizeError
-from .exact import lowest_eigenpairs
-from .hamiltonian import build_basis, hamiltonian_matrix, kernel_threads
-from .model import Model
-from .perturbation.diagnostics import Diagnostics, manifold_diagnostics, merge_diagnostics
-from .perturbation.manifold import (Manifold, diagonal_energies, find_manifold,
+from lowfold._kernels.operators import images
+from lowfold.model.sector import Sector
+from lowfold.build.basis import explicit_basis, sector_size
+from lowfold.errors import ModelError, SizeError
+from lowfold.solve.exact import lowest_eigenpairs
+from lowfold.build.hamiltonian import build_basis, hamiltonian_matrix, kernel_threads
+from lowfold.model.model import Model
+from lowfold.perturbation.diagnostics import Diagnostics, manifold_diagnostics, merge_diagnostics
+from lowfold.perturbation.manifold import (Manifold, diagonal_energies, find_manifold,
                                     reachable_states, restricted_operator, split_operators,
                                     state_labels, twice_sz)
-from .perturbation.schrieffer_wolff import effective_hamiltonian_orders, second_order_matrix_free
-from .readout import pauli_coefficients_by_order, recognise_rational, spin_couplings
+from lowfold.perturbation.schrieffer_wolff import effective_hamiltonian_orders, second_order_matrix_free
+from lowfold.readout.couplings import pauli_coefficients_by_order, recognise_rational, spin_couplings
 
 __all__ = ["EffectiveModel", "derive"]
 

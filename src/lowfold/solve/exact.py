@@ -10,13 +10,13 @@ import scipy.linalg as la
 import scipy.sparse as sp
 from scipy.sparse.linalg import ArpackNoConvergence, LinearOperator, eigsh
 
-from .basis import Basis
-from .errors import ConvergenceError, ModelError, SizeError
-from .hamiltonian import (available_memory, build_basis, check_model_hermitian, compile_operator,
+from lowfold.build.basis import Basis
+from lowfold.errors import ConvergenceError, ModelError, SizeError
+from lowfold.build.hamiltonian import (available_memory, build_basis, check_model_hermitian, compile_operator,
                           count_nonzeros, prefers_matrix_free,
                           operator_linear, operator_matrix)
-from .lanczos import lanczos_lowest
-from .model import Model
+from lowfold.solve.lanczos import lanczos_lowest
+from lowfold.model.model import Model
 
 __all__ = ["SpectrumResult", "lowest_eigenpairs", "spectrum"]
 
@@ -65,8 +65,31 @@ def lowest_eigenpairs(matrix, k: int, *, vectors: bool = False, tol: float = 0.0
     except ArpackNoConvergence as exc:
         raise ConvergenceError(f"Lanczos did not converge for the {k} lowest levels "
                                f"({len(exc.eigenvalues)} converged)", partial=exc.eigenvalues) from None
+    values, vecs = _recover_missed_levels(matrix, values, vecs, rng)
+    return values, (vecs if vectors else None)
+
+
+def _recover_missed_levels(matrix, values, vecs, rng, *, max_rounds: int = 8):
+    """Complete the levels of a single-vector Krylov method, which can miss members of a
+    degenerate multiplet: the lowest level of ``H`` on the complement of the vectors found
+    must not lie below the highest value kept; if it does, it replaces it (and we look
+    again).  Costs one deflated Lanczos run when nothing was missed."""
     order = np.argsort(values)
-    return values[order], (vecs[:, order] if vectors else None)
+    values, vecs = values[order], vecs[:, order]
+    k, n = values.size, matrix.shape[0]
+    scale = max(1.0, float(np.max(np.abs(values))))
+    for _ in range(max_rounds):
+        if k >= n:
+            break
+        below = lanczos_lowest(matrix, 1, vectors=True, exclude=vecs, rng=rng)
+        energy = float(below.energies[0])
+        if energy >= values[-1] - 1e-9 * scale:
+            break
+        values = np.append(values[:-1], energy)
+        vecs = np.column_stack([vecs[:, :-1], below.vectors[:, 0]])
+        order = np.argsort(values, kind="stable")
+        values, vecs = values[order], vecs[:, order]
+    return values, vecs
 
 
 def spectrum(model: Model, levels: int = 4, *, vectors: bool = False, method: str = "auto",

@@ -23,11 +23,12 @@ from fractions import Fraction
 from pathlib import Path
 from typing import Any, Callable, Mapping
 
-from lowfold.basis import Sector, sector_size
+from lowfold.model.sector import Sector
+from lowfold.build.basis import sector_size
 from lowfold.errors import LowfoldError, ModelError
-from lowfold.modelfile import load_model
-from lowfold.scanfile import SECTOR_AXES, TASK_NAMES, ScanSpec, load_scan, parse_scan, scan_error
-from lowfold.store import RECORD_FORMAT, ResultStore, point_key, write_csv
+from lowfold.model.modelfile import load_model
+from lowfold.scans.scanfile import SECTOR_AXES, TASK_NAMES, ScanSpec, load_scan, parse_scan, scan_error
+from lowfold.scans.store import RECORD_FORMAT, ResultStore, point_key, write_csv
 
 __all__ = [
     "TASK_NAMES", "WORKER_ENV", "WORKER_MALLOC", "ScanSpec", "ScanPoint", "ScanSummary",
@@ -199,7 +200,7 @@ def evaluate_point(task: str, model, options: Mapping[str, Any], compute: Callab
     """
     _limit_threads()
     if compute is None:
-        from lowfold.tasks import run_task as compute
+        from lowfold.jobs.tasks import run_task as compute
     started, clock = _now(), time.perf_counter()
     result, error = None, None
     try:

@@ -15,12 +15,12 @@ try:
 except ModuleNotFoundError:  # Python 3.10
     import tomli as tomllib
 
-from .basis import Sector, sector_totals
-from .errors import ModelError
-from .lattice import make_lattice
-from .model import Model, PerturbationSpec
-from .sites import make_site
-from .terms import TERM_TYPES, TWO_SITE_TYPES, Term
+from lowfold.model.sector import Sector, sector_totals
+from lowfold.errors import ModelError
+from lowfold.model.lattice import make_lattice
+from lowfold.model.model import Model, PerturbationSpec
+from lowfold.model.sites import make_site
+from lowfold.model.terms import TERM_TYPES, TWO_SITE_TYPES, Term
 
 __all__ = ["load_model", "parse_model", "read_toml"]
 

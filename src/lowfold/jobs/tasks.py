@@ -8,11 +8,11 @@ from __future__ import annotations
 
 from typing import Callable
 
-from .derive import derive
-from .errors import ModelError
-from .exact import spectrum
-from .model import Model
-from .state_series import parse_sweep, state_series
+from lowfold.jobs.derive import derive
+from lowfold.errors import ModelError
+from lowfold.solve.exact import spectrum
+from lowfold.model.model import Model
+from lowfold.jobs.state_series import parse_sweep, state_series
 
 __all__ = ["TASKS", "run_task"]
 

@@ -19,11 +19,11 @@ import typer
 from rich.console import Console
 from rich.table import Table
 
-from . import __version__
-from .errors import LowfoldError, ModelError
-from .modelfile import load_model
-from .state_series import parse_sweep
-from .tasks import run_task
+from lowfold import __version__
+from lowfold.errors import LowfoldError, ModelError
+from lowfold.model.modelfile import load_model
+from lowfold.jobs.state_series import parse_sweep
+from lowfold.jobs.tasks import run_task
 
 app = typer.Typer(add_completion=False, no_args_is_help=True, pretty_exceptions_enable=False,
                   help="Effective low-energy models of lattice Hamiltonians, checked against "
@@ -233,7 +233,7 @@ def series(model: Path = typer.Argument(..., help="model file (TOML) with a [per
     with _progress(not json_out) as progress:
         result = run_task("series", m, options, progress=progress)
     if plot is not None:
-        from .plots import plot_sweep
+        from lowfold.plots.figures import plot_sweep
         plot_sweep(result["sweep"], title=m.title, output=plot)
     if json_out:
         return _emit_json(result)
@@ -251,7 +251,7 @@ def scan(scan_file: Path = typer.Argument(..., metavar="SCAN", help="scan file (
          retry_failed: bool = typer.Option(False, "--retry-failed", help="recompute points stored as errors"),
          json_out: bool = typer.Option(False, "--json", help="print one JSON summary")):
     """Run a parameter / size scan on Dask, storing every finished point as it completes."""
-    from .scan import format_summary, run_scan
+    from lowfold.scans.run import format_summary, run_scan
     summary = run_scan(scan_file, out=out, scheduler=scheduler, workers=workers,
                        retry_failed=retry_failed, progress=False if json_out else None)
     if json_out:
@@ -281,7 +281,7 @@ def plot(results: Path = typer.Argument(..., help="results directory of a scan")
          title: Optional[str] = typer.Option(None, "--title", help="figure title"),
          json_out: bool = typer.Option(False, "--json", help="print one JSON object")):
     """Draw a figure from scan results (see docs/scans.md)."""
-    from .plots import parse_where, plot_results
+    from lowfold.plots.figures import parse_where, plot_results
     info = plot_results(results, kind=kind, output=output, x=x, quantity=quantity,
                         orders=order or None, unit=unit, where=parse_where(where or []),
                         exact_levels=exact_gap, series=series_dir, levels=levels,

@@ -16,9 +16,9 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from .errors import ModelError
-from .lattice import Lattice
-from .sites import Site
+from lowfold.errors import ModelError
+from lowfold.model.lattice import Lattice
+from lowfold.model.sites import Site
 
 __all__ = ["Term", "TERM_TYPES", "expand_term"]
 
