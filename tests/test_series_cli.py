@@ -18,7 +18,7 @@ from concurrent.futures import ThreadPoolExecutor
 import numpy as np
 import pytest
 
-import lowfold.plots.figures
+import lowfold.plots.sweep_figure
 from lowfold import cli
 from test_state_series import (
     DIMER_AND_FREE_SPIN,
