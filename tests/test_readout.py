@@ -15,14 +15,9 @@ import pytest
 import scipy.sparse as sp
 
 from lowfold.errors import ModelError, SizeError
-from lowfold.readout.couplings import (
-    Coupling,
-    parse_pauli_string,
-    pauli_coefficients,
-    pauli_coefficients_by_order,
-    recognise_rational,
-    spin_couplings,
-)
+from lowfold.readout.couplings import Coupling, spin_couplings
+from lowfold.readout.pauli import parse_pauli_string, pauli_coefficients, pauli_coefficients_by_order
+from lowfold.readout.rationals import recognise_rational
 
 PAULI = {
     "I": np.eye(2, dtype=complex),
