@@ -35,7 +35,7 @@ class Model:
     """A lattice model, immutable: ``with_parameters`` / ``with_lattice`` return new models.
 
     Conventions (hbar = 1, S = sigma/2, fermion and spin encodings) are those of
-    ``lowfold.sites`` and the README.
+    ``lowfold.model.sites`` and the README.
     """
 
     lattice: Lattice
