@@ -33,17 +33,42 @@ _PERTURBATION_KEYS = {"unperturbed", "order", "manifold", "window", "tolerance"}
 
 
 def read_toml(path) -> dict:
-    """Parse a TOML file; a missing file or a syntax error is a ModelError."""
+    """Parse a TOML file (UTF-8, as TOML requires).
+
+    Raises
+    ------
+    ModelError
+        The file is missing, a directory, unreadable, not UTF-8 (the message gives the byte
+        offset of the first bad byte) or not valid TOML; the message starts with the path.
+    """
     path = Path(path)
+    shown = _shown(path)
     try:
-        with open(path, "rb") as fh:
-            return tomllib.load(fh)
+        raw = path.read_bytes()
     except FileNotFoundError:
-        raise ModelError(f"{path}: no such file") from None
+        raise ModelError(f"{shown}: no such file") from None
     except IsADirectoryError:
-        raise ModelError(f"{path}: is a directory, not a model file") from None
+        raise ModelError(f"{shown}: is a directory, not a model file") from None
+    except PermissionError:
+        raise ModelError(f"{shown}: permission denied (the file is not readable)") from None
+    except OSError as exc:
+        raise ModelError(f"{shown}: cannot be read ({exc.strerror or type(exc).__name__})") from None
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise ModelError(f"{shown}: not UTF-8 text (byte 0x{raw[exc.start]:02x} at byte offset "
+                         f"{exc.start}); save the file as UTF-8") from None
+    try:
+        return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
-        raise ModelError(f"{path}: not valid TOML ({exc})") from None
+        raise ModelError(f"{shown}: not valid TOML ({exc})") from None
+
+
+def _shown(path) -> str:
+    """A path as one printable line: as given, or its escaped ``repr`` if it holds control
+    characters (a file name may contain a newline)."""
+    text = str(path)
+    return text if text.isprintable() else repr(text)
 
 
 def load_model(path) -> Model:
@@ -56,8 +81,8 @@ def parse_model(data: dict, *, source: str = "<model>") -> Model:
     try:
         return _parse(data, source)
     except ModelError as exc:
-        message = str(exc)
-        raise ModelError(message if message.startswith(source) else f"{source}: {message}") from None
+        message, shown = str(exc), _shown(source)
+        raise ModelError(message if message.startswith(shown) else f"{shown}: {message}") from None
 
 
 def _unknown(table: dict, allowed: set, where: str) -> None:
