@@ -7,13 +7,17 @@ The same inputs are run through the installed command in ``test_model_input_cli.
 
 from __future__ import annotations
 
+import tracemalloc
 from pathlib import Path
 
 import pytest
 
 from lowfold import load_model
-from lowfold.errors import ModelError
+from lowfold.errors import ModelError, SizeError
+from lowfold.model.lattice import make_lattice
+from lowfold.model.model import Model
 from lowfold.model.modelfile import read_toml
+from lowfold.model.sites import MAX_RADIX, check_state_space, make_site
 
 SPIN_CHAIN = """\
 title = "Heisenberg chain"
@@ -83,3 +87,71 @@ def test_file_name_with_a_newline_is_shown_escaped(tmp_path):
     with pytest.raises(ModelError) as exc:
         load_model(path)
     assert one_line(exc).startswith(repr(str(path)))
+
+
+# ---------------------------------------------------------------------------------------
+# size guards: refused at construction, before anything large is allocated
+
+
+def refused_peak(action):
+    """``(peak Python allocation, SizeError info)`` of ``action()``, which must raise."""
+    tracemalloc.start()
+    try:
+        with pytest.raises(SizeError) as exc:
+            action()
+        return tracemalloc.get_traced_memory()[1], exc
+    finally:
+        tracemalloc.stop()
+
+
+@pytest.mark.parametrize("action, words", [
+    (lambda: make_site("boson", max_occupation=2**62), "max_occupation <= 65,535"),
+    (lambda: make_site("spin", spin=1e9), "spin <= 32767.5"),
+    (lambda: make_lattice("chain", [10**12]), "4,096 sites"),
+    (lambda: make_lattice("cubic", [10**4, 10**4, 10**4]), "4,096 sites"),
+    (lambda: make_lattice("graph", sites=10**9, bonds=[]), "4,096 sites"),
+])
+def test_huge_sites_and_lattices_are_refused_without_allocating(action, words):
+    peak, exc = refused_peak(action)
+    assert words in one_line(exc)
+    assert peak < 2**20
+
+
+def test_nonsense_site_options_are_model_errors():
+    for kwargs in ({"max_occupation": float("inf")}, {"max_occupation": "x"},
+                   {"max_occupation": 0}, {"max_occupation": 2.5}, {"max_occupation": True}):
+        with pytest.raises(ModelError):
+            make_site("boson", **kwargs)
+    for spin in (float("nan"), float("inf"), "x", -0.5, 0, 0.3, True):
+        with pytest.raises(ModelError):
+            make_site("spin", spin=spin)
+    # the largest allowed values still make sites (tables are built lazily)
+    assert make_site("boson", max_occupation=MAX_RADIX - 1).radix == MAX_RADIX
+    assert make_site("spin", spin=(MAX_RADIX - 1) / 2).radix == MAX_RADIX
+
+
+# A state is one int64 of base-radix digits, so radix**slots <= 2**63 - 1.  The bounds
+# below are integer arithmetic: 2**62 <= 2**63 - 1 < 2**63; 4**31 = 2**62; for spin 1,
+# 3**39 = 4052555153018976267 <= 9223372036854775807 < 3**40 = 12157665459056928801.
+@pytest.mark.parametrize("site, largest", [
+    (make_site("spin"), 62), (make_site("fermion"), 62), (make_site("electron"), 31),
+    (make_site("spin", spin=1), 39), (make_site("spin", spin=1.5), 31),
+    (make_site("boson", max_occupation=3), 31),
+])
+def test_states_must_fit_one_int64(site, largest):
+    assert site.radix ** (site.modes * largest) <= 2**63 - 1 < site.radix ** (site.modes * (largest + 1))
+    lattice = make_lattice("chain", [largest])
+    Model(lattice, site, ())
+    check_state_space(site, largest)
+    with pytest.raises(SizeError) as exc:
+        Model(make_lattice("chain", [largest + 1]), site, ())
+    assert f"at most {largest} such sites" in one_line(exc)
+
+
+def test_model_file_past_the_state_limit_names_the_file(tmp_path):
+    path = write(tmp_path, SPIN_CHAIN.replace("size = [4]", "size = [63]"))
+    with pytest.raises(SizeError) as exc:
+        load_model(path)
+    assert one_line(exc).startswith(f"{path}: lattice: 63 spin-1/2 sites do not fit")
+    with pytest.raises(SizeError):
+        load_model(write(tmp_path, SPIN_CHAIN)).with_lattice(size=[70])

@@ -34,6 +34,16 @@ CASES = {
     "directory": (None, "spectrum", ["is a directory"]),
     "missing": (None, "spectrum", ["no such file"]),
     "below-a-file": (None, "spectrum", ["cannot be read"]),
+    "boson-2**62": (b'[lattice]\nshape = "chain"\nsize = [2]\n[site]\ntype = "boson"\n'
+                    b'max_occupation = 4611686018427387904\n[[term]]\ntype = "hopping"\n'
+                    b'strength = 1.0\n', "spectrum", ["max_occupation <= 65,535"]),
+    "spin-1e9": (SPIN_CHAIN.replace('"spin"', '"spin"\nspin = 1e9').encode(), "spectrum",
+                 ["spin <= 32767.5"]),
+    "size-1e12": (SPIN_CHAIN.replace("[4]", "[1000000000000]").encode(), "derive",
+                  ["4,096 sites"]),
+    "hubbard-40-sites": (b'[lattice]\nshape = "chain"\nsize = [40]\n[site]\ntype = "electron"\n'
+                         b'[[term]]\ntype = "hopping"\nstrength = 1.0\n', "derive",
+                         ["at most 31 such sites"]),
 }
 
 

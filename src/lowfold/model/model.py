@@ -9,7 +9,7 @@ from typing import Mapping
 from lowfold.model.sector import Sector
 from lowfold.errors import ModelError
 from lowfold.model.lattice import Lattice, make_lattice
-from lowfold.model.sites import Site
+from lowfold.model.sites import Site, check_state_space
 from lowfold.model.terms import Term, expand_term
 
 __all__ = ["Model", "PerturbationSpec"]
@@ -35,7 +35,9 @@ class Model:
     """A lattice model, immutable: ``with_parameters`` / ``with_lattice`` return new models.
 
     Conventions (hbar = 1, S = sigma/2, fermion and spin encodings) are those of
-    ``lowfold.sites`` and the README.
+    ``lowfold.model.sites`` and the README.  Construction validates everything that can be
+    decided without building a basis: ``SizeError`` when the states would not fit one int64
+    (``lowfold.model.sites.check_state_space``), ``ModelError`` for any invalid term.
     """
 
     lattice: Lattice
@@ -49,6 +51,7 @@ class Model:
 
     def __post_init__(self):
         object.__setattr__(self, "parameters", MappingProxyType(dict(self.parameters)))
+        check_state_space(self.site, self.lattice.n_sites)     # SizeError: states must fit int64
         labels = [t.label for t in self.terms]
         for label in labels:
             if labels.count(label) > 1:

@@ -16,10 +16,10 @@ except ModuleNotFoundError:  # Python 3.10
     import tomli as tomllib
 
 from lowfold.model.sector import Sector, sector_totals
-from lowfold.errors import ModelError
+from lowfold.errors import ModelError, SizeError
 from lowfold.model.lattice import make_lattice
 from lowfold.model.model import Model, PerturbationSpec
-from lowfold.model.sites import make_site
+from lowfold.model.sites import check_state_space, make_site
 from lowfold.model.terms import TERM_TYPES, TWO_SITE_TYPES, Term
 
 __all__ = ["load_model", "parse_model", "read_toml"]
@@ -80,9 +80,9 @@ def parse_model(data: dict, *, source: str = "<model>") -> Model:
     """Build a :class:`Model` from a parsed TOML document."""
     try:
         return _parse(data, source)
-    except ModelError as exc:
+    except (ModelError, SizeError) as exc:
         message, shown = str(exc), _shown(source)
-        raise ModelError(message if message.startswith(shown) else f"{shown}: {message}") from None
+        raise type(exc)(message if message.startswith(shown) else f"{shown}: {message}") from None
 
 
 def _unknown(table: dict, allowed: set, where: str) -> None:
@@ -120,6 +120,10 @@ def _parse(data: dict, source: str) -> Model:
         raise ModelError("title: must be a string")
     lattice = _parse_lattice(_table(data, "lattice", required=True))
     site = _parse_site(_table(data, "site", required=True))
+    try:
+        check_state_space(site, lattice.n_sites)
+    except SizeError as exc:
+        raise SizeError(f"lattice: {exc}") from None
     parameters = _parse_parameters(_table(data, "parameters", required=False))
     sector = _parse_sector(_table(data, "sector", required=False), site, lattice.n_sites)
     terms = _parse_terms(data.get("term", []), parameters)
@@ -153,8 +157,8 @@ def _parse_lattice(table: dict):
         bonds = table.get("bonds", [])
         try:
             return make_lattice("graph", None, sites=sites, bonds=bonds)
-        except ModelError as exc:
-            raise ModelError(f"lattice: {exc}") from None
+        except (ModelError, SizeError) as exc:
+            raise type(exc)(f"lattice: {exc}") from None
     for key in ("sites", "bonds"):
         if key in table:
             raise ModelError(f"lattice.{key}: only used with shape = \"graph\"")
@@ -165,8 +169,8 @@ def _parse_lattice(table: dict):
         raise ModelError("lattice.size: must be a list of integers, e.g. [4] or [2, 3]")
     try:
         return make_lattice(shape, size, table.get("boundary", "open"))
-    except ModelError as exc:
-        raise ModelError(f"lattice: {exc}") from None
+    except (ModelError, SizeError) as exc:
+        raise type(exc)(f"lattice: {exc}") from None
 
 
 def _parse_site(table: dict):
@@ -179,8 +183,8 @@ def _parse_site(table: dict):
         spin = _number(spin, "site.spin")
     try:
         return make_site(kind, spin=spin, max_occupation=table.get("max_occupation"))
-    except ModelError as exc:
-        raise ModelError(f"site: {exc}") from None
+    except (ModelError, SizeError) as exc:
+        raise type(exc)(f"site: {exc}") from None
 
 
 def _parse_parameters(table: dict) -> dict:
