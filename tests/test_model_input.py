@@ -15,7 +15,7 @@ import pytest
 from lowfold import load_model
 from lowfold.errors import ModelError, SizeError
 from lowfold.model.lattice import make_lattice
-from lowfold.model.model import Model
+from lowfold.model.model import Model, PerturbationSpec
 from lowfold.model.modelfile import read_toml
 from lowfold.model.sites import MAX_RADIX, check_state_space, make_site
 
@@ -155,3 +155,22 @@ def test_model_file_past_the_state_limit_names_the_file(tmp_path):
     assert one_line(exc).startswith(f"{path}: lattice: 63 spin-1/2 sites do not fit")
     with pytest.raises(SizeError):
         load_model(write(tmp_path, SPIN_CHAIN)).with_lattice(size=[70])
+
+
+# ---------------------------------------------------------------------------------------
+# the H0 / V split
+
+
+def test_repeated_unperturbed_label_is_refused(tmp_path):
+    # H0 is the sum of the named terms, each once; ["ising", "ising"] would double it
+    text = SPIN_CHAIN.replace('type = "exchange"', 'type = "exchange"\nlabel = "ising"') + (
+        '[[term]]\ntype = "field"\naxis = "x"\nstrength = 0.1\nlabel = "transverse"\n'
+        '[perturbation]\nunperturbed = ["ising", "ising"]\n')
+    path = write(tmp_path, text)
+    with pytest.raises(ModelError) as exc:
+        load_model(path)
+    assert one_line(exc) == (f"{path}: perturbation.unperturbed: 'ising' is listed twice; "
+                             "name each term of H0 once")
+    with pytest.raises(ModelError, match="listed twice"):
+        PerturbationSpec(("ising", "transverse", "ising"))
+    assert PerturbationSpec(["ising"]).unperturbed == ("ising",)

@@ -44,6 +44,10 @@ CASES = {
     "hubbard-40-sites": (b'[lattice]\nshape = "chain"\nsize = [40]\n[site]\ntype = "electron"\n'
                          b'[[term]]\ntype = "hopping"\nstrength = 1.0\n', "derive",
                          ["at most 31 such sites"]),
+    "unperturbed-twice": ((SPIN_CHAIN.replace('"exchange"', '"exchange"\nlabel = "ising"')
+                           + '[[term]]\ntype = "field"\naxis = "x"\nstrength = 0.1\n'
+                           '[perturbation]\nunperturbed = ["ising", "ising"]\n').encode(),
+                          "derive", ["perturbation.unperturbed: 'ising' is listed twice"]),
 }
 
 

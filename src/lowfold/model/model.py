@@ -21,6 +21,8 @@ class PerturbationSpec:
 
     ``manifold = "lowest"`` takes the lowest degenerate level of H0 (relative tolerance
     ``tolerance``); ``window = (emin, emax)`` takes every H0 level inside the window.
+    H0 is the sum of the terms ``unperturbed`` names, each once (a repeated label is a
+    ``ModelError``: it would count the term twice).
     """
 
     unperturbed: tuple[str, ...]
@@ -28,6 +30,16 @@ class PerturbationSpec:
     manifold: str | None = "lowest"
     window: tuple[float, float] | None = None
     tolerance: float = 1e-9
+
+    def __post_init__(self):
+        if isinstance(self.unperturbed, str):
+            raise ModelError("perturbation.unperturbed: must be a list of term labels, "
+                             f"not the string {self.unperturbed!r}")
+        object.__setattr__(self, "unperturbed", tuple(self.unperturbed))
+        for index, label in enumerate(self.unperturbed):
+            if label in self.unperturbed[:index]:
+                raise ModelError(f"perturbation.unperturbed: {label!r} is listed twice; "
+                                 "name each term of H0 once")
 
 
 @dataclass(frozen=True)
