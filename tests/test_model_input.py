@@ -8,6 +8,7 @@ The same inputs are run through the installed command in ``test_model_input_cli.
 from __future__ import annotations
 
 import tracemalloc
+from dataclasses import replace
 from pathlib import Path
 
 import pytest
@@ -18,6 +19,7 @@ from lowfold.model.lattice import make_lattice
 from lowfold.model.model import Model, PerturbationSpec
 from lowfold.model.modelfile import read_toml
 from lowfold.model.sites import MAX_RADIX, check_state_space, make_site
+from lowfold.model.terms import STRENGTH_LIMIT
 
 SPIN_CHAIN = """\
 title = "Heisenberg chain"
@@ -174,3 +176,55 @@ def test_repeated_unperturbed_label_is_refused(tmp_path):
     with pytest.raises(ModelError, match="listed twice"):
         PerturbationSpec(("ising", "transverse", "ising"))
     assert PerturbationSpec(["ising"]).unperturbed == ("ising",)
+
+
+# ---------------------------------------------------------------------------------------
+# strengths: finite, and small enough that squares of matrix elements stay finite
+
+
+HUBBARD_DIMER = """\
+[lattice]
+shape = "chain"
+size = [2]
+[site]
+type = "electron"
+[parameters]
+t = 1.0
+U = 8.0
+[[term]]
+type = "hopping"
+strength = "t"
+[[term]]
+type = "hubbard"
+strength = "U"
+"""
+
+
+@pytest.mark.parametrize("old, new, key", [
+    ("t = 1.0", "t = 1e308", "parameters.t"),
+    ("t = 1.0", "t = -1e101", "parameters.t"),
+    ("t = 1.0", "t = 1e-200", "parameters.t"),
+    ('strength = "U"', "strength = 1e300", "term[1].strength"),
+    ("t = 1.0", "t = nan", "parameters.t"),
+    ("t = 1.0", "t = inf", "parameters.t"),
+])
+def test_strengths_past_the_float_range_are_refused(tmp_path, old, new, key):
+    # 1e308**2 overflows IEEE-754 doubles (largest 1.8e308); 1e-200**2 underflows to 0
+    path = write(tmp_path, HUBBARD_DIMER.replace(old, new))
+    with pytest.raises(ModelError) as exc:
+        load_model(path)
+    assert one_line(exc).startswith(f"{path}: {key}: ")
+
+
+def test_strength_bound_applies_to_python_models(tmp_path):
+    model = load_model(write(tmp_path, HUBBARD_DIMER))
+    for value in (1e150, float("nan"), -float("inf"), 1e-101, "8"):
+        with pytest.raises(ModelError) as exc:
+            model.with_parameters(U=value)
+        assert one_line(exc).startswith("parameters.U: ")
+    hop = model.terms[0]
+    with pytest.raises(ModelError, match="outside the strengths"):
+        Model(model.lattice, model.site, (replace(hop, strength=2e100),))
+    # the edges of the range and zero are accepted
+    for value in (0.0, STRENGTH_LIMIT, -1 / STRENGTH_LIMIT):
+        assert model.with_parameters(t=value).strength(hop) == value

@@ -48,6 +48,8 @@ CASES = {
                            + '[[term]]\ntype = "field"\naxis = "x"\nstrength = 0.1\n'
                            '[perturbation]\nunperturbed = ["ising", "ising"]\n').encode(),
                           "derive", ["perturbation.unperturbed: 'ising' is listed twice"]),
+    "t-1e308": (SPIN_CHAIN.replace("strength = 1.0", "strength = 1e308").encode(), "spectrum",
+                ["term[0].strength: 1e+308 is outside"]),
 }
 
 

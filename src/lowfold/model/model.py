@@ -10,7 +10,7 @@ from lowfold.model.sector import Sector
 from lowfold.errors import ModelError
 from lowfold.model.lattice import Lattice, make_lattice
 from lowfold.model.sites import Site, check_state_space
-from lowfold.model.terms import Term, expand_term
+from lowfold.model.terms import Term, check_strength, expand_term
 
 __all__ = ["Model", "PerturbationSpec"]
 
@@ -64,6 +64,8 @@ class Model:
     def __post_init__(self):
         object.__setattr__(self, "parameters", MappingProxyType(dict(self.parameters)))
         check_state_space(self.site, self.lattice.n_sites)     # SizeError: states must fit int64
+        for name, value in self.parameters.items():
+            check_strength(value, f"parameters.{name}")
         labels = [t.label for t in self.terms]
         for label in labels:
             if labels.count(label) > 1:
@@ -103,8 +105,8 @@ class Model:
             if term.strength not in self.parameters:
                 raise ModelError(f"term {term.label!r}: strength names parameter "
                                  f"{term.strength!r}, which is not defined in [parameters]")
-            return float(self.parameters[term.strength])
-        return term.strength
+            return check_strength(self.parameters[term.strength], f"parameters.{term.strength}")
+        return check_strength(term.strength, f"term {term.label!r}: strength")
 
     def products(self, labels=None):
         """Expanded local-operator products of the named terms (default: all), as

@@ -20,7 +20,7 @@ from lowfold.errors import ModelError, SizeError
 from lowfold.model.lattice import make_lattice
 from lowfold.model.model import Model, PerturbationSpec
 from lowfold.model.sites import check_state_space, make_site
-from lowfold.model.terms import TERM_TYPES, TWO_SITE_TYPES, Term
+from lowfold.model.terms import TERM_TYPES, TWO_SITE_TYPES, Term, check_strength
 
 __all__ = ["load_model", "parse_model", "read_toml"]
 
@@ -188,7 +188,8 @@ def _parse_site(table: dict):
 
 
 def _parse_parameters(table: dict) -> dict:
-    return {name: _number(value, f"parameters.{name}") for name, value in table.items()}
+    return {name: check_strength(_number(value, f"parameters.{name}"), f"parameters.{name}")
+            for name, value in table.items()}
 
 
 def _parse_sector(table: dict, site, n_sites: int) -> Sector:
@@ -234,7 +235,7 @@ def _parse_terms(entries, parameters: dict) -> tuple[Term, ...]:
             if strength not in parameters:
                 raise ModelError(f"{where}.strength: parameter {strength!r} is not defined in [parameters]")
         else:
-            strength = _number(strength, f"{where}.strength")
+            strength = check_strength(_number(strength, f"{where}.strength"), f"{where}.strength")
         bonds, sites = table.get("bonds"), table.get("sites")
         if kind in TWO_SITE_TYPES and sites is not None:
             raise ModelError(f"{where}.sites: a {kind} term acts on bonds; use 'bonds'")
