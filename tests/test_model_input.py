@@ -7,6 +7,7 @@ The same inputs are run through the installed command in ``test_model_input_cli.
 
 from __future__ import annotations
 
+import json
 import tracemalloc
 from dataclasses import replace
 from pathlib import Path
@@ -19,7 +20,7 @@ from lowfold.model.lattice import make_lattice
 from lowfold.model.model import Model, PerturbationSpec
 from lowfold.model.modelfile import read_toml
 from lowfold.model.sites import MAX_RADIX, check_state_space, make_site
-from lowfold.model.terms import STRENGTH_LIMIT
+from lowfold.model.terms import STRENGTH_LIMIT, Term
 
 SPIN_CHAIN = """\
 title = "Heisenberg chain"
@@ -228,3 +229,32 @@ def test_strength_bound_applies_to_python_models(tmp_path):
     # the edges of the range and zero are accepted
     for value in (0.0, STRENGTH_LIMIT, -1 / STRENGTH_LIMIT):
         assert model.with_parameters(t=value).strength(hop) == value
+
+
+# ---------------------------------------------------------------------------------------
+# labels are one printable line; titles are kept as given
+
+
+@pytest.mark.parametrize("label", ["ex\nchange", "tab\there", "bell\a", "zero\u200bwidth", ""])
+def test_labels_with_control_characters_are_refused(tmp_path, label):
+    text = SPIN_CHAIN.replace('type = "exchange"', f'type = "exchange"\nlabel = {json.dumps(label)}')
+    path = write(tmp_path, text)
+    with pytest.raises(ModelError) as exc:
+        load_model(path)
+    assert one_line(exc).startswith(f"{path}: term[0].label")
+    with pytest.raises(ModelError):
+        Term(label, "exchange", 1.0)
+
+
+def test_parameter_names_with_control_characters_are_refused(tmp_path):
+    path = write(tmp_path, HUBBARD_DIMER.replace("t = 1.0", '"t\\n" = 1.0\nt = 1.0'))
+    with pytest.raises(ModelError) as exc:
+        load_model(path)
+    assert "'t\\n' contains the control character" in one_line(exc)
+
+
+@pytest.mark.parametrize("title", ["a [/bold] b", "[bold red", "two\nlines", "h\u00e9p \u2192 \u03c0"])
+def test_titles_are_kept_exactly_as_given(tmp_path, title):
+    model = load_model(write(tmp_path, f"title = {json.dumps(title)}\n" + SPIN_CHAIN.split("\n", 1)[1]))
+    assert model.title == title
+    assert replace(model).title == title and model.with_parameters().title == title

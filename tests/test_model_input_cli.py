@@ -50,6 +50,8 @@ CASES = {
                           "derive", ["perturbation.unperturbed: 'ising' is listed twice"]),
     "t-1e308": (SPIN_CHAIN.replace("strength = 1.0", "strength = 1e308").encode(), "spectrum",
                 ["term[0].strength: 1e+308 is outside"]),
+    "label-newline": (SPIN_CHAIN.replace('"exchange"', '"exchange"\nlabel = "a\\nb"').encode(),
+                      "spectrum", ["term[0].label 'a\\nb' contains the control character"]),
 }
 
 

@@ -10,7 +10,7 @@ from lowfold.model.sector import Sector
 from lowfold.errors import ModelError
 from lowfold.model.lattice import Lattice, make_lattice
 from lowfold.model.sites import Site, check_state_space
-from lowfold.model.terms import Term, check_strength, expand_term
+from lowfold.model.terms import Term, check_label, check_strength, expand_term
 
 __all__ = ["Model", "PerturbationSpec"]
 
@@ -50,6 +50,8 @@ class Model:
     ``lowfold.model.sites`` and the README.  Construction validates everything that can be
     decided without building a basis: ``SizeError`` when the states would not fit one int64
     (``lowfold.model.sites.check_state_space``), ``ModelError`` for any invalid term.
+    Term labels and parameter names are one printable line; ``title`` is any text and is
+    kept exactly as given (whoever displays it escapes it for the display).
     """
 
     lattice: Lattice
@@ -65,7 +67,10 @@ class Model:
         object.__setattr__(self, "parameters", MappingProxyType(dict(self.parameters)))
         check_state_space(self.site, self.lattice.n_sites)     # SizeError: states must fit int64
         for name, value in self.parameters.items():
+            check_label(name, "parameters: name")
             check_strength(value, f"parameters.{name}")
+        if not isinstance(self.title, str):
+            raise ModelError(f"title: must be a string, got {self.title!r}")
         labels = [t.label for t in self.terms]
         for label in labels:
             if labels.count(label) > 1:

@@ -20,7 +20,7 @@ from lowfold.errors import ModelError, SizeError
 from lowfold.model.lattice import make_lattice
 from lowfold.model.model import Model, PerturbationSpec
 from lowfold.model.sites import check_state_space, make_site
-from lowfold.model.terms import TERM_TYPES, TWO_SITE_TYPES, Term, check_strength
+from lowfold.model.terms import TERM_TYPES, TWO_SITE_TYPES, Term, check_label, check_strength
 
 __all__ = ["load_model", "parse_model", "read_toml"]
 
@@ -188,6 +188,8 @@ def _parse_site(table: dict):
 
 
 def _parse_parameters(table: dict) -> dict:
+    for name in table:
+        check_label(name, "parameters: name")
     return {name: check_strength(_number(value, f"parameters.{name}"), f"parameters.{name}")
             for name, value in table.items()}
 
@@ -224,8 +226,7 @@ def _parse_terms(entries, parameters: dict) -> tuple[Term, ...]:
         if kind not in TERM_TYPES:
             raise ModelError(f"{where}.type: unknown term type {kind!r} (known: {', '.join(TERM_TYPES)})")
         label = table.get("label", kind)
-        if not isinstance(label, str) or not label:
-            raise ModelError(f"{where}.label: must be a non-empty string")
+        check_label(label, f"{where}.label")
         if label in [t.label for t in terms]:
             raise ModelError(f"{where}.label: {label!r} is used twice; give each term a unique label")
         strength = table.get("strength")

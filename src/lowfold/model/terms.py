@@ -29,7 +29,7 @@ from lowfold.errors import ModelError
 from lowfold.model.lattice import Lattice
 from lowfold.model.sites import Site
 
-__all__ = ["Term", "TERM_TYPES", "STRENGTH_LIMIT", "check_strength", "expand_term"]
+__all__ = ["Term", "TERM_TYPES", "STRENGTH_LIMIT", "check_label", "check_strength", "expand_term"]
 
 STRENGTH_LIMIT = 1e100      # see the module docstring
 
@@ -46,7 +46,8 @@ class Term:
 
     ``strength`` is a number or the name of a parameter; ``bonds`` is a bond class name or a
     tuple of pairs (two-site terms and two-operator products on bonds); ``sites`` is
-    ``"all"`` or a tuple of site indices (one-site terms and on-site products).
+    ``"all"`` or a tuple of site indices (one-site terms and on-site products).  The label
+    is one printable line (:func:`check_label`): it is shown in messages and tables.
     """
 
     label: str
@@ -57,6 +58,20 @@ class Term:
     axis: str | None = None
     operators: tuple[str, ...] | None = None
     conjugate: bool = False
+
+    def __post_init__(self):
+        check_label(self.label, "term label")
+
+
+def check_label(name, what: str = "label") -> None:
+    """Raise ``ModelError`` unless ``name`` is a non-empty string of printable characters
+    (no newline, tab or other control or format character; ``str.isprintable``)."""
+    if not isinstance(name, str) or not name:
+        raise ModelError(f"{what}: must be a non-empty string, got {name!r}")
+    if not name.isprintable():
+        bad = next(c for c in name if not c.isprintable())
+        raise ModelError(f"{what} {name!r} contains the control character {bad!r}; "
+                         "use printable characters on one line")
 
 
 def check_strength(value, where: str) -> float | complex:
