@@ -16,8 +16,9 @@ import pytest
 
 from helpers.exact import (followed_eigenvalue, heisenberg, label_index, pfeuty_per_site,
                            ring_coefficients, ring_energy, spin_z_total, tfim_dense)
-from helpers.series_models import (DIMER_AND_FREE_SPIN, GRADED_FIELDS, HUBBARD_DIMER, IONIC_HUBBARD,
-                                   NO_SPLIT, SPIN_DIMERS, ZEEMAN_CHAIN, graded_dense,
+from helpers.modelfiles import hubbard_text
+from helpers.series_models import (DIMER_AND_FREE_SPIN, GRADED_FIELDS, HUBBARD_DIMER, NO_SPLIT,
+                                   SPIN_DIMERS, ZEEMAN_CHAIN, graded_dense, ionic_hubbard_file,
                                    offset_dimer_file, one_spin_file, singlet_block, tfim_file)
 from lowfold import ModelError, build_basis, hamiltonian_matrix, state_series
 
@@ -155,7 +156,7 @@ def test_second_order_equals_dense_sum_over_states(load):
     # at cost Delta - U, so E2 = -6 t^2 / (Delta - U) and |psi_1> has six amplitudes
     # of size t / (Delta - U).
     t, gap = 0.2, 2.0
-    model = load(IONIC_HUBBARD.format(t=t, order=4))
+    model = load(ionic_hubbard_file(t, 4))
     result = state_series(model)
     basis = build_basis(model)
     h0 = hamiltonian_matrix(model, basis, list(model.unperturbed_labels)).toarray()
@@ -319,8 +320,7 @@ def test_degenerate_h0_level_points_to_derive(load, text, state):
 def test_uncoupled_degenerate_partners_warn_and_proceed(load):
     # Three singly occupied dots, all spins up: no hop is allowed (Pauli), so the 7 other
     # singly occupied H0 states are never reached and |uuu> stays an eigenstate at E = 0.
-    text = HUBBARD_DIMER.replace("size = [2]", "size = [3]").replace(
-        "particles = 2\nsz = 0", "particles = 3")
+    text = hubbard_text("chain", [3], t=0.1, U=1.0, order=4)
     result = state_series(load(text), state="uuu")
     assert result.reference == "uuu"
     np.testing.assert_allclose(result.energies, 0.0, atol=1e-15)

@@ -69,12 +69,14 @@ def spin_text(shape, size, boundary, terms: str, *, spin=0.5, sz=None) -> str:
 
 def hubbard_text(shape: str, size, *, boundary: str = "open", t: float = 0.1, U: float = 1.0,
                  particles: int | None = None, sz=None, order: int | None = None,
-                 hubbard_sites: str | None = None, extra: str = "") -> str:
+                 unperturbed=("hubbard",), hubbard_sites: str | None = None, terms: str = "",
+                 title: str = "Hubbard cluster", extra: str = "") -> str:
     """Hubbard model ``-t sum c+_i c_j + U sum n_up n_dn`` on nearest-neighbour bonds.
 
     ``particles`` defaults to one electron per site (half filling); ``sz`` fixes the total
-    S^z.  With ``order``, a ``[perturbation]`` table splits H0 = the Hubbard U from V = the
-    hopping, to that order.  ``hubbard_sites`` writes the Hubbard term's ``sites`` key
+    S^z.  ``terms``: further ``[[term]]`` tables.  With ``order``, a ``[perturbation]`` table
+    makes H0 of the terms labelled ``unperturbed`` (the Hubbard U alone by default) and V
+    of the rest, to that order.  ``hubbard_sites`` writes the Hubbard term's ``sites`` key
     (absent: every site, the default); ``extra`` is appended as it is.
     """
     if particles is None:
@@ -82,9 +84,9 @@ def hubbard_text(shape: str, size, *, boundary: str = "open", t: float = 0.1, U:
     sector = f"particles = {particles}" + ("" if sz is None else f"\nsz = {sz}")
     sites = "" if hubbard_sites is None else f"\nsites = {toml_value(hubbard_sites)}"
     perturbation = "" if order is None else (
-        f'[perturbation]\nunperturbed = ["hubbard"]\norder = {order}\n')
+        f"[perturbation]\nunperturbed = {toml_value(list(unperturbed))}\norder = {order}\n")
     return f"""
-title = "Hubbard cluster"
+title = "{title}"
 [lattice]
 shape = "{shape}"
 size = {list(size)}
@@ -103,6 +105,7 @@ bonds = "nearest"
 [[term]]
 type = "hubbard"
 strength = "U"{sites}
+{terms}
 {perturbation}{extra}
 """
 

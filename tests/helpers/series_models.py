@@ -9,6 +9,7 @@ from __future__ import annotations
 import numpy as np
 
 from helpers.exact import PAULI_Z, heisenberg, site_op
+from helpers.modelfiles import hubbard_text, term_text
 
 TFIM_RING = """
 title = "transverse-field Ising ring"
@@ -66,81 +67,6 @@ label = "link"
 [perturbation]
 unperturbed = ["dimer"]
 order = {order}
-"""
-
-IONIC_HUBBARD = """
-title = "ionic Hubbard chain, charge-density-wave limit"
-# Deep wells (-Delta) on the even sites of an open chain at half filling; with Delta > U the
-# unique H0 ground state has both electrons of a pair on each even site.  V = hopping.
-[lattice]
-shape = "chain"
-size = [4]
-boundary = "open"
-[site]
-type = "electron"
-[sector]
-particles = 4
-sz = 0
-[parameters]
-t = {t}
-U = 1.0
-Delta = 3.0
-[[term]]
-type = "hopping"
-strength = "t"
-bonds = "nearest"
-[[term]]
-type = "hubbard"
-strength = "U"
-[[term]]
-type = "potential"
-strength = -3.0
-sites = [0, 2]
-label = "wells"
-[perturbation]
-unperturbed = ["hubbard", "wells"]
-order = {order}
-"""
-
-OFFSET_DIMER = """
-title = "Hubbard dimer with a potential offset"
-# Two electrons on two dots; dot 0 lies D = 2 deeper (U = 1), so the pair on dot 0 is the
-# unique H0 ground state.  V = hopping t{tilt_note}.
-[lattice]
-shape = "chain"
-size = [2]
-boundary = "open"
-[site]
-type = "electron"
-[sector]
-particles = 2
-sz = 0
-[parameters]
-t = {t}
-U = 1.0
-[[term]]
-type = "hopping"
-strength = "t"
-bonds = "nearest"
-[[term]]
-type = "hubbard"
-strength = "U"
-[[term]]
-type = "potential"
-strength = -2.0
-sites = [0]
-label = "offset"
-{tilt}
-[perturbation]
-unperturbed = ["hubbard", "offset"]
-order = {order}
-"""
-
-TILT = """[[term]]
-type = "potential"
-strength = 1.0
-sites = [0]
-label = "tilt"
 """
 
 GRADED_FIELDS = """
@@ -246,34 +172,6 @@ unperturbed = ["bias"]
 order = 8
 """
 
-HUBBARD_DIMER = """
-title = "half-filled Hubbard dimer"
-# H0 = U sum n_up n_dn: the two singly occupied S^z = 0 states are degenerate and the
-# hopping couples them at second order.
-[lattice]
-shape = "chain"
-size = [2]
-boundary = "open"
-[site]
-type = "electron"
-[sector]
-particles = 2
-sz = 0
-[parameters]
-t = 0.1
-U = 1.0
-[[term]]
-type = "hopping"
-strength = "t"
-bonds = "nearest"
-[[term]]
-type = "hubbard"
-strength = "U"
-[perturbation]
-unperturbed = ["hubbard"]
-order = 4
-"""
-
 DIMER_AND_FREE_SPIN = """
 title = "a spin dimer beside a free spin"
 # H0 = S0.S1: its ground level (singlet x free spin) is twofold degenerate.
@@ -319,9 +217,31 @@ def tfim_file(L, g, order):
 
 
 def offset_dimer_file(t, order, tilt=False):
-    return OFFSET_DIMER.format(t=t, order=order, tilt=TILT if tilt else "",
-                               tilt_note=", plus a tilt +1 n_0 that undoes half the offset"
-                               if tilt else "")
+    """Hubbard dimer with a potential offset: two electrons on two dots; dot 0 lies D = 2
+    deeper (U = 1), so the pair on dot 0 is the unique H0 ground state.  V = hopping t,
+    plus (``tilt``) a term +1 n_0 that undoes half the offset."""
+    terms = term_text("potential", -2.0, sites=[0], label="offset")
+    if tilt:
+        terms += term_text("potential", 1.0, sites=[0], label="tilt")
+    return hubbard_text("chain", [2], t=t, U=1.0, sz=0, order=order,
+                        unperturbed=["hubbard", "offset"], terms=terms,
+                        title="Hubbard dimer with a potential offset")
+
+
+def ionic_hubbard_file(t, order):
+    """Ionic Hubbard chain, charge-density-wave limit: deep wells (-Delta = -3) on the even
+    sites of an open 4-site chain at half filling; with Delta > U = 1 the unique H0 ground
+    state has both electrons of a pair on each even site.  V = hopping t."""
+    return hubbard_text("chain", [4], t=t, U=1.0, sz=0, order=order,
+                        unperturbed=["hubbard", "wells"],
+                        terms=term_text("potential", -3.0, sites=[0, 2], label="wells"),
+                        title="ionic Hubbard chain, charge-density-wave limit")
+
+
+# H0 = U sum n_up n_dn: the two singly occupied S^z = 0 states are degenerate and the
+# hopping couples them at second order.
+HUBBARD_DIMER = hubbard_text("chain", [2], t=0.1, U=1.0, sz=0, order=4,
+                             title="half-filled Hubbard dimer")
 
 
 def one_spin_file(r, b):
