@@ -100,7 +100,7 @@ def test_error_scaling_random_spin_models(seed):
 
 
 def test_effective_hamiltonian_matches_exact_rotation():
-    # DESIGN.md oracle (Bravyi, DiVincenzo and Loss 2011, Sec. 3): the exact effective
+    # Oracle (Bravyi, DiVincenzo and Loss 2011, Sec. 3): the exact effective
     # Hamiltonian by direct rotation differs from the series summed to order n by
     # O(lambda^(n+1)) as an operator.  Dense 32-state random spin model, complex V.
     model = model_of(random_spin_text(6))
@@ -199,7 +199,7 @@ SECOND_ORDER_CASES = {
 @pytest.mark.parametrize("case", sorted(SECOND_ORDER_CASES))
 def test_matrix_free_second_order_equals_recursion(case):
     # The matrix-free formula (H2)_ab = 1/2 sum_m V_am V_mb [1/(E_a - E_m) + 1/(E_b - E_m)]
-    # (DESIGN.md; Bravyi, DiVincenzo and Loss 2011, Sec. 3) used at order 2 must equal the
+    # (Bravyi, DiVincenzo and Loss 2011, Sec. 3) used at order 2 must equal the
     # second order of the generator recursion used at order 3.
     model = SECOND_ORDER_CASES[case]()
     free = derive(model, 2, check=False).orders[2].toarray()
