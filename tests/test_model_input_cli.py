@@ -9,18 +9,10 @@ from __future__ import annotations
 
 import pytest
 
+from helpers.bad_models import PLAIN_SPIN_CHAIN
 from helpers.cli import one_line_error, run_all
 
-SPIN_CHAIN = """\
-[lattice]
-shape = "chain"
-size = [4]
-[site]
-type = "spin"
-[[term]]
-type = "exchange"
-strength = 1.0
-"""
+SPIN_CHAIN = PLAIN_SPIN_CHAIN
 
 # name -> (file contents (bytes) or None for a path made by the fixture, command, words
 # the single error line must contain)

@@ -57,6 +57,19 @@ type = "hubbard"
 strength = "U"
 """
 
+# The smallest spin model file (no title, sector or parameters), which the input-guard tests
+# of test_model_input*.py break in one place.
+PLAIN_SPIN_CHAIN = """\
+[lattice]
+shape = "chain"
+size = [4]
+[site]
+type = "spin"
+[[term]]
+type = "exchange"
+strength = 1.0
+"""
+
 
 def edit(text: str, old: str, new: str) -> str:
     """``text`` with the single occurrence of ``old`` replaced by ``new``."""
