@@ -61,6 +61,11 @@ def start_local_cluster(workers: int | None = None, **kwargs):
                "processes": True, "env": dict(WORKER_ENV), "dashboard_address": None,
                "silence_logs": logging.ERROR}
     options.update(kwargs)
+    if options["dashboard_address"] is None and "scheduler_kwargs" not in kwargs:
+        # Without a dashboard the scheduler still serves its metrics over HTTP, on port
+        # 8787 by default, and warns on stderr when another cluster holds that port (it
+        # then takes another): ask for a free port at once.
+        options["scheduler_kwargs"] = {"dashboard": False, "dashboard_address": ":0"}
     # The nanny sets its pre-spawn variables before starting a worker process (and again
     # when it restarts one), taking a value from os.environ before the dask config: set
     # both while the nannies are made, then restore the environment of this process.
