@@ -18,7 +18,6 @@ from concurrent.futures import ThreadPoolExecutor
 import numpy as np
 import pytest
 
-import lowfold.plots.sweep_figure
 from lowfold import cli
 from test_state_series import (
     DIMER_AND_FREE_SPIN,
@@ -34,7 +33,6 @@ from test_state_series import (
 )
 
 LOWFOLD = shutil.which("lowfold")
-HAS_PLOT_SWEEP = hasattr(lowfold.plots, "plot_sweep")
 
 
 def run(*args: str) -> subprocess.CompletedProcess:
@@ -107,9 +105,7 @@ def runs(tmp_path_factory):
     jobs = {name: (model, extra) for name, (model, extra, _) in ERRORS.items()
             if name in SUBPROCESS_ERRORS}
     jobs.update({"json": ("ring", ["--json"]), "table": ("ring", [])})
-    if HAS_PLOT_SWEEP:
-        jobs["plot"] = ("zeeman", ["--sweep", "lambda=0:2:21", "--plot",
-                                   str(directory / "sweep.png")])
+    jobs["plot"] = ("zeeman", ["--sweep", "lambda=0:2:21", "--plot", str(directory / "sweep.png")])
     with ThreadPoolExecutor(max_workers=4) as pool:
         futures = {name: pool.submit(run, "series", str(paths[model]), *extra)
                    for name, (model, extra) in jobs.items()}
@@ -220,7 +216,6 @@ def test_terminal_output_runs(runs):
     assert not proc.stdout.lstrip().startswith("{")
 
 
-@pytest.mark.skipif(not HAS_PLOT_SWEEP, reason="lowfold.plots has no plot_sweep yet")
 def test_plot_writes_a_png(runs):
     directory, proc = runs["plot"]
     assert proc.returncode == 0, proc.stderr
