@@ -58,14 +58,11 @@ def start_local_cluster(workers: int | None = None, **kwargs):
     from distributed import LocalCluster
 
     options = {"n_workers": workers or available_cores(), "threads_per_worker": 1,
-               "processes": True, "env": dict(WORKER_ENV), "dashboard_address": None,
+               "processes": True, "env": dict(WORKER_ENV), "dashboard_address": ":0",
                "silence_logs": logging.ERROR}
+    # ":0": any free port for the scheduler's web server; the default (8787) makes a second
+    # scan on the same machine fail to start ("Port 8787 is already in use").
     options.update(kwargs)
-    if options["dashboard_address"] is None and "scheduler_kwargs" not in kwargs:
-        # Without a dashboard the scheduler still serves its metrics over HTTP, on port
-        # 8787 by default, and warns on stderr when another cluster holds that port (it
-        # then takes another): ask for a free port at once.
-        options["scheduler_kwargs"] = {"dashboard": False, "dashboard_address": ":0"}
     # The nanny sets its pre-spawn variables before starting a worker process (and again
     # when it restarts one), taking a value from os.environ before the dask config: set
     # both while the nannies are made, then restore the environment of this process.

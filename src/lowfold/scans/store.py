@@ -20,7 +20,7 @@ Record layout (``format = 1``)::
      "result": {...} | null,
      "error": null | {"type": "ManifoldError", "message": "...", "deterministic": true}}
 
-``result`` is the JSON object that ``lowfold TASK --json`` prints.  ``deterministic`` is true for the
+``result`` is the task's JSON output (see docs/output.md).  ``deterministic`` is true for the
 project's own errors (an impossible point fails the same way every time) and false for
 crashes (a killed worker, an unexpected exception), which a resumed scan retries.
 """
