@@ -8,17 +8,21 @@ The same inputs are run through the installed command in ``test_model_input_cli.
 from __future__ import annotations
 
 import json
+import math
 import tracemalloc
 from dataclasses import replace
+from fractions import Fraction
 from pathlib import Path
 
 import pytest
 
 from lowfold import load_model
+from lowfold.build.basis import sector_size
 from lowfold.errors import ModelError, SizeError
 from lowfold.model.lattice import make_lattice
 from lowfold.model.model import Model, PerturbationSpec
 from lowfold.model.modelfile import read_toml
+from lowfold.model.sector import Sector
 from lowfold.model.sites import MAX_RADIX, check_state_space, make_site
 from lowfold.model.terms import STRENGTH_LIMIT, Term
 
@@ -258,3 +262,18 @@ def test_titles_are_kept_exactly_as_given(tmp_path, title):
     model = load_model(write(tmp_path, f"title = {json.dumps(title)}\n" + SPIN_CHAIN.split("\n", 1)[1]))
     assert model.title == title
     assert replace(model).title == title and model.with_parameters().title == title
+
+
+# ---------------------------------------------------------------------------------------
+# sectors
+
+
+@pytest.mark.parametrize("n_sites, sz", [(2, 0), (4, 0), (4, 1), (3, Fraction(1, 2))])
+def test_electron_sector_with_sz_alone_is_the_union_over_particle_numbers(n_sites, sz):
+    # Blocks with N_up - N_dn = 2 sz: sum_k C(L, k + 2sz) C(L, k) = C(2L, L + 2sz)
+    # (Vandermonde's identity, common practice).
+    site = make_site("electron")
+    expected = math.comb(2 * n_sites, n_sites + int(2 * sz))
+    assert sector_size(site, n_sites, Sector(None, Fraction(sz))) == expected
+    model = Model(make_lattice("chain", [n_sites]), site, (), Sector(sz=Fraction(sz)))
+    assert model.sector.particles is None

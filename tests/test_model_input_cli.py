@@ -7,6 +7,7 @@ numba).  The same inputs are checked through the Python API in ``test_model_inpu
 
 from __future__ import annotations
 
+import json
 import os
 import shutil
 import subprocess
@@ -55,6 +56,17 @@ CASES = {
 }
 
 
+# name -> (file contents, command and options); these must succeed
+GOOD = {
+    # Electron sector fixing S^z alone: every particle number with N_up - N_dn = 0, on three
+    # sites sum_k C(3, k)^2 = C(6, 3) = 20 states (Vandermonde's identity, common practice).
+    "electron-sz-only": (b'[lattice]\nshape = "chain"\nsize = [3]\n[site]\ntype = "electron"\n'
+                         b'[sector]\nsz = 0\n[[term]]\ntype = "hopping"\nstrength = 1.0\n'
+                         b'[[term]]\ntype = "hubbard"\nstrength = 4.0\n',
+                         ["spectrum", "--json", "--levels", "1"]),
+}
+
+
 def run(*args: str) -> subprocess.CompletedProcess:
     env = {k: v for k, v in os.environ.items()
            if k not in ("FORCE_COLOR", "TTY_COMPATIBLE", "TTY_INTERACTIVE", "COLUMNS")}
@@ -77,6 +89,10 @@ def runs(tmp_path_factory):
         if contents is not None:
             path.write_bytes(contents)
         jobs[name] = [command, str(path)]
+    for name, (contents, args) in GOOD.items():
+        path = directory / f"{name}.toml"
+        path.write_bytes(contents)
+        jobs[name] = [args[0], str(path), *args[1:]]
     with ThreadPoolExecutor(max_workers=2) as pool:
         futures = {name: pool.submit(run, *args) for name, args in jobs.items()}
         return {name: future.result() for name, future in futures.items()}
@@ -91,3 +107,9 @@ def test_bad_model_is_one_line_and_exit_2(runs, name):
     assert len(lines) == 1, proc.stderr
     for words in CASES[name][2]:
         assert words in lines[0], lines[0]
+
+
+def test_electron_sector_with_sz_alone_is_accepted(runs):
+    proc = runs["electron-sz-only"]
+    assert proc.returncode == 0, proc.stderr
+    assert json.loads(proc.stdout)["dimension"] == 20

@@ -18,7 +18,11 @@ __all__ = ["Sector", "sector_totals"]
 
 @dataclass(frozen=True)
 class Sector:
-    """Conserved quantities: total particle number and total S^z (``None`` = not fixed)."""
+    """Conserved quantities: total particle number and total S^z (``None`` = not fixed).
+
+    Spins take ``sz``; spinless fermions and bosons take ``particles``; electrons take
+    either or both (``sz`` alone: every particle number, ``N_up - N_dn = 2 sz``).
+    """
 
     particles: int | None = None
     sz: Fraction | None = None
