@@ -54,6 +54,13 @@ CASES = {
     "label-newline": (SPIN_CHAIN.replace('"exchange"', '"exchange"\nlabel = "a\\nb"').encode(),
                       "spectrum", ["term[0].label 'a\\nb' contains the control character"]),
 }
+# S+ S- on bonds without conjugate = true is not Hermitian: every command refuses it alike
+NOT_HERMITIAN = (SPIN_CHAIN.replace('"exchange"', '"exchange"\nlabel = "heisenberg"')
+                 + '[[term]]\ntype = "product"\nlabel = "flip"\noperators = ["S+", "S-"]\n'
+                 'strength = 0.1\n[perturbation]\nunperturbed = ["heisenberg"]\n').encode()
+for _command in ("spectrum", "series", "derive"):
+    CASES[f"not-hermitian-{_command}"] = (NOT_HERMITIAN, _command, [
+        "term[1] (flip) is not Hermitian (on sites 0, 1); add conjugate = true"])
 
 
 # name -> (file contents, command and options); these must succeed
