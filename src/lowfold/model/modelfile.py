@@ -1,4 +1,4 @@
-"""Reading and validating model files (TOML, the format of DESIGN.md).
+"""Reading and validating model files (TOML, the format of docs/model-files.md).
 
 Every problem is a :class:`~lowfold.errors.ModelError` whose one-line message names the file
 and the key, e.g. ``dots.toml: term[2].strength: parameter 'V' is not defined``.

@@ -5,7 +5,7 @@ encoding of many-body states.  Every site is made of ``modes`` *slots*; a slot h
 digit in ``0 .. radix - 1``.  Slot ``site + mode * n_sites`` stores mode ``mode`` of site
 ``site``, and a many-body state is the integer ``sum_slot digit(slot) * radix**slot``.
 
-Encodings (the conventions of DESIGN.md, also written in the README):
+Encodings (also written in the README, "Conventions"):
 
 =================  =====  =====  ===================================================
 type               modes  radix  digit

@@ -2,7 +2,7 @@
 
 A :class:`Term` is what one ``[[term]]`` table of a model file says.  :func:`expand_term`
 turns it into *products*: ``(coefficient, ((operator_name, site), ...))`` with the strength
-already applied, the leftmost operator first, following the conventions of DESIGN.md:
+already applied, the leftmost operator first, following docs/model-files.md (``[[term]]``):
 
 - ``hopping``:      ``-s sum_bonds sum_spin (c+_i c_j + h.c.)`` (bosons ``b+_i b_j + h.c.``)
 - ``hubbard``:      ``s sum_i n_i,up n_i,dn`` (bosons ``(s/2) sum_i n_i (n_i - 1)``)
