@@ -15,7 +15,6 @@ import subprocess
 import numpy as np
 import pytest
 
-import lowfold.plots.sweep_figure
 from lowfold import cli
 from helpers.cli import one_json_object, one_line_error, run_all
 from helpers.modelfiles import write_models
@@ -23,7 +22,6 @@ from helpers.exact import label_index, ring_coefficients, ring_energy, spin_z_to
 from helpers.series_models import (DIMER_AND_FREE_SPIN, GRADED_FIELDS, NO_SPLIT, ZEEMAN_CHAIN,
                                    graded_dense, tfim_file)
 
-HAS_PLOT_SWEEP = hasattr(lowfold.plots, "plot_sweep")
 
 
 MODELS = {"ring": tfim_file(6, 1.0, 14), "trimer": DIMER_AND_FREE_SPIN, "nosplit": NO_SPLIT,
@@ -76,9 +74,7 @@ def runs(tmp_path_factory):
     jobs = {name: (model, extra) for name, (model, extra, _) in ERRORS.items()
             if name in SUBPROCESS_ERRORS}
     jobs.update({"json": ("ring", ["--json"]), "table": ("ring", [])})
-    if HAS_PLOT_SWEEP:
-        jobs["plot"] = ("zeeman", ["--sweep", "lambda=0:2:21", "--plot",
-                                   str(directory / "sweep.png")])
+    jobs["plot"] = ("zeeman", ["--sweep", "lambda=0:2:21", "--plot", str(directory / "sweep.png")])
     done = run_all({name: ["series", paths[model], *extra] for name, (model, extra) in jobs.items()})
     return {name: (directory, proc) for name, proc in done.items()}
 
@@ -173,7 +169,6 @@ def test_terminal_output_runs(runs):
     assert not proc.stdout.lstrip().startswith("{")
 
 
-@pytest.mark.skipif(not HAS_PLOT_SWEEP, reason="lowfold.plots has no plot_sweep yet")
 def test_plot_writes_a_png(runs):
     directory, proc = runs["plot"]
     assert proc.returncode == 0, proc.stderr
