@@ -9,8 +9,9 @@ state corrections use intermediate normalisation, ``<psi0|psi_k> = 0`` for ``k >
 
 Only products of H0 and V with vectors are used.  With a diagonal H0 the reduced
 resolvent is elementwise (a numba kernel); with a general H0 each order solves
-``(E0 - H0)|psi_k> = Q(...)`` on the complement of ``psi0`` with MINRES or GMRES
-(Dalgarno-Lewis / Sternheimer style), so the spectrum of H0 is never needed.
+``(E0 - H0)|psi_k> = Q(...)`` on the complement of ``psi0`` (Dalgarno-Lewis / Sternheimer
+style): densely for small problems, with MINRES or GMRES for large ones, where the
+spectrum of H0 is never needed.
 
 By default the energies use Wigner's 2n+1 rule (E. P. Wigner, 1935), here in its
 intermediate-normalisation form for Hermitian H0 and V (derived from the recursion by
@@ -30,14 +31,15 @@ import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
 from lowfold._kernels.series import rs_state_update
-from lowfold.errors import ConvergenceError, ModelError
+from lowfold.errors import ModelError
+from lowfold.perturbation.resolvent import DENSE_LIMIT, DenseResolvent, KrylovResolvent, dense_matrix
 
 __all__ = ["SeriesResult", "rayleigh_schrodinger", "rayleigh_schrodinger_general"]
 
 _METHODS = ("wigner", "direct")
 _TOP_CONTRIBUTIONS = 10
 _HERMITICITY_TOL = 1e-10
-_REFINEMENTS = 6
+_SOLVERS = ("auto", "dense", "minres", "gmres")
 
 
 @dataclass(frozen=True, eq=False)
@@ -426,98 +428,8 @@ def rayleigh_schrodinger(h0, v, reference, order, *, method="wigner", keep_state
 # -- general H0
 
 
-class _ComplementSolver:
-    """Solve ``(E0 - H0) x = b`` for ``b`` orthogonal to ``psi0``, with ``x`` orthogonal too."""
-
-    def __init__(self, apply_h0, psi0, e0, dtype, *, solver, rtol, maxiter, preconditioner,
-                 degeneracy_tol):
-        n = psi0.size
-        self.psi0, self.e0, self.apply_h0 = psi0, e0, apply_h0
-        self.operator = spla.LinearOperator((n, n), matvec=self._apply, dtype=dtype)
-        self.solver, self.rtol, self.maxiter = solver, rtol, maxiter
-        self.preconditioner, self.degeneracy_tol = preconditioner, degeneracy_tol
-        self.iterations = 0
-        self.accept = max(1e3 * rtol, 1e-13)
-
-    def _project(self, x):
-        return x - self.psi0 * np.vdot(self.psi0, x)
-
-    def _apply(self, x):
-        x = self._project(np.ravel(x))
-        return self._project(self.e0 * x - self.apply_h0(x))
-
-    def _count(self, *_):
-        self.iterations += 1
-
-    def _krylov(self, b):
-        if self.solver == "minres":
-            x, info = spla.minres(self.operator, b, rtol=self.rtol, maxiter=self.maxiter,
-                                  M=self.preconditioner, callback=self._count)
-        else:
-            x, info = spla.gmres(self.operator, b, rtol=self.rtol, atol=0.0,
-                                 maxiter=self.maxiter, M=self.preconditioner,
-                                 callback=self._count, callback_type="pr_norm")
-        return self._project(x), info
-
-    def _near_null(self, r, steps=40):
-        """True if ``E0 - H0`` has an eigenvalue within ``degeneracy_tol`` of zero seen by
-        ``r``: a Lanczos Ritz pair ``(theta, y)`` from ``r`` with ``|theta| +
-        ||A y - theta y|| <= degeneracy_tol`` proves one (Kahan's residual bound)."""
-        basis = [r / np.linalg.norm(r)]
-        for _ in range(min(steps, r.size - 1)):
-            q = self._apply(basis[-1])
-            for u in basis:  # full reorthogonalisation, twice
-                q = q - u * np.vdot(u, q)
-            for u in basis:
-                q = q - u * np.vdot(u, q)
-            norm_q = np.linalg.norm(q)
-            if norm_q <= 1e-14 * max(1.0, abs(self.e0)):
-                break
-            basis.append(q / norm_q)
-        vectors = np.array(basis)
-        images = np.array([self._apply(u) for u in vectors])
-        theta, coef = np.linalg.eigh(vectors.conj() @ images.T)
-        for t, c in zip(theta, coef.T):
-            y = c @ vectors
-            if abs(t) + np.linalg.norm(c @ images - t * y) <= self.degeneracy_tol:
-                return True
-        return False
-
-    def __call__(self, b, k):
-        """Solve at order ``k``, refining on the true residual (rounding drifts the
-        recurrence residual of the Krylov solvers away from it)."""
-        norm_b = np.linalg.norm(b)
-        if norm_b == 0.0:
-            return np.zeros_like(b)
-        x = np.zeros_like(b)
-        residual, rel = b, 1.0
-        for _ in range(_REFINEMENTS):
-            dx, info = self._krylov(residual)
-            x = x + dx
-            new_residual = b - self._apply(x)
-            new_rel = np.linalg.norm(new_residual) / norm_b
-            stalled = new_rel > 0.5 * rel
-            residual, rel = new_residual, new_rel
-            if rel <= self.accept or stalled:
-                break
-        if rel <= self.accept:
-            return x
-        if self._near_null(residual):
-            raise ModelError(
-                f"at order {k} the right-hand side has a component on a level of H0 within "
-                "degeneracy_tol of the reference energy, so V couples the reference to a "
-                "degenerate partner: a single-state series does not apply; treat the "
-                "degenerate manifold with `lowfold derive`"
-            )
-        raise ConvergenceError(
-            f"{self.solver} did not reach relative residual {self.rtol:g} at order {k} "
-            f"(got {rel:.3g}, info={info}); raise maxiter or pass a preconditioner",
-            partial={"order": k, "relative_residual": rel},
-        )
-
-
 def rayleigh_schrodinger_general(h0, v, psi0, e0, order, *, method="wigner", keep_states=False,
-                                 solver="minres", rtol=1e-12, maxiter=None, preconditioner=None,
+                                 solver="auto", rtol=1e-12, maxiter=None, preconditioner=None,
                                  degeneracy_tol=1e-6, eigen_tol=1e-8):
     """Perturbation series of the eigenvalue of ``H0 + V`` that grows out of ``psi0``.
 
@@ -538,8 +450,12 @@ def rayleigh_schrodinger_general(h0, v, psi0, e0, order, *, method="wigner", kee
         As in :func:`rayleigh_schrodinger`.
     keep_states : bool
         Return ``|psi_1> .. |psi_order>``.
-    solver : {"minres", "gmres"}
-        Iterative solver; MINRES suits the Hermitian, indefinite ``E0 - H0``.
+    solver : {"auto", "dense", "minres", "gmres"}
+        ``"dense"`` diagonalises H0 once and applies the reduced resolvent exactly (small
+        problems); ``"minres"`` / ``"gmres"`` solve each order iteratively (MINRES suits the
+        Hermitian, indefinite ``E0 - H0``); ``"auto"`` takes the dense route up to
+        ``resolvent.DENSE_LIMIT`` states, MINRES above (Krylov solvers stall on tiny
+        problems).
     rtol : float
         Relative residual asked of the solver at each order.
     maxiter : int, optional
@@ -547,8 +463,10 @@ def rayleigh_schrodinger_general(h0, v, psi0, e0, order, *, method="wigner", kee
     preconditioner : LinearOperator, optional
         Passed to the solver as ``M`` (for MINRES it must be Hermitian positive definite).
     degeneracy_tol : float
-        If a solve fails and ``(E0 - H0)`` shrinks its residual below ``degeneracy_tol``
-        times its norm, the failure is read as a coupled degenerate level of H0.
+        Levels of H0 within ``degeneracy_tol * max(1, ||H0||)`` of ``e0`` count as degenerate
+        with it (dense route); a failed iterative solve whose residual is carried by a level
+        of ``E0 - H0`` within ``degeneracy_tol`` times its scale of zero is read as a coupled
+        degenerate level (iterative routes).
     eigen_tol : float
         Allowed ``||H0 psi0 - e0 psi0||``, relative to ``max(1, |e0|)``.
 
@@ -568,12 +486,13 @@ def rayleigh_schrodinger_general(h0, v, psi0, e0, order, *, method="wigner", kee
     Notes
     -----
     Degenerate levels of H0 that V never couples to the reference are harmless here (the
-    Krylov spaces stay orthogonal to them) but, unlike on the diagonal route, they cannot
-    be reported without the spectrum of H0.
+    Krylov spaces stay orthogonal to them; the dense route drops their rounding-level
+    components) but, unlike on the diagonal route, they are not reported.  See
+    :mod:`lowfold.perturbation.resolvent` for the two solvers.
     """
     _check_order_method(order, method)
-    if solver not in ("minres", "gmres"):
-        raise ModelError(f"solver must be 'minres' or 'gmres', got {solver!r}")
+    if solver not in _SOLVERS:
+        raise ModelError(f"solver must be one of {_SOLVERS}, got {solver!r}")
     psi0 = np.asarray(psi0)
     if psi0.ndim != 1 or psi0.size == 0:
         raise ModelError("psi0 must be a non-empty 1-D array")
@@ -591,14 +510,21 @@ def rayleigh_schrodinger_general(h0, v, psi0, e0, order, *, method="wigner", kee
     if np.linalg.norm(apply_h0(psi0) - e0 * psi0) > eigen_tol * max(1.0, abs(e0)):
         raise ModelError("psi0 is not an eigenvector of H0 with eigenvalue e0 (within eigen_tol)")
 
-    solve = _ComplementSolver(apply_h0, psi0, e0, dtype, solver=solver, rtol=rtol,
-                              maxiter=maxiter, preconditioner=preconditioner,
-                              degeneracy_tol=degeneracy_tol)
+    if solver == "dense" or (solver == "auto" and n <= DENSE_LIMIT):
+        solve = DenseResolvent(dense_matrix(h0, apply_h0, n, dtype), psi0, e0,
+                               degeneracy_tol=degeneracy_tol)
+    else:
+        solve = KrylovResolvent(apply_h0, psi0, e0, dtype,
+                                solver="minres" if solver == "auto" else solver, rtol=rtol,
+                                maxiter=maxiter, preconditioner=preconditioner,
+                                degeneracy_tol=degeneracy_tol)
 
     def correction(w, states, energies, k, out):
         b = w - energies[1:k] @ states[k - 1 : 0 : -1]
         b = b - psi0 * np.vdot(psi0, b)
-        out[:] = solve(b, k)
+        scale = np.linalg.norm(w) + np.abs(energies[1:k]) @ np.linalg.norm(states[k - 1 : 0 : -1],
+                                                                           axis=1)
+        out[:] = solve(b, k, scale)
 
     length, need_last_w = _chain_request(order, method, keep_states)
     chain = _run_chain(apply_v, correction, psi0, e0, length, need_last_w)
