@@ -1,0 +1,110 @@
+"""Reliability of the convergence judgements: the Domb-Sykes estimate on exactly known
+series (with rounding-level and sign-pair coefficients), the divergence warnings, errors of
+an exact check that stop falling, and a series that continues another level than the exact
+one followed through an avoided crossing."""
+
+from __future__ import annotations
+
+from fractions import Fraction
+
+import numpy as np
+import pytest
+from scipy.integrate import quad
+
+from lowfold.perturbation.convergence import drop_roundoff, ratio_test
+from lowfold.perturbation.series import rayleigh_schrodinger_general
+
+
+def binom_half(m: int) -> float:
+    """C(1/2, m), the Taylor coefficients of sqrt(1 + x) (binomial series)."""
+    out = Fraction(1)
+    for i in range(m):
+        out *= (Fraction(1, 2) - i) / (i + 1)
+    return float(out)
+
+
+def two_site_series(t: float, u: float, order: int):
+    """Rayleigh-Schroedinger series of the two-site Hubbard ground state, hopping as H0 and
+    U as V (closed form E = (U - sqrt(U^2 + 16 t^2))/2, exact), and its validity ratio."""
+    h0 = -t * np.array([[0, 0, 1, 1], [0, 0, 1, 1], [1, 1, 0, 0], [1, 1, 0, 0]], dtype=float)
+    v = u * np.diag([1.0, 1.0, 0.0, 0.0])
+    values, vectors = np.linalg.eigh(h0)
+    return rayleigh_schrodinger_general(h0, v, vectors[:, 0], values[0], order).energies
+
+
+# ----------------------------------------------------------------------------- ratio test
+
+
+def test_geometric_series_radius_one_on_both_sides():
+    # 1/(1 - x) = sum x^n and 1/(1 + x) = sum (-x)^n: pole at x = +1 and x = -1 (exact).
+    for sign, side in ((1.0, "positive"), (-1.0, "negative")):
+        result = ratio_test(sign ** np.arange(20))
+        assert result["reliable"] and result["reason"] is None
+        assert result["variable"] == "lambda" and result["side"] == side
+        assert result["radius"] == pytest.approx(1.0, abs=1e-12)
+        assert result["exponent"] == pytest.approx(1.0, abs=1e-12)  # a simple pole
+        assert result["fit_residual"] < 1e-12
+
+
+def test_even_series_with_rounding_level_odd_orders():
+    # sqrt(1 + x^2): branch points at x = +-i, radius 1 (binomial series); odd orders at
+    # rounding level 1e-19 must not hide the structure (the old estimate gave 1e-14).
+    c = np.zeros(25)
+    c[::2] = [binom_half(m) for m in range(13)]
+    noisy = c.copy()
+    noisy[1::2] = 1e-19 * np.cos(np.arange(12))
+    np.testing.assert_array_equal(drop_roundoff(noisy)[1::2], 0.0)
+    result = ratio_test(noisy)
+    assert result["variable"] == "lambda^2" and result["structure"] == "even"
+    assert result["side"] == "negative" and result["reliable"]
+    assert result["radius"] == pytest.approx(1.0, rel=1e-10)
+
+
+@pytest.mark.parametrize("u", [0.5, 2.0, 10.0])
+def test_two_site_hubbard_radius_is_4t_over_u(u):
+    # E(lambda) = (lambda U - sqrt(lambda^2 U^2 + 16 t^2))/2 has its branch points at
+    # lambda = +-4it/U: radius 4t/U on the imaginary axis (exact); the linear term U/2 and
+    # the rounding-level odd orders of the computed series do not change the variable.
+    t = 1.0
+    result = ratio_test(two_site_series(t, u, 16))
+    assert result["variable"] == "lambda^2" and result["side"] == "negative"
+    assert result["reliable"], result["reason"]
+    assert result["radius"] == pytest.approx(4 * t / u, rel=1e-6)
+    assert result["exponent"] == pytest.approx(-0.5, abs=1e-6)  # square-root branch point
+
+
+def test_sign_pairs_are_fitted_in_lambda_squared():
+    # (1 + lambda) / (1 + lambda^2 / R^2): coefficients 1, 1, -1/R^2, -1/R^2, ... (signs in
+    # pairs), poles at +-iR (exact).  The series converges at lambda = 1 for R = 1.5; a fit
+    # of c_n / c_{n-1} in lambda gave nonsense.
+    r = 1.5
+    c = np.array([(-1.0 / r**2) ** (n // 2) for n in range(24)])
+    assert abs(np.sum(c) - 2 / (1 + 1 / r**2)) < 1e-3  # converges at lambda = 1
+    result = ratio_test(c)
+    assert result["structure"] == "pairs" and result["variable"] == "lambda^2"
+    assert result["reliable"] and result["radius"] == pytest.approx(r, rel=1e-12)
+
+
+def test_pfeuty_transverse_ising_chain_radius():
+    # Pfeuty, Ann. Phys. 57, 79 (1970): ground-state energy per site of the transverse-field
+    # Ising chain, e(g) = -(1/pi) int_0^pi sqrt(1 + g^2 + 2 g cos k) dk in units of the
+    # field, critical at g = 1.  Since |1 + g e^{ik}| = sqrt(1 + g^2 + 2 g cos k), the
+    # average of |sum_a C(1/2, a) g^a e^{iak}|^2 gives e(g) = -sum_m C(1/2, m)^2 g^{2m}.
+    c = np.zeros(41)
+    c[::2] = [-binom_half(m) ** 2 for m in range(21)]
+    g = 0.4
+    integral = -quad(lambda k: np.sqrt(1 + g * g + 2 * g * np.cos(k)), 0, np.pi)[0] / np.pi
+    assert np.polyval(c[::-1], g) == pytest.approx(integral, abs=1e-13)
+    result = ratio_test(c)
+    assert result["variable"] == "lambda^2" and result["side"] == "positive"
+    assert result["reliable"] and result["radius"] == pytest.approx(1.0, abs=0.01)
+
+
+def test_complex_pair_at_a_generic_angle_is_flagged_unreliable():
+    # 1/(1 - 2 cos(theta) x / R + x^2 / R^2): c_n = sin((n+1) theta) / (sin(theta) R^n)
+    # (Chebyshev U_n), poles at R e^{+-i theta}: the ratios oscillate and no line fits.
+    theta, r = 1.0, 2.0
+    c = np.array([np.sin((n + 1) * theta) / (np.sin(theta) * r**n) for n in range(30)])
+    result = ratio_test(c)
+    assert not result["reliable"] and "ratio" in result["reason"]
+    assert result["relative_residual"] > 0.05
