@@ -32,7 +32,12 @@ import scipy.sparse.linalg as spla
 
 from lowfold._kernels.series import rs_state_update
 from lowfold.errors import ModelError
-from lowfold.perturbation.resolvent import DENSE_LIMIT, DenseResolvent, KrylovResolvent, dense_matrix
+from lowfold.perturbation.resolvent import (
+    DENSE_LIMIT,
+    DenseResolvent,
+    KrylovResolvent,
+    dense_matrix,
+)
 
 __all__ = ["SeriesResult", "rayleigh_schrodinger", "rayleigh_schrodinger_general"]
 
