@@ -11,7 +11,14 @@ import numpy as np
 import pytest
 from scipy.integrate import quad
 
-from lowfold.perturbation.convergence import drop_roundoff, ratio_test
+from lowfold import derive, load_model
+from lowfold.perturbation.convergence import (
+    VALIDITY_WARNING,
+    convergence_warnings,
+    drop_roundoff,
+    ratio_test,
+)
+from lowfold.perturbation.diagnostics import check_divergence
 from lowfold.perturbation.series import rayleigh_schrodinger_general
 
 
@@ -83,6 +90,7 @@ def test_sign_pairs_are_fitted_in_lambda_squared():
     result = ratio_test(c)
     assert result["structure"] == "pairs" and result["variable"] == "lambda^2"
     assert result["reliable"] and result["radius"] == pytest.approx(r, rel=1e-12)
+    assert convergence_warnings(c, lam=1.0) == []
 
 
 def test_pfeuty_transverse_ising_chain_radius():
@@ -108,3 +116,65 @@ def test_complex_pair_at_a_generic_angle_is_flagged_unreliable():
     result = ratio_test(c)
     assert not result["reliable"] and "ratio" in result["reason"]
     assert result["relative_residual"] > 0.05
+
+
+# ------------------------------------------------------------------------- divergence
+
+
+def test_two_site_series_warns_beyond_its_radius_only():
+    # U = 10, t = 1: radius 4t/U = 0.4 < 1 (exact), validity ratio 2.5
+    diverging = convergence_warnings(two_site_series(1.0, 10.0, 12), validity_ratio=2.5)
+    text = " ".join(diverging)
+    assert len(diverging) >= 3
+    assert "0.4" in text and "singularity" in text
+    assert "grow" in text and "validity ratio" in text
+    # U = 0.5: radius 8, validity ratio 0.125: the series is to be trusted at lambda = 1
+    assert convergence_warnings(two_site_series(1.0, 0.5, 12), validity_ratio=0.125) == []
+    # ... but not at lambda = 9, past the radius 8
+    assert any("singularity" in w for w in convergence_warnings(two_site_series(1.0, 0.5, 12),
+                                                                lam=9.0))
+
+
+def test_validity_ratio_warning_threshold():
+    # a two-level system [[0, g], [g, Delta]] diverges for g / Delta > 1/2 (branch points
+    # at |lambda| = Delta / (2 g), exact): the documented threshold.
+    c = [binom_half(m) for m in range(8)]
+    assert VALIDITY_WARNING == 0.5
+    assert any("1e+04" in w for w in convergence_warnings(c, validity_ratio=1e4))
+    assert not any("validity" in w for w in convergence_warnings(c, validity_ratio=0.1))
+
+
+def test_pade_spread_warning_on_the_euler_series():
+    # Euler's series sum (-1)^n n! x^n (Stieltjes; Baker, Essentials of Pade Approximants,
+    # 1975): radius zero, slowly converging Pade approximants.
+    import math
+
+    c = np.array([(-1) ** n * math.factorial(n) for n in range(9)], dtype=float)
+    warnings = convergence_warnings(c)
+    assert any("Pade" in w for w in warnings)
+    assert any("grow" in w for w in warnings)
+
+
+def test_check_divergence_on_synthetic_errors():
+    falling = {n: 10.0 ** -n for n in range(12)}
+    assert check_divergence(falling) == []
+    plateau = {n: max(10.0 ** -n, 3e-15 * (1 + n % 3)) for n in range(30)}  # rounding floor
+    assert check_divergence(plateau) == []
+    rising = [0.4, 0.4, 0.16, 0.16, 0.155, 0.155, 0.2, 0.2, 0.3, 0.3, 0.49, 1.5, 2.4]
+    (sentence,) = check_divergence(rising)
+    assert "order 4" in sentence and "order 12" in sentence
+
+
+def test_check_divergence_on_the_two_site_derive(tmp_path):
+    # two-site Hubbard, t/U = 3/8 with U as H0: the check errors fall to order 4 and grow
+    # after (the Schrieffer-Wolff series of the exchange sqrt(U^2 + 16 t^2) - U has radius
+    # t/U = 1/4 in the hopping, exact from the branch points of the closed form).
+    path = tmp_path / "d.toml"
+    path.write_text(
+        'title = "two sites"\n[lattice]\nshape = "chain"\nsize = [2]\n[site]\n'
+        'type = "electron"\n[sector]\nparticles = 2\n[parameters]\nt = 0.375\nU = 1.0\n'
+        '[[term]]\ntype = "hopping"\nstrength = "t"\n[[term]]\ntype = "hubbard"\n'
+        'strength = "U"\n[perturbation]\nunperturbed = ["hubbard"]\norder = 16\n')
+    result = derive(load_model(path), 16)
+    warnings = check_divergence(result.check["by_order"])
+    assert len(warnings) == 1 and "stopped converging" in warnings[0]

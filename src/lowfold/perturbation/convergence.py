@@ -16,10 +16,13 @@ from scipy.interpolate import pade
 from lowfold.errors import ModelError
 
 __all__ = ["PadeEstimate", "partial_sums", "pade_table", "pade_estimate", "ratio_test",
-           "is_even_series", "drop_roundoff", "ROUNDOFF_RTOL", "RESIDUAL_WARNING"]
+           "is_even_series", "drop_roundoff", "convergence_warnings",
+           "ROUNDOFF_RTOL", "RESIDUAL_WARNING", "VALIDITY_WARNING", "SPREAD_WARNING"]
 
 ROUNDOFF_RTOL = 1e-9      # |c_n| below this times its neighbours' size: rounding, read as 0
 RESIDUAL_WARNING = 0.05   # Domb-Sykes fit: rms deviation / |intercept| above this: unreliable
+VALIDITY_WARNING = 0.5    # largest |V_mn| / |E_n - E_m| (times lambda) above this: warn
+SPREAD_WARNING = 0.01     # Pade spread above this fraction of the correction: warn
 
 
 def _coefficients(coeffs, minimum=1):
@@ -280,3 +283,71 @@ def ratio_test(coeffs, *, fit_points=None, even=None):
         "reason": "; ".join(problems) if problems else None,
     }
 
+
+def _growing_terms(c, lam, last=3):
+    """True if the last ``last`` non-zero terms ``|c_n lam^n|`` (n >= 1) grow strictly."""
+    terms = np.abs(c[1:] * lam ** np.arange(1, c.size))
+    terms = terms[terms > 0]
+    return terms.size >= last and bool(np.all(np.diff(terms[-last:]) > 0))
+
+
+def convergence_warnings(coeffs, *, lam=1.0, validity_ratio=None, ratio=None, pade=None):
+    """Plain sentences saying why the series should not be trusted at ``lambda = lam``.
+
+    Parameters
+    ----------
+    coeffs : sequence
+        ``c_0 .. c_N`` of ``E(lambda) = sum c_n lambda^n``.
+    lam : float
+        The coupling factor asked for (1 = V as given).
+    validity_ratio : float, optional
+        Largest ``|V_mn| / |E_n - E_m|`` at ``lambda = 1``; warned about above
+        ``VALIDITY_WARNING = 0.5`` once multiplied by ``|lam|`` (a two-level system
+        ``[[0, g], [g, Delta]]`` has its branch points at ``|lambda| = Delta / (2|g|)``: the
+        series diverges beyond a ratio of 1/2, exact).
+    ratio : dict, optional
+        A :func:`ratio_test` result (computed here when omitted; skipped if impossible).
+    pade : PadeEstimate, optional
+        Computed here when omitted.
+
+    Returns
+    -------
+    list of str
+        One sentence per reason, empty when none applies: a reliable ratio-test radius at
+        or below ``|lam|``; terms that still grow over the last three non-zero orders; a
+        large validity ratio; Pade approximants of the top orders spreading by more than
+        ``SPREAD_WARNING`` of the correction ``value - c_0``.
+    """
+    c = drop_roundoff(coeffs)
+    lam = float(lam)
+    out = []
+    if ratio is None and c.size >= 3:
+        try:
+            ratio = ratio_test(c)
+        except ModelError:
+            ratio = None
+    if ratio is not None and ratio.get("reliable", True) and ratio.get("radius") is not None \
+            and ratio["radius"] <= abs(lam):
+        out.append(f"the ratio test puts the nearest singularity at |lambda| = "
+                   f"{ratio['radius']:.3g}, not beyond lambda = {lam:g}: the series diverges "
+                   "there; prefer the Pade value or an exact result")
+    if _growing_terms(c, lam):
+        out.append(f"the terms of the series still grow at the highest orders at lambda = "
+                   f"{lam:g}: the partial sums do not converge")
+    if validity_ratio is not None and abs(lam) * validity_ratio > VALIDITY_WARNING:
+        out.append(f"the validity ratio |V_mn| / |E_n - E_m| is {abs(lam) * validity_ratio:.3g} "
+                   f"at lambda = {lam:g}, above {VALIDITY_WARNING:g}: perturbation theory is "
+                   "not expected to converge")
+    if pade is None and c.size >= 2:
+        try:
+            pade = pade_estimate(c, lam)
+        except (ModelError, np.linalg.LinAlgError, ValueError):
+            pade = None
+    if pade is not None and np.isfinite(pade.spread):
+        correction = abs(pade.value - c[0])
+        floor = 1e-10 * max(1.0, abs(pade.value))
+        if pade.spread > max(SPREAD_WARNING * correction, floor):
+            out.append(f"the Pade approximants of the highest orders disagree by "
+                       f"{pade.spread:.3g} at lambda = {lam:g} (the correction to order 0 is "
+                       f"{correction:.3g}): the resummed value is uncertain")
+    return out
