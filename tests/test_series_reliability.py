@@ -16,10 +16,14 @@ from lowfold.perturbation.convergence import (
     VALIDITY_WARNING,
     convergence_warnings,
     drop_roundoff,
+    pade_estimate,
     ratio_test,
 )
-from lowfold.perturbation.diagnostics import check_divergence
-from lowfold.perturbation.series import rayleigh_schrodinger_general
+from lowfold.perturbation.diagnostics import check_divergence, followed_level_warnings
+from lowfold.perturbation.series import (
+    rayleigh_schrodinger,
+    rayleigh_schrodinger_general,
+)
 
 
 def binom_half(m: int) -> float:
@@ -178,3 +182,25 @@ def test_check_divergence_on_the_two_site_derive(tmp_path):
     result = derive(load_model(path), 16)
     warnings = check_divergence(result.check["by_order"])
     assert len(warnings) == 1 and "stopped converging" in warnings[0]
+
+
+# ------------------------------------------------------------------- different levels
+
+
+def test_series_past_an_avoided_crossing_continues_the_other_level():
+    # Two levels 0 and 1/2 - 2 lambda coupled by g lambda: they cross near lambda = 1/4,
+    # avoided by about 2 g / 4.  The series of level 0 (radius ~1/4) resummed by Pade gives
+    # at lambda = 1 the diabatic level (the upper eigenvalue), while the exact level followed
+    # adiabatically from the reference is the lower one (2x2 eigenvalues, exact).
+    g = 0.01
+    h0, v = np.array([0.0, 0.5]), np.array([[0.0, g], [g, -2.0]])
+    series = rayleigh_schrodinger(h0, v, 0, 20)
+    pade = pade_estimate(series.energies, 1.0)
+    lower, upper = np.linalg.eigvalsh(np.diag(h0) + v)
+    assert pade.value == pytest.approx(upper, abs=1e-8)
+    (sentence,) = followed_level_warnings(pade.value, pade.spread, lower)
+    assert "different levels" in sentence
+    # away from the crossing (lambda = 0.1, before it) the two agree: no warning
+    small = pade_estimate(series.energies, 0.1)
+    exact = np.linalg.eigvalsh(np.diag(h0) + 0.1 * v)[0]
+    assert followed_level_warnings(small.value, small.spread, exact, lam=0.1) == []
