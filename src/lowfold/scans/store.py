@@ -114,8 +114,14 @@ class ResultStore:
 
     Examples
     --------
-    >>> store = ResultStore(tmp_path / "out")            # doctest: +SKIP
-    >>> store.put({"key": "abc", "status": "ok", ...})   # doctest: +SKIP
+    >>> import tempfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> store = ResultStore(tmp.name)
+    >>> store.put({"key": "abc", "status": "ok", "result": {"energies": [-1.0]}}).name
+    'abc.json'
+    >>> store.get("abc")["status"], store.keys()
+    ('ok', ['abc'])
+    >>> tmp.cleanup()
     """
 
     def __init__(self, directory: str | os.PathLike):
