@@ -5,10 +5,9 @@ one followed through an avoided crossing."""
 
 from __future__ import annotations
 
-from fractions import Fraction
-
 import numpy as np
 import pytest
+from helpers.exact import binom_half
 from scipy.integrate import quad
 
 from lowfold import derive, load_model
@@ -24,14 +23,6 @@ from lowfold.perturbation.series import (
     rayleigh_schrodinger,
     rayleigh_schrodinger_general,
 )
-
-
-def binom_half(m: int) -> float:
-    """C(1/2, m), the Taylor coefficients of sqrt(1 + x) (binomial series)."""
-    out = Fraction(1)
-    for i in range(m):
-        out *= (Fraction(1, 2) - i) / (i + 1)
-    return float(out)
 
 
 def two_site_series(t: float, u: float, order: int):
@@ -61,7 +52,7 @@ def test_even_series_with_rounding_level_odd_orders():
     # sqrt(1 + x^2): branch points at x = +-i, radius 1 (binomial series); odd orders at
     # rounding level 1e-19 must not hide the structure (the old estimate gave 1e-14).
     c = np.zeros(25)
-    c[::2] = [binom_half(m) for m in range(13)]
+    c[::2] = [float(binom_half(m)) for m in range(13)]
     noisy = c.copy()
     noisy[1::2] = 1e-19 * np.cos(np.arange(12))
     np.testing.assert_array_equal(drop_roundoff(noisy)[1::2], 0.0)
@@ -103,7 +94,7 @@ def test_pfeuty_transverse_ising_chain_radius():
     # field, critical at g = 1.  Since |1 + g e^{ik}| = sqrt(1 + g^2 + 2 g cos k), the
     # average of |sum_a C(1/2, a) g^a e^{iak}|^2 gives e(g) = -sum_m C(1/2, m)^2 g^{2m}.
     c = np.zeros(41)
-    c[::2] = [-binom_half(m) ** 2 for m in range(21)]
+    c[::2] = [-float(binom_half(m)) ** 2 for m in range(21)]
     g = 0.4
     integral = -quad(lambda k: np.sqrt(1 + g * g + 2 * g * np.cos(k)), 0, np.pi)[0] / np.pi
     assert np.polyval(c[::-1], g) == pytest.approx(integral, abs=1e-13)
@@ -142,7 +133,7 @@ def test_two_site_series_warns_beyond_its_radius_only():
 def test_validity_ratio_warning_threshold():
     # a two-level system [[0, g], [g, Delta]] diverges for g / Delta > 1/2 (branch points
     # at |lambda| = Delta / (2 g), exact): the documented threshold.
-    c = [binom_half(m) for m in range(8)]
+    c = [float(binom_half(m)) for m in range(8)]
     assert VALIDITY_WARNING == 0.5
     assert any("1e+04" in w for w in convergence_warnings(c, validity_ratio=1e4))
     assert not any("validity" in w for w in convergence_warnings(c, validity_ratio=0.1))

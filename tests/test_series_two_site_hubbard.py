@@ -18,19 +18,12 @@ from fractions import Fraction
 
 import numpy as np
 import pytest
+from helpers.exact import binom_half
 
 from lowfold import load_model, state_series
 from lowfold.perturbation.series import rayleigh_schrodinger_general
 
 ORDER = 12
-
-
-def binom_half(m: int) -> Fraction:
-    """C(1/2, m) exactly (binomial series of sqrt(1 + x))."""
-    out = Fraction(1)
-    for i in range(m):
-        out *= (Fraction(1, 2) - i) / (i + 1)
-    return out
 
 
 def closed_form_coefficients(t: float, u: float, order: int) -> np.ndarray:
