@@ -86,8 +86,8 @@ def hubbard(shape: str, size: tuple, boundary: str = "open", t: float = 0.1, U: 
 
 
 @cache
-def hubbard_result(shape, size, order, t=0.1, U=1.0, check=True):
-    return derive(hubbard(shape, size, t=t, U=U, order=order), order, check=check)
+def hubbard_result(shape, size, order, t=0.1, U=1.0, compare_exact=True):
+    return derive(hubbard(shape, size, t=t, U=U, order=order), order, compare_exact=compare_exact)
 
 
 def anderson_text(eps_d: float, U: float, V: float) -> str:
@@ -243,8 +243,8 @@ def test_hubbard_dimer_exchange_to_eighth_order():
         else:
             assert abs(value) < 1e-14, m
     found = result.recognised[("exchange", (0, 1))]
-    assert found == {"2": "4", "4": "-16", "6": "128", "8": "-1280"}
-    assert result.ratio_scale == "t^n/U^(n-1)"
+    assert found.coefficients == {2: "4", 4: "-16", 6: "128", 8: "-1280"}
+    assert found.scale == "t^n/U^(n-1)"
     # what the sum misses is the next term of the same expansion, (7/256)(U/2)(16x)^5 =
     # 14336 t^10/U^9 (the one after it is -12 t^2/U^2 times smaller)
     closed = (np.sqrt(U**2 + 16 * t**2) - U) / 2
@@ -253,7 +253,7 @@ def test_hubbard_dimer_exchange_to_eighth_order():
     constant = coupling(result, "constant", ())
     for m, c in expected.items():
         assert constant[m] == pytest.approx(-c / 4 * t**m / U ** (m - 1), rel=1e-8)
-    assert result.spin_form and result.check["by_order"]["8"]["max_abs_error"] < 1e-5
+    assert result.spin_form and result.check.max_abs_error[8] < 1e-5
 
 
 # ----------------------------------------------------------------------------- open chain
@@ -269,7 +269,7 @@ def test_open_chain_fourth_order_takahashi():
         assert orders[2] == pytest.approx(4 * t**2 / U, rel=1e-10)
         assert orders[4] == pytest.approx(-16 * t**4 / U**3, rel=1e-8)
         assert abs(orders[1]) + abs(orders[3]) < 1e-14
-        assert result.recognised[("exchange", bond)] == {"2": "4", "4": "-16"}
+        assert result.recognised[("exchange", bond)].coefficients == {2: "4", 4: "-16"}
     for pair in [(1, 3), (2, 4)]:
         orders = coupling(result, "exchange", pair)
         assert abs(orders[2]) < 1e-14
@@ -277,7 +277,7 @@ def test_open_chain_fourth_order_takahashi():
     for pair in [(1, 4), (0, 3), (2, 5)]:
         assert coupling(result, "exchange", pair) == {}
     assert not result.residual
-    errors = [result.check["by_order"][str(m)]["max_abs_error"] for m in (0, 2, 4)]
+    errors = [result.check.max_abs_error[m] for m in (0, 2, 4)]
     assert errors[0] > errors[1] > errors[2]
 
 
@@ -308,7 +308,7 @@ def test_anderson_impurity_kondo_exchange(eps_d, U):
     assert np.allclose(result.manifold.energies, eps_d)
     assert result.gap == pytest.approx(min(eps_d + U, -eps_d))
     # exact check: the error of the fourth order is O(V^6)
-    assert result.check["by_order"]["4"]["max_abs_error"] < 1e-5
+    assert result.check.max_abs_error[4] < 1e-5
 
 
 # ----------------------------------------------------------------------------- error scaling
@@ -321,17 +321,17 @@ def test_error_scaling_random_spin_models(seed):
     # seeds, e.g. 1, the odd orders shift the levels very little and the spectrum error of
     # the even orders falls faster at these couplings: allowed by the bound, not tested.)
     model = model_of(random_spin_text(seed))
-    result = derive(model, 6, check_scaling=True)
+    result = derive(model, 6, fit_scaling=True)
     assert result.manifold.dimension == 4 and not result.spin_form
     for n in range(1, 7):
-        assert result.scaling[str(n)]["ok"], (n, result.scaling[str(n)])
+        assert result.scaling[n].ok, (n, result.scaling[n])
     # independent fit, at smaller couplings (lambda = 0.6, 0.45, 0.3 of the file's V), with
     # our own dense diagonalisation of the whole sector
     factors = [0.6, 0.45, 0.3]
     errors = []
     for factor in factors:
         small = scaled(model, factor)
-        res = derive(small, 6, check=False)
+        res = derive(small, 6, compare_exact=False)
         _, h, _ = full_sector(small)
         exact = la.eigvalsh(h)[:res.manifold.dimension]
         errors.append([np.max(np.abs(la.eigvalsh(res.matrix(n)) - exact)) for n in range(7)])
@@ -350,7 +350,7 @@ def test_effective_hamiltonian_matches_exact_rotation():
     differences = []
     for factor in factors:
         small = scaled(model, factor)
-        result = derive(small, 6, check=False)
+        result = derive(small, 6, compare_exact=False)
         _, h, p_index = full_sector(small)
         exact = exact_effective_hamiltonian(h, p_index)
         differences.append([np.max(np.abs(result.matrix(n) - exact)) for n in range(7)])
@@ -365,9 +365,9 @@ def test_effective_hamiltonian_matches_exact_rotation():
 def test_hubbard_error_powers_with_vanishing_odd_orders():
     # Hubbard chain: the odd orders vanish at half filling (common practice; Takahashi 1977),
     # so the error of order 2k and 2k+1 both fall like (t/U)^(2k+2).
-    result = derive(hubbard("chain", (4,), t=0.08, order=4), 4, check_scaling=True)
-    powers = {int(n): v["power"] for n, v in result.scaling.items()}
-    assert all(result.scaling[str(n)]["ok"] for n in range(1, 5))
+    result = derive(hubbard("chain", (4,), t=0.08, order=4), 4, fit_scaling=True)
+    powers = {n: v.power for n, v in result.scaling.items()}
+    assert all(result.scaling[n].ok for n in range(1, 5))
     for n in range(1, 5):
         expected = n + 1 if n % 2 else n + 2
         assert powers[n] == pytest.approx(expected, abs=0.2), (n, powers)
@@ -381,19 +381,19 @@ def test_quasi_degenerate_window_is_checked():
     # (Bravyi, DiVincenzo and Loss 2011, Sec. 3, quasi-degenerate case), and the exact check
     # is done and scales.
     model = model_of(random_spin_text(3, split=0.02, order=4))
-    result = derive(model, 4, check_scaling=True)
+    result = derive(model, 4, fit_scaling=True)
     energies = np.sort(result.manifold.energies)
     assert result.manifold.dimension == 4
     assert energies[-1] - energies[0] == pytest.approx(0.02, rel=1e-9)
     assert result.check is not None
-    by_order = [result.check["by_order"][str(n)]["max_abs_error"] for n in range(5)]
+    by_order = [result.check.max_abs_error[n] for n in range(5)]
     assert by_order[4] < by_order[2] < by_order[0]
-    assert all(result.scaling[str(n)]["ok"] for n in range(1, 5)), result.scaling
+    assert all(result.scaling[n].ok for n in range(1, 5)), result.scaling
     factors = [0.6, 0.45, 0.3]
     differences = []
     for factor in factors:
         small = scaled(model, factor)
-        res = derive(small, 4, check=False)
+        res = derive(small, 4, compare_exact=False)
         _, h, p_index = full_sector(small)
         exact = exact_effective_hamiltonian(h, p_index)
         differences.append([np.max(np.abs(res.matrix(n) - exact)) for n in range(5)])
@@ -418,9 +418,9 @@ def test_window_above_the_lowest_level_is_checked_against_its_own_levels():
     missed = 128 * t**6 / U**5
     np.testing.assert_allclose(np.sort(la.eigvalsh(result.matrix())), [U, upper - missed],
                                rtol=0, atol=0.1 * missed)
-    np.testing.assert_allclose(result.check["exact"], [U, upper], rtol=0, atol=1e-12)
-    assert result.check["by_order"]["4"]["max_abs_error"] == pytest.approx(missed, rel=0.1)
-    assert result.check["by_order"]["2"]["max_abs_error"] == pytest.approx(16 * t**4 / U**3,
+    np.testing.assert_allclose(result.check.exact, [U, upper], rtol=0, atol=1e-12)
+    assert result.check.max_abs_error[4] == pytest.approx(missed, rel=0.1)
+    assert result.check.max_abs_error[2] == pytest.approx(16 * t**4 / U**3,
                                                                            rel=0.1)
 
 
@@ -431,7 +431,7 @@ def test_skipped_check_spends_no_exact_diagonalisation(monkeypatch):
     # 3.3 M-state block says "skip" (more than 5 minutes; benchmarks/bench_derive.py).
     # Here: a 6-site chain with the limit lowered to 300 states, so that the S^z = 0 block
     # (400 states) does not fit and the S^z = -3, -2, -1 blocks (1, 36, 225 states) do.
-    module = importlib.import_module("lowfold.jobs.derive")   # the attribute is the function
+    module = importlib.import_module("lowfold.jobs.check")
     calls = []
     original = module._exact_levels
     monkeypatch.setattr(module, "CHECK_MAX_STATES", 300)
@@ -460,8 +460,8 @@ def test_matrix_free_second_order_equals_recursion(case):
     # (DESIGN.md; Bravyi, DiVincenzo and Loss 2011, Sec. 3) used at order 2 must equal the
     # second order of the generator recursion used at order 3.
     model = SECOND_ORDER_CASES[case]()
-    free = derive(model, 2, check=False).orders[2].toarray()
-    recursion = derive(model, 3, check=False).orders[2].toarray()
+    free = derive(model, 2, compare_exact=False).orders[2].toarray()
+    recursion = derive(model, 3, compare_exact=False).orders[2].toarray()
     scale = np.max(np.abs(recursion))
     assert scale > 0
     np.testing.assert_allclose(free, recursion, rtol=0, atol=1e-12 * scale)
@@ -484,7 +484,7 @@ def test_reachable_space_truncation_matches_full_sector(order):
     working = reachable_states(states, v_op, order // 2)
     assert working.size < basis.size           # the truncation really drops states
     full = effective_hamiltonian_orders(h0.diagonal(), v, basis.index(states), order)
-    result = derive(model, order, check=False)
+    result = derive(model, order, compare_exact=False)
     for m in range(order + 1):
         np.testing.assert_allclose(result.orders[m].toarray(), full[m], rtol=0, atol=1e-14)
 
@@ -509,7 +509,7 @@ def test_plaquette_ring_exchange():
     cycle = list(ring.sites)
     assert {tuple(sorted((cycle[k], cycle[(k + 1) % 4]))) for k in range(4)} == bonds
     assert ring.orders[4] == pytest.approx(80 * t**4 / U**3, rel=1e-8)
-    assert result.recognised[("ring", tuple(ring.sites))] == {"4": "80"}
+    assert result.recognised[("ring", tuple(ring.sites))].coefficients == {4: "80"}
     for i, j in bonds:
         orders = coupling(result, "exchange", (i, j))
         assert orders[2] == pytest.approx(4 * t**2 / U, rel=1e-10)
@@ -517,7 +517,7 @@ def test_plaquette_ring_exchange():
     for pair in [(0, 3), (1, 2)]:
         assert coupling(result, "exchange", pair)[4] == pytest.approx(4 * t**4 / U**3, rel=1e-8)
     assert not result.residual
-    assert result.check["by_order"]["4"]["max_abs_error"] < result.check["by_order"]["2"]["max_abs_error"]
+    assert result.check.max_abs_error[4] < result.check.max_abs_error[2]
 
 
 # ----------------------------------------------------------------------------- spin readout
@@ -561,7 +561,7 @@ def test_ising_chain_transverse_field_readout():
     # the third spin alone) = (G^3/8)(16/Jz^2) = 2 G^3 / Jz^2.
     jz, g = -1.0, 0.05
     result = derive(model_of(ISING_CHAIN))
-    assert result.labels == ["uuu", "ddd"]
+    assert result.labels == ("uuu", "ddd")
     assert not result.spin_form and "2 states" in result.readout_note
     h2, h3 = result.orders[2].toarray(), result.orders[3].toarray()
     np.testing.assert_allclose(h2, -5 * g**2 / (4 * abs(jz)) * np.eye(2), rtol=1e-12, atol=1e-16)
@@ -574,7 +574,7 @@ def test_ising_chain_transverse_field_readout():
     third = d["effective"]["orders"]["3"]
     assert sorted(zip(third["rows"], third["cols"])) == [(0, 1), (1, 0)]
     assert third["values"] == pytest.approx([2 * g**3 / jz**2] * 2)
-    assert result.check["by_order"]["3"]["max_abs_error"] < 1e-5
+    assert result.check.max_abs_error[3] < 1e-5
 
 
 # ----------------------------------------------------------------------------- bad input
@@ -661,4 +661,4 @@ def test_constant_h0_is_refused_without_enumerating_the_sector():
     # 16-site cluster this must be refused at once, not after listing 6e8 states
     model = hubbard("square", (4, 4), "periodic", U=0.0)
     with pytest.raises(ManifoldError, match="constant"):
-        derive(model, 2, check=False)
+        derive(model, 2, compare_exact=False)
