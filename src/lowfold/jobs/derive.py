@@ -29,7 +29,8 @@ from lowfold.perturbation.manifold import (Manifold, diagonal_energies, find_man
 from lowfold.perturbation.orders import MAX_SCHRIEFFER_WOLFF_ORDER, validate_order
 from lowfold.perturbation.schrieffer_wolff import (effective_hamiltonian_orders,
                                                    second_order_matrix_free)
-from lowfold.readout.couplings import pauli_coefficients_by_order, recognise_rational, spin_couplings
+from lowfold.readout.rationals import recognise_couplings
+from lowfold.readout.spin_form import read_spin_form
 from lowfold.results import (EffectiveModel, ManifoldDiagnostics, ManifoldSummary, PauliTerm,
                              Recognised)
 
@@ -197,101 +198,16 @@ def _embed(rows: sp.csr_matrix, p_index, size) -> sp.csr_matrix:
 
 # --------------------------------------------------------------------------- readout
 
-def _spin_map(model: Model, states: np.ndarray):
-    """Qubit index and reordering sign of each manifold state, or a reason there is none."""
-    site, n = model.site, model.n_sites
-    if states.size != 2**n:
-        return None, f"the manifold has {states.size} states, not 2^{n}"
-    if site.type == "spin" and site.radix == 2:
-        return (states, np.ones(states.size)), ""
-    if site.type != "electron":
-        return None, f"no spin-1/2 reading for {site.type} sites"
-    mask = (1 << n) - 1
-    up, dn = states & mask, states >> n
-    if np.any((up ^ dn) != mask):
-        return None, "the manifold is not one electron per site"
-    # sign of reordering c+_{up sites} c+_{down sites} into site order: pairs (i up, j down, j < i)
-    inversions = np.zeros(states.size, dtype=np.int64)
-    for i in range(n):
-        below = (1 << i) - 1
-        is_up = (up >> i) & 1
-        inversions += is_up * np.array([bin(x).count("1") for x in (dn & below)])
-    return (dn, np.where(inversions % 2, -1.0, 1.0)), ""
-
-
 def _read_out(model: Model, states: np.ndarray, orders: list) -> dict:
     """Spin-1/2 readout of the orders (Pauli terms, named couplings, recognised rationals),
     or the reason there is none."""
-    mapping, note = _spin_map(model, states)
-    if mapping is None:
-        return {"readout": f"matrix (no spin form: {note})", "terms": (), "couplings": (),
+    form, reason = read_spin_form(model, orders, states)
+    if form is None:
+        return {"readout": f"matrix (no spin form: {reason})", "terms": (), "couplings": (),
                 "recognised": {}, "residual": {}}
-    qubit, sign = mapping
-    n = model.n_sites
-    perm = sp.csr_matrix((sign, (qubit, np.arange(qubit.size))), shape=(2**n, 2**n))
-    matrices = [perm @ h @ perm.T for h in orders]
-    terms = pauli_coefficients_by_order(matrices, n, tol=1e-12)
-    rings, triangles = lattice_cycles(model.lattice)
-    couplings, residual = spin_couplings(terms, n, orders=list(range(len(orders))), tol=1e-10,
-                                         ring_cycles=rings, triangles=triangles)
     pauli = tuple(PauliTerm(op, float(sum(cs)), {m: float(c) for m, c in enumerate(cs)})
-                  for op, cs in terms.items())
-    return {"readout": "spin-1/2", "terms": pauli, "couplings": tuple(couplings),
-            "recognised": _recognise(model, couplings), "residual": residual}
-
-
-def lattice_cycles(lattice) -> tuple[list[tuple], list[tuple]]:
-    """The 4-cycles (cyclic order) and triangles of the nearest-neighbour bond graph: where
-    ring exchange and scalar chirality are read out."""
-    neighbours = {i: set() for i in range(lattice.n_sites)}
-    for i, j in lattice.bonds("nearest"):
-        neighbours[int(i)].add(int(j))
-        neighbours[int(j)].add(int(i))
-    triangles = sorted({tuple(sorted((i, j, k))) for i in neighbours for j in neighbours[i]
-                        for k in neighbours[j] & neighbours[i] if len({i, j, k}) == 3})
-    rings = set()
-    for i in neighbours:
-        for j in neighbours[i]:
-            for k in neighbours[j] - {i}:
-                for l in (neighbours[k] & neighbours[i]) - {i, j, k}:
-                    rotations = [(i, j, k, l)[r:] + (i, j, k, l)[:r] for r in range(4)]
-                    rotations += [tuple(reversed(c)) for c in rotations]
-                    rings.add(min(rotations))
-    return sorted(rings), triangles
-
-
-def _single_ratio(model: Model):
-    """(V parameter, H0 parameter) when each part has exactly one named strength."""
-    def names(labels):
-        strengths = {model.term(label).strength for label in labels}
-        return strengths if all(isinstance(s, str) for s in strengths) else set()
-    h0, v = names(model.unperturbed_labels), names(model.perturbation_labels)
-    if len(h0) == 1 and len(v) == 1:
-        return v.pop(), h0.pop()
-    return None
-
-
-def _recognise(model: Model, couplings) -> dict:
-    """``(kind, sites) -> Recognised`` for couplings whose orders are rational multiples of
-    ``t^n / U^(n-1)`` (the model's one ratio), with integer order keys."""
-    ratio = _single_ratio(model)
-    if ratio is None:
-        return {}
-    small, large = ratio
-    t, u = model.parameters[small], model.parameters[large]
-    if t == 0 or u == 0:
-        return {}
-    scale = f"{small}^n/{large}^(n-1)"
-    recognised = {}
-    for c in couplings:
-        if c.kind not in ("exchange", "ring", "chirality", "constant"):
-            continue
-        found = {}
-        for m, value in c.orders.items():
-            if abs(value) > 1e-12:
-                fraction = recognise_rational(value, t**m / u ** (m - 1), max_denominator=64, rtol=1e-7)
-                if fraction is not None:
-                    found[int(m)] = str(fraction)
-        if found:
-            recognised[(c.kind, tuple(c.sites))] = Recognised(scale, found)
-    return recognised
+                  for op, cs in form.terms.items())
+    scale, found = recognise_couplings(model, form.couplings)
+    recognised = {key: Recognised(scale, coefficients) for key, coefficients in found.items()}
+    return {"readout": "spin-1/2", "terms": pauli, "couplings": tuple(form.couplings),
+            "recognised": recognised, "residual": form.residual}
