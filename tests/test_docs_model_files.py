@@ -93,7 +93,7 @@ def test_examples_use_documented_keys(block):
 def test_first_example_gives_the_stated_superexchange():
     model = parse_model(example())
     t, u = model.parameters["t"], model.parameters["U"]
-    result = derive(model, check=False)
+    result = derive(model, compare_exact=False)
     exchange = [c for c in result.couplings if c.kind == "exchange"]
     assert len(exchange) == 1 and exchange[0].sites == (0, 1)
     assert exchange[0].value == pytest.approx(4 * t**2 / u - 16 * t**4 / u**3, rel=1e-9)

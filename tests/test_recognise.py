@@ -71,7 +71,7 @@ def test_no_single_ratio_gives_no_scale():
 
 def test_derived_fourth_order_dimer_exchange_is_recognised():
     model = hubbard_dimer()
-    result = derive(model, 4, check=False)
+    result = derive(model, 4, compare_exact=False)
     form, reason = read_spin_form(model, result.orders, result.manifold.states)
     assert reason == ""
     exchange = next(c for c in form.couplings if c.kind == "exchange")

@@ -98,7 +98,7 @@ def test_hand_second_order_reads_as_anderson_superexchange():
 
 def test_derived_second_order_reads_as_anderson_superexchange():
     model = dimer()
-    result = derive(model, 2, check=False)
+    result = derive(model, 2, compare_exact=False)
     form, reason = read_spin_form(model, result.orders, result.manifold.states)
     assert reason == ""
     assert result.manifold.states.tolist() == [3, 6, 9, 12]
