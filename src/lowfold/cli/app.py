@@ -28,8 +28,10 @@ from lowfold.jobs.tasks import parse_lambda_range, run_task
 app = typer.Typer(add_completion=False, no_args_is_help=True, pretty_exceptions_enable=False,
                   help="Effective low-energy models of lattice Hamiltonians, checked against "
                        "exact spectra.")
-out = Console(highlight=False)
-err = Console(stderr=True, highlight=False)
+# user text reaches these consoles (titles, file names, labels): no emoji codes, no
+# highlighting; markup only in the fixed wording, with user text escaped (render.user_text)
+out = Console(highlight=False, emoji=False)
+err = Console(stderr=True, highlight=False, emoji=False)
 
 
 def _version(value: bool):
@@ -128,7 +130,7 @@ def series(model: Path = typer.Argument(..., help="model file (TOML) with a [per
         return _emit_json(result.to_dict())
     render.print_series(out, err, m.title, result)
     if plot is not None:
-        out.print(f"figure written to {plot}")
+        out.print(f"figure written to {render.user_text(plot)}")
 
 
 @app.command()
@@ -188,7 +190,8 @@ def demo(json_out: bool = typer.Option(False, "--json", help="print one JSON obj
     path = resources.files("lowfold") / "data" / "quantum_dots.toml"
     with resources.as_file(path) as file:
         if not json_out:
-            out.print(f"[bold]lowfold demo[/bold]: {file.name} (built-in example)\n")
+            out.print(f"[bold]lowfold demo[/bold]: {render.user_text(file.name)} "
+                      "(built-in example)\n")
         derive(file, order=None, json_out=json_out, latex=False, no_check=False,
                check_scaling=False)
 
@@ -198,7 +201,7 @@ def main() -> None:
     try:
         app()
     except LowfoldError as exc:
-        err.print(f"lowfold: error: {exc}", markup=False, soft_wrap=True)
+        err.print(f"lowfold: error: {render.one_line(exc)}", markup=False, soft_wrap=True)
         sys.exit(2)
     except MemoryError:
         err.print("lowfold: error: out of memory; use a smaller cluster, sector or order",

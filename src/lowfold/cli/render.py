@@ -8,16 +8,32 @@ from __future__ import annotations
 
 import numpy as np
 from rich.console import Console
+from rich.markup import escape
 from rich.table import Table
 
 from lowfold.results import EffectiveModel, Spectrum, StateSeries
 from lowfold.results.effective import COUPLING_TOL
 
-__all__ = ["print_spectrum", "print_derive", "print_series", "latex_couplings"]
+__all__ = ["print_spectrum", "print_derive", "print_series", "latex_couplings", "one_line",
+           "user_text"]
+
+
+def one_line(text) -> str:
+    """``text`` on one line: control characters (newline, tab, escape...) written as Python
+    escapes (``\\n``), so that a file name or label with a newline still gives one line."""
+    return "".join(c if c.isprintable() else c.encode("unicode_escape").decode("ascii")
+                   for c in str(text))
+
+
+def user_text(text) -> str:
+    """Text that came from the user (a title, a file name, a label), ready for a rich markup
+    string: on one line, and with its square brackets escaped so that rich prints them as
+    they are (``"a [/bold] b"`` is text, not a closing tag)."""
+    return escape(one_line(text))
 
 
 def print_spectrum(out: Console, title: str, result: Spectrum) -> None:
-    table = Table(title=f"{title}: {result.dimension:,} states")
+    table = Table(title=f"{user_text(title)}: {result.dimension:,} states")
     table.add_column("level", justify="right")
     table.add_column("energy", justify="right")
     table.add_column("E - E0", justify="right")
@@ -51,7 +67,7 @@ def _coupling_rows(result: EffectiveModel):
 def print_derive(out: Console, err: Console, title: str, result: EffectiveModel) -> None:
     man = result.manifold
     gap = "none" if man.gap is None else f"{man.gap:.6g}"
-    out.print(f"[bold]{title}[/bold]: manifold of {man.dimension:,} states at H0 energy "
+    out.print(f"[bold]{user_text(title)}[/bold]: manifold of {man.dimension:,} states at H0 energy "
               f"{man.energy:.6g}, gap {gap}, readout {man.readout}")
     orders, rows = _coupling_rows(result)
     if rows:
@@ -62,7 +78,7 @@ def print_derive(out: Console, err: Console, title: str, result: EffectiveModel)
         if recognised:
             table.add_column("rational (recognised)", justify="left")
         for kind, sites, cells, total, hint in rows:
-            table.add_row(kind, sites, *cells, total, *([hint] if recognised else []))
+            table.add_row(user_text(kind), sites, *cells, total, *([hint] if recognised else []))
         out.print(table)
     elif not result.spin_form:
         out.print(f"effective matrix on {man.dimension} basis states (use --json for its entries)")
@@ -82,7 +98,7 @@ def print_derive(out: Console, err: Console, title: str, result: EffectiveModel)
     out.print(f"validity ratio |V_PQ|/gap = {ratio:.3g}" if ratio is not None else "validity ratio: -",
               f", smallest denominator {diag.smallest_denominator:.6g}"
               if diag.smallest_denominator is not None else "",
-              f" ({' -> '.join(diag.closest_states)})" if diag.closest_states else "", sep="")
+              f" ({user_text(' -> '.join(diag.closest_states))})" if diag.closest_states else "", sep="")
     _warn(err, result.warnings)
 
 
@@ -99,7 +115,8 @@ def latex_couplings(result: EffectiveModel) -> str:
 
 
 def print_series(out: Console, err: Console, title: str, result: StateSeries) -> None:
-    out.print(f"[bold]{title}[/bold]: series of the state {result.reference}")
+    out.print(f"[bold]{user_text(title)}[/bold]: series of the state "
+              f"{user_text(result.reference)}")
     table = Table(title="energy by order")
     for name in ("order", "E_n", "partial sum", "|error| vs exact"):
         table.add_column(name, justify="right")
@@ -126,7 +143,7 @@ def print_series(out: Console, err: Console, title: str, result: StateSeries) ->
         for name in ("intermediate state", "|V_mn|^2", "E_n - E_m", "contribution"):
             table.add_column(name, justify="right")
         for c in result.second_order:
-            table.add_row(c.state, f"{c.coupling_squared:.6g}", f"{c.denominator:.6g}",
+            table.add_row(user_text(c.state), f"{c.coupling_squared:.6g}", f"{c.denominator:.6g}",
                           f"{c.contribution:.6g}")
         out.print(table)
     sweep = result.sweep
@@ -144,4 +161,4 @@ def print_series(out: Console, err: Console, title: str, result: StateSeries) ->
 
 def _warn(err: Console, warnings) -> None:
     for warning in warnings:
-        err.print(f"warning: {warning}", markup=False)
+        err.print(f"warning: {one_line(warning)}", markup=False)
