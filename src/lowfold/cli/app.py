@@ -24,6 +24,7 @@ from lowfold.errors import LowfoldError, ModelError
 from lowfold.model.modelfile import load_model
 from lowfold.cli import render
 from lowfold.jobs.tasks import parse_lambda_range, run_task
+from lowfold.results.common import null_non_finite
 
 app = typer.Typer(add_completion=False, no_args_is_help=True, pretty_exceptions_enable=False,
                   help="Effective low-energy models of lattice Hamiltonians, checked against "
@@ -57,7 +58,15 @@ def _progress(enabled: bool):
 
 
 def _emit_json(data: dict) -> None:
-    sys.stdout.write(json.dumps(data) + "\n")
+    """Print ``data`` as one line of strict JSON: a number that is not finite (an overflow)
+    is written as null, and a warning in ``warnings`` says where."""
+    data, where = null_non_finite(data)
+    if where:
+        shown = ", ".join(where[:4]) + (f" and {len(where) - 4} more" if len(where) > 4 else "")
+        data["warnings"] = [*data.get("warnings", []),
+                            f"{len(where)} number(s) not finite (overflow, or undefined) are "
+                            f"written as null: {shown}"]
+    sys.stdout.write(json.dumps(data, allow_nan=False) + "\n")
 
 
 def parse_sweep(text: str):

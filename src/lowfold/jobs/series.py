@@ -18,7 +18,7 @@ import scipy.linalg as la
 from lowfold.build.basis import Basis
 from lowfold.build.hamiltonian import build_basis, compile_operator, hamiltonian_matrix
 from lowfold.errors import LowfoldError, ModelError
-from lowfold.jobs.sweep import sector_blocks, sweep_levels
+from lowfold.jobs.sweep import sector_blocks, sweep_levels, sweep_warnings
 from lowfold.model.model import Model
 from lowfold.perturbation.convergence import pade_estimate, ratio_test
 from lowfold.perturbation.manifold import diagonal_energies, state_labels
@@ -106,6 +106,7 @@ def state_series(model: Model, order: int | None = None, *, state: str | None = 
     if sweep is not None:
         say("sweeping the coupling")
         swept = sweep_levels(model, basis, h0, v, psi0, result, np.asarray(sweep, dtype=float))
+        warnings += sweep_warnings(swept)
     return StateSeries(np.asarray(result.energies), reference, exact, pade, ratio, validity,
                        float(result.first_order_norm), tuple(first), tuple(second),
                        finite(result.smallest_denominator),
