@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import contextlib
 import json
+import os
 import sys
 from importlib import resources
 from pathlib import Path
@@ -77,6 +78,20 @@ def parse_sweep(text: str):
         raise ModelError(f"--sweep: {exc}") from None
 
 
+def check_writable(path: Path, flag: str) -> None:
+    """Refuse, before any computation, an output file that cannot be written: its directory
+    missing or not writable, or the path a directory or a read-only file."""
+    parent = path.parent
+    if path.is_dir():
+        raise ModelError(f"{flag}: {str(path)!r} is a directory, not a file name")
+    if not parent.is_dir():
+        raise ModelError(f"{flag}: the directory {str(parent)!r} does not exist")
+    target = path if path.exists() else parent
+    if not os.access(target, os.W_OK):
+        raise ModelError(f"{flag}: cannot write {str(path)!r} (permission denied or a "
+                         "read-only file system)")
+
+
 @app.command()
 def spectrum(model: Path = typer.Argument(..., help="model file (TOML)"),
              levels: int = typer.Option(4, "--levels", "-k", help="number of lowest levels"),
@@ -124,6 +139,8 @@ def series(model: Path = typer.Argument(..., help="model file (TOML) with a [per
         sweep = "lambda=0:1:41"
     if plot is not None and plot.suffix.lower() not in (".png", ".svg", ".pdf"):
         raise ModelError(f"--plot: use a .png, .svg or .pdf file name, got {plot.name!r}")
+    if plot is not None:
+        check_writable(plot, "--plot")
     options = {"order": order, "state": state, "sweep": parse_sweep(sweep) if sweep else None}
     try:
         with _progress(not json_out) as progress:
@@ -134,7 +151,10 @@ def series(model: Path = typer.Argument(..., help="model file (TOML) with a [per
         raise
     if plot is not None:
         from lowfold.plots.sweep_figure import plot_sweep
-        plot_sweep(result.sweep.to_dict(), title=m.title, output=plot)
+        try:
+            plot_sweep(result.sweep.to_dict(), title=m.title, output=plot)
+        except OSError as exc:          # checked before computing; a full disk remains
+            raise ModelError(f"--plot: cannot write {str(plot)!r}: {exc.strerror or exc}") from None
     if json_out:
         return _emit_json(result.to_dict())
     render.print_series(out, err, m.title, result)
@@ -183,6 +203,7 @@ def plot(results: Path = typer.Argument(..., help="results directory of a scan")
     """Draw a figure from scan results (see docs/scans.md)."""
     from lowfold.plots.from_directory import plot_results
     from lowfold.plots.where import parse_where
+    check_writable(output, "--output")
     info = plot_results(results, kind=kind, output=output, x=x, quantity=quantity,
                         orders=order or None, unit=unit, where=parse_where(where or []),
                         exact_levels=exact_gap, series=series_dir, levels=levels,

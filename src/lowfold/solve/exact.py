@@ -110,8 +110,14 @@ def spectrum(model: Model, levels: int = 4, *, vectors: bool = False, method: st
     limit = int(0.8 * available_memory()) if memory_limit is None else memory_limit
     basis = build_basis(model, max_states=max(limit // 96, 1))
     op = compile_operator(model)
-    vectors_kept = 6 if levels == 1 else max(2 * levels + 1, 20) + 4
+    found = min(levels, basis.size)           # as lowest_eigenpairs: all levels at most
+    vectors_kept = min(basis.size, 6 if found == 1 else max(2 * found + 1, 20) + 4)
     lanczos_bytes = vectors_kept * basis.size * np.dtype(op.coef.dtype).itemsize
+    if lanczos_bytes >= limit:
+        raise SizeError(f"{levels:,} levels of a sector of {basis.size:,} states need "
+                        f"{vectors_kept:,} vectors of that length ({lanczos_bytes / 2**30:.1f} "
+                        f"GiB), more than the {limit / 2**30:.1f} GiB available; ask for fewer "
+                        "levels")
     chosen = _choose_method(method, op, basis, limit - lanczos_bytes, say)
     say(f"building the Hamiltonian on {basis.size:,} states ({chosen})")
     if chosen == "matrix-free":
