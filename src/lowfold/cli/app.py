@@ -27,7 +27,10 @@ from lowfold.cli import render
 from lowfold.jobs.tasks import parse_lambda_range, run_task
 from lowfold.results.common import null_non_finite
 
+# help texts are plain text (rich_markup_mode=None): "[perturbation]" is a table name, not
+# markup, and on/off flags show no value type
 app = typer.Typer(add_completion=False, no_args_is_help=True, pretty_exceptions_enable=False,
+                  rich_markup_mode=None,
                   help="Effective low-energy models of lattice Hamiltonians, checked against "
                        "exact spectra.")
 # user text reaches these consoles (titles, file names, labels): no emoji codes, no
@@ -93,7 +96,7 @@ def check_writable(path: Path, flag: str) -> None:
 
 
 @app.command()
-def spectrum(model: Path = typer.Argument(..., help="model file (TOML)"),
+def spectrum(model: Path = typer.Argument(..., metavar="MODEL", help="model file (TOML)"),
              levels: int = typer.Option(4, "--levels", "-k", help="number of lowest levels"),
              json_out: bool = typer.Option(False, "--json", help="print one JSON object")):
     """The lowest energies of MODEL in its sector (Lanczos, or dense for small spaces)."""
@@ -106,7 +109,8 @@ def spectrum(model: Path = typer.Argument(..., help="model file (TOML)"),
 
 
 @app.command()
-def derive(model: Path = typer.Argument(..., help="model file (TOML) with a [perturbation] table"),
+def derive(model: Path = typer.Argument(..., metavar="MODEL",
+                                         help="model file (TOML) with a [perturbation] table"),
            order: Optional[int] = typer.Option(None, "--order", "-n", help="highest order (default: the file's)"),
            json_out: bool = typer.Option(False, "--json", help="print one JSON object"),
            latex: bool = typer.Option(False, "--latex", help="print the coupling table as LaTeX"),
@@ -126,7 +130,8 @@ def derive(model: Path = typer.Argument(..., help="model file (TOML) with a [per
 
 
 @app.command()
-def series(model: Path = typer.Argument(..., help="model file (TOML) with a [perturbation] table"),
+def series(model: Path = typer.Argument(..., metavar="MODEL",
+                                         help="model file (TOML) with a [perturbation] table"),
            order: Optional[int] = typer.Option(None, "--order", "-n", help="highest order (default: the file's)"),
            json_out: bool = typer.Option(False, "--json", help="print one JSON object"),
            state: Optional[str] = typer.Option(None, "--state",
@@ -183,7 +188,7 @@ def scan(scan_file: Path = typer.Argument(..., metavar="SCAN", help="scan file (
 
 
 @app.command()
-def plot(results: Path = typer.Argument(..., help="results directory of a scan"),
+def plot(results: Path = typer.Argument(..., metavar="RESULTS", help="results directory of a scan"),
          kind: str = typer.Option(..., "--kind", help="couplings | errors | finite-size | levels"),
          output: Path = typer.Option(..., "--output", "-o", help="image file (.png, .svg, .pdf)"),
          x: Optional[str] = typer.Option(None, "--x", help="x axis: a parameter or ratio such as t/U"),
