@@ -231,6 +231,12 @@ def print_series(out: Console, err: Console, title: str, result: StateSeries) ->
         radius = "infinite" if r.radius is None else f"{r.radius:.4g}"
         out.print(f"radius of convergence (Domb-Sykes, in {r.variable}): {radius}, "
                   f"nearest singularity on the {r.side} axis")
+        if r.fit_residual is not None:
+            relative = "" if r.relative_residual is None else \
+                f" ({r.relative_residual:.2g} of the intercept)"
+            out.print(f"fit residual {r.fit_residual:.3g}{relative}")
+        if not r.reliable:
+            out.print(f"estimate unreliable: {user_text(r.reason or 'see warnings')}")
     if result.validity_ratio is not None:
         out.print(f"validity ratio |V_mn| / |E_n - E_m|: {result.validity_ratio:.3g}")
     if result.second_order:
