@@ -20,10 +20,11 @@ import scipy.linalg as la
 from lowfold.build.basis import Basis
 from lowfold.errors import LowfoldError, ModelError
 from lowfold.solve.exact import lowest_eigenpairs
-from lowfold.build.hamiltonian import build_basis, compile_operator, hamiltonian_matrix
+from lowfold.build.hamiltonian import Hamiltonian, build_basis, hamiltonian_matrix
+from lowfold.build.labels import state_labels, twice_sz
+from lowfold.build.compiled import compile_operator
 from lowfold.model.model import Model
 from lowfold.perturbation.convergence import pade_estimate, partial_sums, ratio_test
-from lowfold.perturbation.manifold import diagonal_energies, state_labels
 from lowfold.perturbation.series import SeriesResult, rayleigh_schrodinger, rayleigh_schrodinger_general
 
 __all__ = ["StateSeries", "Sweep", "state_series", "parse_sweep", "MAX_ORDER"]
@@ -171,13 +172,14 @@ def state_series(model: Model, order: int | None = None, *, state: str | None = 
         raise ModelError(f"order must be an integer from 1 to {MAX_ORDER}, got {order!r}")
     basis = build_basis(model)
     say(f"building H0 and V on {basis.size:,} states")
-    h0_op = compile_operator(model, model.unperturbed_labels)
-    h0 = hamiltonian_matrix(model, basis, model.unperturbed_labels)
+    h0_hamiltonian = Hamiltonian.of(model, model.unperturbed_labels, basis)
+    h0 = h0_hamiltonian.to_csr()
+    h0_hamiltonian.check_hermitian(h0)
     v = hamiltonian_matrix(model, basis, model.perturbation_labels)
     warnings: list[str] = []
     say(f"series to order {order}")
-    if h0_op.is_diagonal:
-        h0_diag = diagonal_energies(h0_op, basis.states)
+    if h0_hamiltonian.operator.is_diagonal:
+        h0_diag = np.real(h0_hamiltonian.diagonal()).astype(float)
         index = _reference_index(model, basis, h0_diag, state)
         result = rayleigh_schrodinger(h0_diag, v, index, order)
         reference = state_labels(model, basis.states[[index]])[0]
@@ -325,7 +327,6 @@ def _sector_blocks(model: Model, basis: Basis):
     h_all = compile_operator(model)
     if not (model.site.has_spin and h_all.conserves_sz and model.sector.sz is None):
         return ["all"], [np.arange(basis.size)]
-    from lowfold.perturbation.manifold import twice_sz
     sz2 = twice_sz(model, basis.states)
     values = np.unique(sz2)
     return [f"Sz={Fraction(int(s), 2)}" for s in values], [np.flatnonzero(sz2 == s) for s in values]
