@@ -28,7 +28,9 @@ import time  # noqa: E402
 from datetime import datetime, timezone  # noqa: E402
 from pathlib import Path  # noqa: E402
 
-from lowfold.scans.run import load_scan, plan_scan, run_scan  # noqa: E402
+from lowfold.scans.plan import plan_scan  # noqa: E402
+from lowfold.scans.run import run_scan  # noqa: E402
+from lowfold.scans.scanfile import load_scan  # noqa: E402
 from lowfold.scans.store import load_results  # noqa: E402
 from lowfold.jobs.tasks import run_task  # noqa: E402
 

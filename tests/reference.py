@@ -284,7 +284,7 @@ def expand_term(site_type, kind, strength, *, bonds=(), sites=(), axis=None,
     """Operator description of one term of the design, from explicit bonds/sites.
 
     ``bonds`` are pairs (i, j) for two-site terms; ``sites`` a list for one-site terms.
-    Formulas (DESIGN.md, conventional forms):
+    Formulas (docs/model-files.md, conventional forms):
 
     * hopping: ``-s sum_bonds sum_spin (c+_i c_j + c+_j c_i)``; bosons ``b+_i b_j + h.c.``
     * hubbard: ``s sum_i n_up n_dn``; bosons ``(s/2) n (n - 1)``

@@ -127,7 +127,7 @@ def test_explicit_basis_empty():
 
 
 # ---------------------------------------------------------------------------------------
-# physical sectors: the digit-sum constraints follow from the encodings of DESIGN.md
+# physical sectors: the digit-sum constraints follow from the encodings of the README ("Conventions")
 
 
 def physical_filter(site_kwargs: dict, n_sites: int, particles, sz) -> np.ndarray:

@@ -9,8 +9,8 @@ Every check names its source beside it.  Published results used:
 - Ring exchange on the square lattice: MacDonald, Girvin and Yoshioka, Phys. Rev. B 37,
   9753 (1988) (values from memory).
 - Error of the order-n series O(lambda^(n+1)) and the exact effective Hamiltonian by direct
-  rotation: Bravyi, DiVincenzo and Loss, Ann. Phys. 326, 2793 (2011), Sec. 3 (DESIGN.md
-  oracle).
+  rotation: Bravyi, DiVincenzo and Loss, Ann. Phys. 326, 2793 (2011), Sec. 3 (the
+  oracle ``exact_effective_hamiltonian``).
 
 Energies in units of the file's parameters; S = sigma/2; exchange ``J S_i.S_j``.
 """
@@ -249,7 +249,7 @@ def test_hubbard_dimer_exchange_to_eighth_order():
     # 14336 t^10/U^9 (the one after it is -12 t^2/U^2 times smaller)
     closed = (np.sqrt(U**2 + 16 * t**2) - U) / 2
     assert closed - sum(orders.values()) == pytest.approx(14336 * t**10 / U**9, rel=0.2)
-    # the spin reading is J (S0.S1 - 1/4) (DESIGN.md conventions): constant -J/4 per order
+    # the spin reading is J (S0.S1 - 1/4) (README, "Conventions"): constant -J/4 per order
     constant = coupling(result, "constant", ())
     for m, c in expected.items():
         assert constant[m] == pytest.approx(-c / 4 * t**m / U ** (m - 1), rel=1e-8)
@@ -342,7 +342,7 @@ def test_error_scaling_random_spin_models(seed):
 
 
 def test_effective_hamiltonian_matches_exact_rotation():
-    # DESIGN.md oracle (Bravyi, DiVincenzo and Loss 2011, Sec. 3): the exact effective
+    # Oracle (Bravyi, DiVincenzo and Loss 2011, Sec. 3): the exact effective
     # Hamiltonian by direct rotation differs from the series summed to order n by
     # O(lambda^(n+1)) as an operator.  Dense 32-state random spin model, complex V.
     model = model_of(random_spin_text(6))
@@ -457,7 +457,7 @@ SECOND_ORDER_CASES = {
 @pytest.mark.parametrize("case", sorted(SECOND_ORDER_CASES))
 def test_matrix_free_second_order_equals_recursion(case):
     # The matrix-free formula (H2)_ab = 1/2 sum_m V_am V_mb [1/(E_a - E_m) + 1/(E_b - E_m)]
-    # (DESIGN.md; Bravyi, DiVincenzo and Loss 2011, Sec. 3) used at order 2 must equal the
+    # (Bravyi, DiVincenzo and Loss 2011, Sec. 3) used at order 2 must equal the
     # second order of the generator recursion used at order 3.
     model = SECOND_ORDER_CASES[case]()
     free = derive(model, 2, check=False).orders[2].toarray()
@@ -495,7 +495,7 @@ def test_plaquette_ring_exchange():
     # MacDonald, Girvin and Yoshioka, Phys. Rev. B 37, 9753 (1988) (from memory): on the
     # square lattice at fourth order J = 4t^2/U - 24t^4/U^3, J' = J'' = 4t^4/U^3 and ring
     # K = 80 t^4/U^3 for K[(S_i.S_j)(S_k.S_l) + (S_i.S_l)(S_j.S_k) - (S_i.S_k)(S_j.S_l)]
-    # around a plaquette (the ring operator of DESIGN.md).  The -24 is -16 of the dimer
+    # around a plaquette (the ring operator of lowfold.readout.couplings).  The -24 is -16 of the dimer
     # (Takahashi 1977) and -4 from each of the two plaquettes holding a bond; the single
     # open 2x2 plaquette therefore has -20 on its edges and 4 t^4/U^3 on its diagonals.
     t, U = 0.1, 1.0
@@ -657,7 +657,7 @@ def test_window_with_no_state_is_rejected():
 
 def test_constant_h0_is_refused_without_enumerating_the_sector():
     # U = 0: H0 = hubbard is zero on every state, so the "manifold" would be the whole sector
-    # and no gap separates it from anything (DESIGN.md: refuse with ManifoldError); on a
+    # and no gap separates it from anything (refused with ManifoldError, docs/model-files.md); on a
     # 16-site cluster this must be refused at once, not after listing 6e8 states
     model = hubbard("square", (4, 4), "periodic", U=0.0)
     with pytest.raises(ManifoldError, match="constant"):

@@ -1,6 +1,6 @@
 """``lowfold derive`` and ``lowfold demo`` as a user runs them (installed script, subprocess).
 
-Contract (DESIGN.md, "Command line"): ``--json`` prints one JSON object with the keys
+Contract (README "Commands" and docs/output.md): ``--json`` prints one JSON object with the keys
 order, manifold{dimension, energy, gap, readout}, terms, couplings, check{exact, by_order},
 warnings; ``--latex`` a tabular; ``--no-check`` gives ``check: null``; every user error is
 one line on stderr, exit status 2, no traceback.  All commands start at once (each start-up

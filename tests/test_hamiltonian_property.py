@@ -1,6 +1,6 @@
 """Random small models: lowfold's Hamiltonian equals the dense Kronecker-product reference.
 
-The reference (``tests/reference.py``) writes every term out from the formulas of DESIGN.md
+The reference (``tests/reference.py``) writes every term out from the formulas of docs/model-files.md
 and builds full-space matrices from local operator matrices and explicit Jordan-Wigner
 strings; the sector is cut out of the full space by brute force.  The matrix-free operator
 must agree with the CSR matrix on random vectors.

@@ -1,7 +1,7 @@
 """Package structure: the public API and the one-way flow of imports.
 
 Imports are read from the source files (``ast``, every import statement, also those inside
-functions), not by importing the modules.  The layers are those of DESIGN.md; a module may
+functions), not by importing the modules.  The layers are those of the README ("Layout"); a module may
 import only modules of earlier layers (or of its own layer, for the ``perturbation/``
 package).  ``_kernels/`` imports nothing of lowfold outside ``_kernels/``.  Modules not
 yet present are skipped.
@@ -80,7 +80,7 @@ def layer_of(module: str) -> str | None:
 
 
 # ---------------------------------------------------------------------------------------
-# the public API (STYLE.md item 7)
+# the public API (re-exported from lowfold/__init__.py with __all__)
 
 
 def test_all_names_exist_once():
@@ -97,7 +97,7 @@ def test_star_import_gives_all():
 
 
 def test_core_api_is_public():
-    # the names of notes/API.md that scripts are written against
+    # the names that scripts are written against (README, docstrings)
     for name in ("load_model", "parse_model", "build_basis", "hamiltonian_matrix",
                  "hamiltonian_operator", "spectrum", "Model", "Basis", "Sector",
                  "SpectrumResult", "LowfoldError", "ModelError", "ManifoldError", "SizeError",

@@ -15,8 +15,8 @@ import numpy as np
 import pytest
 
 from lowfold.errors import ModelError
-from lowfold.plots.figures import (DPI, FIGSIZE, exact_gap, plot_couplings, plot_errors, plot_finite_size,
-                           plot_levels)
+from lowfold.plots.scan_figures import exact_gap, plot_couplings, plot_errors, plot_finite_size, plot_levels
+from lowfold.plots.style import DPI, FIGSIZE
 
 PIXELS = (round(FIGSIZE[1] * DPI), round(FIGSIZE[0] * DPI))
 
@@ -168,7 +168,7 @@ def test_slices_of_a_scan_with_several_sizes(tmp_path):
 
 
 def test_plot_results_dispatch(tmp_path):
-    from lowfold.plots.figures import plot_results
+    from lowfold.plots.from_directory import plot_results
     from lowfold.scans.store import ResultStore
 
     store = ResultStore(tmp_path / "res")
@@ -186,7 +186,7 @@ def test_plot_results_dispatch(tmp_path):
 def test_sweep_plot_of_a_two_level_system(tmp_path):
     # H = [[0, lam], [lam, 1]]: levels (1 -+ sqrt(1 + 4 lam^2)) / 2; the lower one has the
     # series -lam^2 + lam^4 - 2 lam^6 + 5 lam^8 - ... (signed Catalan numbers; common practice)
-    from lowfold.plots.figures import plot_sweep
+    from lowfold.plots.sweep_figure import plot_sweep
 
     lam = np.linspace(0.0, 0.8, 33)
     root = np.sqrt(1 + 4 * lam**2)
@@ -214,7 +214,7 @@ def test_sweep_plot_of_a_two_level_system(tmp_path):
 
 
 def test_parse_where():
-    from lowfold.plots.figures import parse_where
+    from lowfold.plots.where import parse_where
 
     assert parse_where(["size=4", "U=20", "boundary=open", " sz = 0.5"]) == {
         "size": [4], "U": 20.0, "boundary": "open", "sz": 0.5}
@@ -226,7 +226,7 @@ def test_parse_where():
 
 
 def test_plot_results_couplings_with_exact_gap_string(tmp_path):
-    from lowfold.plots.figures import plot_results
+    from lowfold.plots.from_directory import plot_results
     from lowfold.scans.store import ResultStore
 
     store = ResultStore(tmp_path / "res")

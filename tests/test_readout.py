@@ -1,7 +1,7 @@
 """Tests of the spin-1/2 readout: Pauli coefficients, named couplings, rational recognition.
 
 Every operator here is built independently of lowfold, by Kronecker products in the qubit
-convention of DESIGN.md (bit k of a basis index = site k, bit 0 = spin up = Pauli Z +1), so
+convention of lowfold.readout.pauli (bit k of a basis index = site k, bit 0 = spin up = Pauli Z +1), so
 site 0 is the *last* Kronecker factor.
 """
 
@@ -15,14 +15,9 @@ import pytest
 import scipy.sparse as sp
 
 from lowfold.errors import ModelError, SizeError
-from lowfold.readout.couplings import (
-    Coupling,
-    parse_pauli_string,
-    pauli_coefficients,
-    pauli_coefficients_by_order,
-    recognise_rational,
-    spin_couplings,
-)
+from lowfold.readout.couplings import Coupling, spin_couplings
+from lowfold.readout.pauli import parse_pauli_string, pauli_coefficients, pauli_coefficients_by_order
+from lowfold.readout.rationals import recognise_rational
 
 PAULI = {
     "I": np.eye(2, dtype=complex),
@@ -58,7 +53,7 @@ def cross_dot(s, vec, i, j):
 
 
 def ring(s, i, j, k, l):
-    """(S_i.S_j)(S_k.S_l) + (S_i.S_l)(S_j.S_k) - (S_i.S_k)(S_j.S_l) (DESIGN.md)."""
+    """(S_i.S_j)(S_k.S_l) + (S_i.S_l)(S_j.S_k) - (S_i.S_k)(S_j.S_l) (lowfold.readout.couplings)."""
     return dot(s, i, j) @ dot(s, k, l) + dot(s, i, l) @ dot(s, j, k) - dot(s, i, k) @ dot(s, j, l)
 
 
@@ -120,7 +115,7 @@ def test_pauli_coefficients_match_brute_force_trace(n, seed, kind):
 
 
 def test_pauli_coefficients_basis_convention():
-    # Z on site 0 acts on the least significant bit; bit 0 = up = +1 (DESIGN.md).
+    # Z on site 0 acts on the least significant bit; bit 0 = up = +1 (lowfold.readout.pauli).
     assert pauli_coefficients(np.diag([1.0, -1.0, 1.0, -1.0]), 2) == {"Z0": 1.0}
     assert pauli_coefficients(np.diag([1.0, 1.0, -1.0, -1.0]), 2) == {"Z1": 1.0}
     # |up up> <-> |down up> is X on site 0 (index 0 <-> 1).

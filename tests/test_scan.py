@@ -17,8 +17,10 @@ import numpy as np
 import pytest
 
 from lowfold.errors import ModelError
-from lowfold.scans.run import (WORKER_ENV, WORKER_MALLOC, load_scan, parse_scan, plan_scan, run_scan,
-                          start_local_cluster)
+from lowfold.scans.cluster import WORKER_ENV, WORKER_MALLOC, start_local_cluster
+from lowfold.scans.plan import plan_scan
+from lowfold.scans.run import run_scan
+from lowfold.scans.scanfile import load_scan, parse_scan
 from lowfold.scans.store import load_results
 from lowfold.jobs.tasks import run_task
 
@@ -360,7 +362,7 @@ def test_killed_worker_does_not_lose_or_duplicate_points(tmp_path, client):
 
 def test_batch_cluster_job_script_runs_single_threaded_workers():
     pytest.importorskip("dask_jobqueue")        # optional extra lowfold[cluster]
-    from lowfold.scans.run import start_batch_cluster
+    from lowfold.scans.cluster import start_batch_cluster
 
     cluster = start_batch_cluster("slurm", jobs=0, cores=8, memory="16GB", walltime="02:00:00",
                                   queue="cpu", job_script_prologue=["module load python"],

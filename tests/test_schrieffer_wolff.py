@@ -3,7 +3,7 @@
 References used below:
 - BDL: Bravyi, DiVincenzo, Loss, Ann. Phys. 326, 2793 (2011), Sec. 3 (generator recursion).
 - Oracle: the exact effective Hamiltonian by direct rotation (polar factor of P psi),
-  DESIGN.md "Perturbation theory used"; the series summed to order n differs from it by
+  ``exact_effective_hamiltonian``; the series summed to order n differs from it by
   O(lambda^(n+1)) (BDL 2011, Sec. 3).
 """
 
@@ -87,7 +87,7 @@ def ising_chain(n_sites, seed):
 
 
 def dense_recursion(e, v, p, order):
-    """Slow twin: BDL 2011 Sec. 3 recursion (DESIGN.md convention) on dense matrices, with
+    """Slow twin: BDL 2011 Sec. 3 recursion (convention of the schrieffer_wolff module) on dense matrices, with
     the series coefficients typed in from A_SERIES / B_SERIES and no pruning or slicing."""
     v = np.asarray(v.toarray() if sp.issparse(v) else v)
     in_p = np.zeros(e.size, bool)
@@ -134,7 +134,7 @@ def fitted_slopes(lams, errs):
 
 
 def test_generator_coefficients_match_series():
-    # A & S 4.5.67 / 4.5.64 (from memory); a_2, a_4, b_1, b_3 also listed in DESIGN.md
+    # A & S 4.5.67 / 4.5.64 (from memory)
     a, b = generator_coefficients(8)
     assert a == pytest.approx(A_SERIES, rel=1e-15)
     assert b == pytest.approx(B_SERIES, rel=1e-15)
@@ -142,7 +142,7 @@ def test_generator_coefficients_match_series():
 
 @pytest.mark.parametrize("quasi", [False, True], ids=["degenerate", "quasi-degenerate"])
 def test_series_error_scales_as_next_power(quasi):
-    # Oracle (DESIGN.md) and BDL 2011: || sum_{m<=n} H_eff,m - H_eff,exact || = O(lambda^(n+1))
+    # Oracle and BDL 2011: || sum_{m<=n} H_eff,m - H_eff,exact || = O(lambda^(n+1))
     e, v, p = random_model(1, quasi=quasi)
     lams = np.array([0.04, 0.06, 0.09])
     errs = series_errors(e, v, p, 6, lams)
@@ -151,7 +151,7 @@ def test_series_error_scales_as_next_power(quasi):
 
 
 def test_largest_cluster_order_eight():
-    # Oracle (DESIGN.md), BDL 2011: error of the order-n series is O(lambda^(n+1)), on a
+    # Oracle, BDL 2011: error of the order-n series is O(lambda^(n+1)), on a
     # 9-site Ising chain in a tilted complex field (D = 512), order 8. Some orders vanish
     # or are small here, so the error may fall faster: slope >= n + 1 - 0.2.
     e, v, p = ising_chain(9, 3)
@@ -239,7 +239,7 @@ def test_third_order_single_state_rayleigh_schroedinger():
 
 
 def test_third_order_degenerate_against_oracle():
-    # Oracle (DESIGN.md): at lambda -> 0, (H_exact - sum_{m<=2} H_m) / lambda^3 -> H_3
+    # Oracle: at lambda -> 0, (H_exact - sum_{m<=2} H_m) / lambda^3 -> H_3
     # (BDL 2011); degenerate P of two states, random complex V with a diagonal part.
     e, v, p = random_model(5, quasi=False, dim=8, n_p=2, density=0.8)
     orders = effective_hamiltonian_orders(e, v, p, 4)
@@ -252,7 +252,7 @@ def test_third_order_degenerate_against_oracle():
 
 @pytest.mark.parametrize("order", range(1, 7))
 def test_truncated_space_gives_same_result(order):
-    # DESIGN.md: only states within floor(n/2) applications of V enter H_eff at order n
+    # Only states within floor(n/2) applications of V enter H_eff at order n
     # (every entry of an order-m term is a sum over m-step paths; common practice)
     e, v, p = ring_model(11)
     keep = reachable_indices(v, p, order // 2)
@@ -276,7 +276,7 @@ def test_reachable_indices_against_boolean_powers():
 
 
 def test_orders_zero_and_one_and_real_dtype():
-    # definitions in DESIGN.md: H_eff,0 = P H0 P, H_eff,1 = P V P
+    # definitions (BDL 2011): H_eff,0 = P H0 P, H_eff,1 = P V P
     e, v, p = random_model(3, quasi=True)
     v = (v + v.conj()) / 2  # real symmetric
     orders = effective_hamiltonian_orders(e, v.real, p, 3)
@@ -291,7 +291,7 @@ def test_orders_zero_and_one_and_real_dtype():
 
 
 def dense_second_order(e_p, e_q, v_pq):
-    """Slow twin of the matrix-free kernel: the formula of DESIGN.md, term by term."""
+    """Slow twin of the matrix-free kernel: the BDL 2011 formula, term by term."""
     n_p = e_p.size
     h2 = np.zeros((n_p, n_p), dtype=complex)
     for a in range(n_p):
@@ -304,7 +304,7 @@ def dense_second_order(e_p, e_q, v_pq):
 
 @pytest.mark.parametrize("quasi", [False, True], ids=["degenerate", "quasi-degenerate"])
 def test_matrix_free_second_order_matches_recursion_and_twin(quasi):
-    # BDL 2011 second order (DESIGN.md formula) = recursion's second order; slow dense twin
+    # BDL 2011 second order = recursion's second order; slow dense twin
     e, v, p = random_model(6, quasi=quasi, dim=20, n_p=4)
     q = np.delete(np.arange(e.size), p)
     h2 = second_order_matrix_free(e[p], e[q], v[p][:, q])
@@ -336,7 +336,7 @@ def exchange_like_block(n_sites, seed):
 
 def test_matrix_free_second_order_large_sparse():
     # dim P = 4096; twin by sparse algebra: H2 = (A + A^dagger)/2 with
-    # A = W V_PQ^dagger, W_am = V_am / (E_a - E_m)  (DESIGN.md formula, rearranged)
+    # A = W V_PQ^dagger, W_am = V_am / (E_a - E_m)  (BDL 2011 formula, rearranged)
     e_p, e_q, v_pq = exchange_like_block(12, 0)
     h2 = second_order_matrix_free(e_p, e_q, v_pq)
     coo = v_pq.tocoo()
@@ -353,7 +353,7 @@ def test_matrix_free_second_order_large_sparse():
 
 
 def test_oracle_is_exact_for_block_diagonal_h():
-    # When V does not couple P and Q, H_eff,exact = P H P exactly (definition, DESIGN.md)
+    # When V does not couple P and Q, H_eff,exact = P H P exactly (definition of the oracle)
     rng = np.random.default_rng(0)
     h = np.diag([0.0, 0.1, 2.0, 3.0]).astype(complex)
     h[0, 1] = 0.05 + 0.02j

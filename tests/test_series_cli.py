@@ -18,7 +18,7 @@ from concurrent.futures import ThreadPoolExecutor
 import numpy as np
 import pytest
 
-import lowfold.plots.figures
+import lowfold.plots.sweep_figure
 from lowfold import cli
 from test_state_series import (
     DIMER_AND_FREE_SPIN,
@@ -156,7 +156,7 @@ def test_user_error_is_one_line_exit_2(call, name):
 
 
 def test_json_keys_and_values(runs):
-    # DESIGN.md: {"orders": {"0": E0, ...}, "energy": sum, "diagnostics": {...}}; the
+    # docs/output.md: {"orders": {"0": E0, ...}, "energy": sum, "diagnostics": {...}}; the
     # coefficients against the exact finite-ring solution (Lieb, Schultz and Mattis, Ann.
     # Phys. 16, 407 (1961); Pfeuty, Ann. Phys. 57, 79 (1970)).
     data = one_json_object(runs["json"][1])

@@ -7,8 +7,9 @@ import os
 import pytest
 
 from lowfold.errors import LowfoldError, ModelError
-from lowfold.scans.store import (ResultStore, axis_value, load_results, point_key, scalar, table_rows,
-                           to_dataframe, write_csv, write_json_atomic)
+from lowfold.scans.select import axis_value, scalar
+from lowfold.scans.store import ResultStore, load_results, point_key, write_json_atomic
+from lowfold.scans.table import table_rows, to_dataframe, write_csv
 
 
 def _record(key, *, task="spectrum", status="ok", result=None, error=None, U=8.0, size=(4,)):

@@ -19,7 +19,9 @@ from lowfold.perturbation.schrieffer_wolff import (effective_hamiltonian_orders,
                                             exact_effective_hamiltonian)
 from lowfold.perturbation.series import SeriesResult, rayleigh_schrodinger, rayleigh_schrodinger_general
 from lowfold.perturbation.convergence import pade_estimate, pade_table, partial_sums, ratio_test
-from lowfold.readout.couplings import Coupling, pauli_coefficients, recognise_rational, spin_couplings
+from lowfold.readout.couplings import Coupling, spin_couplings
+from lowfold.readout.pauli import pauli_coefficients
+from lowfold.readout.rationals import recognise_rational
 from lowfold.jobs.derive import EffectiveModel, derive
 from lowfold.jobs.state_series import StateSeries, state_series
 from lowfold.jobs.tasks import run_task

@@ -233,7 +233,7 @@ def series(model: Path = typer.Argument(..., help="model file (TOML) with a [per
     with _progress(not json_out) as progress:
         result = run_task("series", m, options, progress=progress)
     if plot is not None:
-        from lowfold.plots.figures import plot_sweep
+        from lowfold.plots.sweep_figure import plot_sweep
         plot_sweep(result["sweep"], title=m.title, output=plot)
     if json_out:
         return _emit_json(result)
@@ -281,7 +281,8 @@ def plot(results: Path = typer.Argument(..., help="results directory of a scan")
          title: Optional[str] = typer.Option(None, "--title", help="figure title"),
          json_out: bool = typer.Option(False, "--json", help="print one JSON object")):
     """Draw a figure from scan results (see docs/scans.md)."""
-    from lowfold.plots.figures import parse_where, plot_results
+    from lowfold.plots.from_directory import plot_results
+    from lowfold.plots.where import parse_where
     info = plot_results(results, kind=kind, output=output, x=x, quantity=quantity,
                         orders=order or None, unit=unit, where=parse_where(where or []),
                         exact_levels=exact_gap, series=series_dir, levels=levels,

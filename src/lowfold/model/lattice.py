@@ -51,11 +51,20 @@ For a graph, ``nearest`` are the given bonds and ``next-nearest`` / ``third`` th
 graph distance 2 and 3 (shortest path along given bonds).
 
 Bond arrays hold rows ``(i, j)`` with ``i < j``, sorted lexicographically, dtype int64.
+
+Size limit
+----------
+A lattice has at most :data:`MAX_SITES` = 4,096 sites (a :class:`~lowfold.errors.SizeError`
+otherwise, raised before anything is allocated): the distance of every pair of sites is
+computed, 8.4 million pairs at the limit.  A lattice is geometry only; a *model* holds far
+fewer sites, since each many-body state is one int64 (at most 62 sites, see
+``lowfold.model.sites``).
 """
 
 from __future__ import annotations
 
 import itertools
+import math
 from dataclasses import dataclass
 from types import MappingProxyType
 from typing import Mapping
@@ -64,13 +73,14 @@ import numpy as np
 from scipy.sparse import csr_matrix
 from scipy.sparse.csgraph import shortest_path
 
-from lowfold.errors import ModelError
+from lowfold.errors import ModelError, SizeError
 
-__all__ = ["SHAPES", "BOND_CLASSES", "Lattice", "make_lattice"]
+__all__ = ["SHAPES", "BOND_CLASSES", "MAX_SITES", "Lattice", "lattice_cycles", "make_lattice"]
 
 SHAPES = ("chain", "ladder", "square", "triangular", "honeycomb", "kagome", "cubic", "graph")
 BOND_CLASSES = ("nearest", "next-nearest", "third")
 BOUNDARIES = ("open", "periodic")
+MAX_SITES = 4096  # see "Size limit" in the module docstring
 
 _S3 = np.sqrt(3.0)
 # shape -> (primitive vectors, one per row; basis positions, one per row)
@@ -208,6 +218,8 @@ def make_lattice(shape: str, size=None, boundary="open", *, sites: int | None = 
     ------
     ModelError
         Unknown shape, bad size or boundary, bad graph sites or bonds.
+    SizeError
+        More than :data:`MAX_SITES` sites.
     """
     if not isinstance(shape, str) or shape not in SHAPES:
         raise ModelError(f"unknown lattice shape {shape!r}; use one of {', '.join(SHAPES)}")
@@ -217,6 +229,7 @@ def make_lattice(shape: str, size=None, boundary="open", *, sites: int | None = 
         raise ModelError(f"sites and bonds are given only for shape \"graph\", not {shape!r}")
     vectors, basis = (np.array(a, dtype=float) for a in _GEOMETRY[shape])
     size = _check_size(shape, size, len(vectors))
+    _check_site_count(shape, math.prod(size) * len(basis))
     boundary = _check_boundary(boundary, len(vectors))
     coords = _positions(vectors, basis, size)
     periods = [n * v for n, v, b in zip(size, vectors, boundary) if b == "periodic"]
@@ -249,6 +262,12 @@ def _check_size(shape, size, ndim):
         if not _is_int(n) or n < 1:
             raise ModelError(f"{shape} lattice size entries must be integers >= 1, got {size!r}")
     return tuple(int(n) for n in size)
+
+
+def _check_site_count(shape, n_sites: int) -> None:
+    if n_sites > MAX_SITES:
+        raise SizeError(f"a {shape} lattice of {n_sites:,} sites is larger than the {MAX_SITES:,} "
+                        "sites lowfold handles (and a model holds at most 62: one int64 per state)")
 
 
 def _check_boundary(boundary, ndim):
@@ -339,6 +358,7 @@ def _show(x):
 def _make_graph(size, boundary, sites, bonds):
     if not _is_int(sites) or sites < 1:
         raise ModelError(f"graph needs sites = an integer >= 1, got {sites!r}")
+    _check_site_count("graph", int(sites))
     if bonds is None:
         raise ModelError("graph needs bonds = [[i, j], ...]")
     if size is not None and _check_size("graph", size, 1) != (sites,):
@@ -365,3 +385,31 @@ def _frozen(shape, size, boundary, coords, by_class):
         arr.setflags(write=False)
     return Lattice(shape=shape, size=size, boundary=boundary, coordinates=coords,
                    bonds_by_class=MappingProxyType(by_class))
+
+
+def lattice_cycles(lattice) -> tuple[list[tuple], list[tuple]]:
+    """The 4-cycles (cyclic order) and triangles of the nearest-neighbour bond graph: where
+    ring exchange and scalar chirality are read out.
+
+    Returns
+    -------
+    rings : list of 4-tuples
+        Each 4-cycle once, as the smallest of its rotations and reflections, sorted.
+    triangles : list of 3-tuples
+        Each triangle once, sites ascending, sorted.
+    """
+    neighbours = {i: set() for i in range(lattice.n_sites)}
+    for i, j in lattice.bonds("nearest"):
+        neighbours[int(i)].add(int(j))
+        neighbours[int(j)].add(int(i))
+    triangles = sorted({tuple(sorted((i, j, k))) for i in neighbours for j in neighbours[i]
+                        for k in neighbours[j] & neighbours[i] if len({i, j, k}) == 3})
+    rings = set()
+    for i in neighbours:
+        for j in neighbours[i]:
+            for k in neighbours[j] - {i}:
+                for l in (neighbours[k] & neighbours[i]) - {i, j, k}:
+                    rotations = [(i, j, k, l)[r:] + (i, j, k, l)[:r] for r in range(4)]
+                    rotations += [tuple(reversed(c)) for c in rotations]
+                    rings.add(min(rotations))
+    return sorted(rings), triangles

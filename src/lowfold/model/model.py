@@ -9,8 +9,8 @@ from typing import Mapping
 from lowfold.model.sector import Sector
 from lowfold.errors import ModelError
 from lowfold.model.lattice import Lattice, make_lattice
-from lowfold.model.sites import Site
-from lowfold.model.terms import Term, expand_term
+from lowfold.model.sites import Site, check_state_space
+from lowfold.model.terms import Term, check_label, check_strength, expand_term
 
 __all__ = ["Model", "PerturbationSpec"]
 
@@ -21,6 +21,8 @@ class PerturbationSpec:
 
     ``manifold = "lowest"`` takes the lowest degenerate level of H0 (relative tolerance
     ``tolerance``); ``window = (emin, emax)`` takes every H0 level inside the window.
+    H0 is the sum of the terms ``unperturbed`` names, each once (a repeated label is a
+    ``ModelError``: it would count the term twice).
     """
 
     unperturbed: tuple[str, ...]
@@ -29,13 +31,27 @@ class PerturbationSpec:
     window: tuple[float, float] | None = None
     tolerance: float = 1e-9
 
+    def __post_init__(self):
+        if isinstance(self.unperturbed, str):
+            raise ModelError("perturbation.unperturbed: must be a list of term labels, "
+                             f"not the string {self.unperturbed!r}")
+        object.__setattr__(self, "unperturbed", tuple(self.unperturbed))
+        for index, label in enumerate(self.unperturbed):
+            if label in self.unperturbed[:index]:
+                raise ModelError(f"perturbation.unperturbed: {label!r} is listed twice; "
+                                 "name each term of H0 once")
+
 
 @dataclass(frozen=True)
 class Model:
     """A lattice model, immutable: ``with_parameters`` / ``with_lattice`` return new models.
 
     Conventions (hbar = 1, S = sigma/2, fermion and spin encodings) are those of
-    ``lowfold.sites`` and the README.
+    ``lowfold.model.sites`` and the README.  Construction validates everything that can be
+    decided without building a basis: ``SizeError`` when the states would not fit one int64
+    (``lowfold.model.sites.check_state_space``), ``ModelError`` for any invalid term.
+    Term labels and parameter names are one printable line; ``title`` is any text and is
+    kept exactly as given (whoever displays it escapes it for the display).
     """
 
     lattice: Lattice
@@ -49,6 +65,12 @@ class Model:
 
     def __post_init__(self):
         object.__setattr__(self, "parameters", MappingProxyType(dict(self.parameters)))
+        check_state_space(self.site, self.lattice.n_sites)     # SizeError: states must fit int64
+        for name, value in self.parameters.items():
+            check_label(name, "parameters: name")
+            check_strength(value, f"parameters.{name}")
+        if not isinstance(self.title, str):
+            raise ModelError(f"title: must be a string, got {self.title!r}")
         labels = [t.label for t in self.terms]
         for label in labels:
             if labels.count(label) > 1:
@@ -88,8 +110,8 @@ class Model:
             if term.strength not in self.parameters:
                 raise ModelError(f"term {term.label!r}: strength names parameter "
                                  f"{term.strength!r}, which is not defined in [parameters]")
-            return float(self.parameters[term.strength])
-        return term.strength
+            return check_strength(self.parameters[term.strength], f"parameters.{term.strength}")
+        return check_strength(term.strength, f"term {term.label!r}: strength")
 
     def products(self, labels=None):
         """Expanded local-operator products of the named terms (default: all), as

@@ -1,4 +1,4 @@
-"""Reading and validating model files (TOML, the format of DESIGN.md).
+"""Reading and validating model files (TOML, the format of docs/model-files.md).
 
 Every problem is a :class:`~lowfold.errors.ModelError` whose one-line message names the file
 and the key, e.g. ``dots.toml: term[2].strength: parameter 'V' is not defined``.
@@ -16,11 +16,11 @@ except ModuleNotFoundError:  # Python 3.10
     import tomli as tomllib
 
 from lowfold.model.sector import Sector, sector_totals
-from lowfold.errors import ModelError
+from lowfold.errors import ModelError, SizeError
 from lowfold.model.lattice import make_lattice
 from lowfold.model.model import Model, PerturbationSpec
-from lowfold.model.sites import make_site
-from lowfold.model.terms import TERM_TYPES, TWO_SITE_TYPES, Term
+from lowfold.model.sites import check_state_space, make_site
+from lowfold.model.terms import TERM_TYPES, TWO_SITE_TYPES, Term, check_label, check_strength
 
 __all__ = ["load_model", "parse_model", "read_toml"]
 
@@ -33,17 +33,42 @@ _PERTURBATION_KEYS = {"unperturbed", "order", "manifold", "window", "tolerance"}
 
 
 def read_toml(path) -> dict:
-    """Parse a TOML file; a missing file or a syntax error is a ModelError."""
+    """Parse a TOML file (UTF-8, as TOML requires).
+
+    Raises
+    ------
+    ModelError
+        The file is missing, a directory, unreadable, not UTF-8 (the message gives the byte
+        offset of the first bad byte) or not valid TOML; the message starts with the path.
+    """
     path = Path(path)
+    shown = _shown(path)
     try:
-        with open(path, "rb") as fh:
-            return tomllib.load(fh)
+        raw = path.read_bytes()
     except FileNotFoundError:
-        raise ModelError(f"{path}: no such file") from None
+        raise ModelError(f"{shown}: no such file") from None
     except IsADirectoryError:
-        raise ModelError(f"{path}: is a directory, not a model file") from None
+        raise ModelError(f"{shown}: is a directory, not a model file") from None
+    except PermissionError:
+        raise ModelError(f"{shown}: permission denied (the file is not readable)") from None
+    except OSError as exc:
+        raise ModelError(f"{shown}: cannot be read ({exc.strerror or type(exc).__name__})") from None
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise ModelError(f"{shown}: not UTF-8 text (byte 0x{raw[exc.start]:02x} at byte offset "
+                         f"{exc.start}); save the file as UTF-8") from None
+    try:
+        return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
-        raise ModelError(f"{path}: not valid TOML ({exc})") from None
+        raise ModelError(f"{shown}: not valid TOML ({exc})") from None
+
+
+def _shown(path) -> str:
+    """A path as one printable line: as given, or its escaped ``repr`` if it holds control
+    characters (a file name may contain a newline)."""
+    text = str(path)
+    return text if text.isprintable() else repr(text)
 
 
 def load_model(path) -> Model:
@@ -55,9 +80,9 @@ def parse_model(data: dict, *, source: str = "<model>") -> Model:
     """Build a :class:`Model` from a parsed TOML document."""
     try:
         return _parse(data, source)
-    except ModelError as exc:
-        message = str(exc)
-        raise ModelError(message if message.startswith(source) else f"{source}: {message}") from None
+    except (ModelError, SizeError) as exc:
+        message, shown = str(exc), _shown(source)
+        raise type(exc)(message if message.startswith(shown) else f"{shown}: {message}") from None
 
 
 def _unknown(table: dict, allowed: set, where: str) -> None:
@@ -95,6 +120,10 @@ def _parse(data: dict, source: str) -> Model:
         raise ModelError("title: must be a string")
     lattice = _parse_lattice(_table(data, "lattice", required=True))
     site = _parse_site(_table(data, "site", required=True))
+    try:
+        check_state_space(site, lattice.n_sites)
+    except SizeError as exc:
+        raise SizeError(f"lattice: {exc}") from None
     parameters = _parse_parameters(_table(data, "parameters", required=False))
     sector = _parse_sector(_table(data, "sector", required=False), site, lattice.n_sites)
     terms = _parse_terms(data.get("term", []), parameters)
@@ -128,8 +157,8 @@ def _parse_lattice(table: dict):
         bonds = table.get("bonds", [])
         try:
             return make_lattice("graph", None, sites=sites, bonds=bonds)
-        except ModelError as exc:
-            raise ModelError(f"lattice: {exc}") from None
+        except (ModelError, SizeError) as exc:
+            raise type(exc)(f"lattice: {exc}") from None
     for key in ("sites", "bonds"):
         if key in table:
             raise ModelError(f"lattice.{key}: only used with shape = \"graph\"")
@@ -140,8 +169,8 @@ def _parse_lattice(table: dict):
         raise ModelError("lattice.size: must be a list of integers, e.g. [4] or [2, 3]")
     try:
         return make_lattice(shape, size, table.get("boundary", "open"))
-    except ModelError as exc:
-        raise ModelError(f"lattice: {exc}") from None
+    except (ModelError, SizeError) as exc:
+        raise type(exc)(f"lattice: {exc}") from None
 
 
 def _parse_site(table: dict):
@@ -154,12 +183,15 @@ def _parse_site(table: dict):
         spin = _number(spin, "site.spin")
     try:
         return make_site(kind, spin=spin, max_occupation=table.get("max_occupation"))
-    except ModelError as exc:
-        raise ModelError(f"site: {exc}") from None
+    except (ModelError, SizeError) as exc:
+        raise type(exc)(f"site: {exc}") from None
 
 
 def _parse_parameters(table: dict) -> dict:
-    return {name: _number(value, f"parameters.{name}") for name, value in table.items()}
+    for name in table:
+        check_label(name, "parameters: name")
+    return {name: check_strength(_number(value, f"parameters.{name}"), f"parameters.{name}")
+            for name, value in table.items()}
 
 
 def _parse_sector(table: dict, site, n_sites: int) -> Sector:
@@ -194,8 +226,7 @@ def _parse_terms(entries, parameters: dict) -> tuple[Term, ...]:
         if kind not in TERM_TYPES:
             raise ModelError(f"{where}.type: unknown term type {kind!r} (known: {', '.join(TERM_TYPES)})")
         label = table.get("label", kind)
-        if not isinstance(label, str) or not label:
-            raise ModelError(f"{where}.label: must be a non-empty string")
+        check_label(label, f"{where}.label")
         if label in [t.label for t in terms]:
             raise ModelError(f"{where}.label: {label!r} is used twice; give each term a unique label")
         strength = table.get("strength")
@@ -205,7 +236,7 @@ def _parse_terms(entries, parameters: dict) -> tuple[Term, ...]:
             if strength not in parameters:
                 raise ModelError(f"{where}.strength: parameter {strength!r} is not defined in [parameters]")
         else:
-            strength = _number(strength, f"{where}.strength")
+            strength = check_strength(_number(strength, f"{where}.strength"), f"{where}.strength")
         bonds, sites = table.get("bonds"), table.get("sites")
         if kind in TWO_SITE_TYPES and sites is not None:
             raise ModelError(f"{where}.sites: a {kind} term acts on bonds; use 'bonds'")

@@ -5,7 +5,7 @@ encoding of many-body states.  Every site is made of ``modes`` *slots*; a slot h
 digit in ``0 .. radix - 1``.  Slot ``site + mode * n_sites`` stores mode ``mode`` of site
 ``site``, and a many-body state is the integer ``sum_slot digit(slot) * radix**slot``.
 
-Encodings (the conventions of DESIGN.md, also written in the README):
+Encodings (also written in the README, "Conventions"):
 
 =================  =====  =====  ===================================================
 type               modes  radix  digit
@@ -17,6 +17,17 @@ boson              1      n+1    occupation, at most ``max_occupation``
 =================  =====  =====  ===================================================
 
 Fermionic slots anticommute; the Jordan-Wigner order is the slot order.
+
+Limits (what lowfold can ever represent, checked before anything is allocated):
+
+- A many-body state is one int64, so ``radix**n_slots`` must not exceed ``2**63 - 1``
+  (:data:`STATE_LIMIT`): at most 62 spin-1/2 or spinless-fermion sites, 31 electron sites,
+  39 spin-1 sites, 31 spin-3/2 sites; in general ``n_slots <= log(2**63 - 1) / log(radix)``.
+- A slot holds at most :data:`MAX_RADIX` = 65,536 digits (spin S <= 32767.5, boson
+  ``max_occupation`` <= 65,535): local operators are tables with one entry per digit, and
+  two such sites already span 2**32 states, beyond any exact solve.
+
+:func:`check_state_space` raises :class:`~lowfold.errors.SizeError` past these limits.
 
 Every local operator is a short sum of *monomials*: a coefficient times a product of
 :class:`SlotOperator` factors, each of which maps a digit to at most one digit with a fixed
@@ -32,11 +43,14 @@ from fractions import Fraction
 
 import numpy as np
 
-from lowfold.errors import ModelError
+from lowfold.errors import ModelError, SizeError
 
-__all__ = ["SlotOperator", "Site", "make_site", "SITE_TYPES"]
+__all__ = ["SlotOperator", "Site", "make_site", "check_state_space", "SITE_TYPES",
+           "STATE_LIMIT", "MAX_RADIX"]
 
 SITE_TYPES = ("spin", "fermion", "electron", "boson")
+STATE_LIMIT = 2**63 - 1      # largest int64: radix**n_slots must not exceed it
+MAX_RADIX = 2**16            # digits per slot
 
 
 @dataclass(frozen=True)
@@ -126,6 +140,13 @@ class Site:
     spin: Fraction | None = None
     max_occupation: int | None = None
 
+    def __post_init__(self):
+        if self.radix < 2:
+            raise ModelError(f"a site slot needs at least 2 states, got radix {self.radix}")
+        if self.radix > MAX_RADIX:
+            raise SizeError(f"a {self.type} site with {self.radix:,} states per slot is outside "
+                            f"what lowfold handles (2 to {MAX_RADIX:,} states per slot)")
+
     @property
     def local_dimension(self) -> int:
         return self.radix ** self.modes
@@ -173,20 +194,35 @@ class Site:
 
 
 def make_site(type: str, *, spin=None, max_occupation=None) -> Site:
-    """Build a :class:`Site`; ``ModelError`` on invalid options."""
+    """Build a :class:`Site`.
+
+    Raises
+    ------
+    ModelError
+        Unknown type, an option of another type, a spin that is not a positive multiple of
+        1/2, a ``max_occupation`` that is not a positive integer.
+    SizeError
+        More than :data:`MAX_RADIX` states per site slot (spin S > 32767.5,
+        ``max_occupation`` > 65,535).
+    """
     if type == "spin":
-        if spin is None:
-            spin = 0.5
-        twice = Fraction(spin) * 2
-        if twice.denominator != 1 or twice < 1:
-            raise ModelError(f"spin must be a positive multiple of 1/2, got {spin!r}")
-        return Site("spin", 1, int(twice) + 1, spin=Fraction(int(twice), 2))
+        twice = _twice_spin(0.5 if spin is None else spin)
+        if twice + 1 > MAX_RADIX:
+            raise SizeError(f"spin {spin!r} has {twice + 1:,} states per site, more than the "
+                            f"{MAX_RADIX:,} lowfold handles (spin <= {(MAX_RADIX - 1) / 2})")
+        return Site("spin", 1, twice + 1, spin=Fraction(twice, 2))
     if spin is not None:
         raise ModelError(f"'spin' is only valid for type = \"spin\", not {type!r}")
     if type == "boson":
-        if max_occupation is None or int(max_occupation) != max_occupation or max_occupation < 1:
-            raise ModelError("boson sites need max_occupation = a positive integer")
-        return Site("boson", 1, int(max_occupation) + 1, max_occupation=int(max_occupation))
+        cutoff = _positive_integer(max_occupation)
+        if cutoff is None:
+            raise ModelError(f"boson sites need max_occupation = a positive integer, "
+                             f"got {max_occupation!r}")
+        if cutoff + 1 > MAX_RADIX:
+            raise SizeError(f"max_occupation = {cutoff:,} gives {cutoff + 1:,} states per site, "
+                            f"more than the {MAX_RADIX:,} lowfold handles "
+                            f"(max_occupation <= {MAX_RADIX - 1:,})")
+        return Site("boson", 1, cutoff + 1, max_occupation=cutoff)
     if max_occupation is not None:
         raise ModelError(f"'max_occupation' is only valid for type = \"boson\", not {type!r}")
     if type == "fermion":
@@ -194,6 +230,51 @@ def make_site(type: str, *, spin=None, max_occupation=None) -> Site:
     if type == "electron":
         return Site("electron", 2, 2)
     raise ModelError(f"unknown site type {type!r} (known: {', '.join(SITE_TYPES)})")
+
+
+def _twice_spin(spin) -> int:
+    """2S as an integer >= 1; ``ModelError`` unless ``spin`` is a positive multiple of 1/2."""
+    try:
+        twice = Fraction(spin) * 2 if not isinstance(spin, bool) else None
+    except (TypeError, ValueError, OverflowError, ZeroDivisionError):
+        twice = None
+    if twice is None or twice.denominator != 1 or twice < 1:
+        raise ModelError(f"spin must be a positive multiple of 1/2, got {spin!r}")
+    return int(twice)
+
+
+def _positive_integer(value) -> int | None:
+    """``value`` as an int if it is a whole number >= 1 (an integral float counts)."""
+    if isinstance(value, bool):
+        return None
+    if isinstance(value, (int, np.integer)):
+        return int(value) if value >= 1 else None
+    if isinstance(value, (float, np.floating)) and np.isfinite(value) and value == int(value):
+        return int(value) if value >= 1 else None
+    return None
+
+
+def check_state_space(site: Site, n_sites: int) -> None:
+    """Raise :class:`~lowfold.errors.SizeError` unless every state of ``n_sites`` sites of
+    type ``site`` fits in one int64, i.e. ``radix**(modes * n_sites) <= 2**63 - 1``."""
+    n_slots = site.modes * n_sites
+    if site.radix ** n_slots <= STATE_LIMIT:
+        return
+    most = 0
+    while site.radix ** ((most + 1) * site.modes) <= STATE_LIMIT:
+        most += 1
+    raise SizeError(f"{n_sites:,} {_describe(site)} sites do not fit: a state is one int64 "
+                    f"with one base-{site.radix} digit per slot ({site.modes} per site), so "
+                    f"radix**slots must not exceed 2**63 - 1; lowfold handles at most "
+                    f"{most} such sites")
+
+
+def _describe(site: Site) -> str:
+    if site.type == "spin":
+        return f"spin-{site.spin}"
+    if site.type == "boson":
+        return f"boson (max_occupation {site.max_occupation})"
+    return site.type
 
 
 # ---------------------------------------------------------------------------------------

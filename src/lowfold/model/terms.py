@@ -2,7 +2,7 @@
 
 A :class:`Term` is what one ``[[term]]`` table of a model file says.  :func:`expand_term`
 turns it into *products*: ``(coefficient, ((operator_name, site), ...))`` with the strength
-already applied, the leftmost operator first, following the conventions of DESIGN.md:
+already applied, the leftmost operator first, following docs/model-files.md (``[[term]]``):
 
 - ``hopping``:      ``-s sum_bonds sum_spin (c+_i c_j + h.c.)`` (bosons ``b+_i b_j + h.c.``)
 - ``hubbard``:      ``s sum_i n_i,up n_i,dn`` (bosons ``(s/2) sum_i n_i (n_i - 1)``)
@@ -10,17 +10,28 @@ already applied, the leftmost operator first, following the conventions of DESIG
 - ``exchange``:     ``s sum_bonds S_i . S_j`` (spin sites or electron spins)
 - ``field``:        ``s sum_sites S^a_i`` along ``axis``
 - ``product``:      ``s sum_(bonds or sites) O_1 O_2 ...`` (+ h.c. with ``conjugate``)
+
+Strengths (numbers or the parameters they name) must be finite and either 0 or of size
+between ``1 / STRENGTH_LIMIT`` and :data:`STRENGTH_LIMIT` = 1e100 (:func:`check_strength`):
+matrix elements are strengths times operator amplitudes (up to ~1e9 at the largest local
+dimension) summed over up to ~1e4 products per row, and their squares -- which norms,
+Lanczos and second-order energies form -- must stay inside the normal double range
+(2.2e-308 to 1.8e308).  A strength of 1e308 would turn the spectrum into infinities.
 """
 
 from __future__ import annotations
 
+import math
+import numbers
 from dataclasses import dataclass
 
 from lowfold.errors import ModelError
 from lowfold.model.lattice import Lattice
 from lowfold.model.sites import Site
 
-__all__ = ["Term", "TERM_TYPES", "expand_term"]
+__all__ = ["Term", "TERM_TYPES", "STRENGTH_LIMIT", "check_label", "check_strength", "expand_term"]
+
+STRENGTH_LIMIT = 1e100      # see the module docstring
 
 TERM_TYPES = ("hopping", "hubbard", "interaction", "potential", "exchange", "field", "product")
 TWO_SITE_TYPES = ("hopping", "interaction", "exchange")
@@ -35,7 +46,8 @@ class Term:
 
     ``strength`` is a number or the name of a parameter; ``bonds`` is a bond class name or a
     tuple of pairs (two-site terms and two-operator products on bonds); ``sites`` is
-    ``"all"`` or a tuple of site indices (one-site terms and on-site products).
+    ``"all"`` or a tuple of site indices (one-site terms and on-site products).  The label
+    is one printable line (:func:`check_label`): it is shown in messages and tables.
     """
 
     label: str
@@ -46,6 +58,42 @@ class Term:
     axis: str | None = None
     operators: tuple[str, ...] | None = None
     conjugate: bool = False
+
+    def __post_init__(self):
+        check_label(self.label, "term label")
+
+
+def check_label(name, what: str = "label") -> None:
+    """Raise ``ModelError`` unless ``name`` is a non-empty string of printable characters
+    (no newline, tab or other control or format character; ``str.isprintable``)."""
+    if not isinstance(name, str) or not name:
+        raise ModelError(f"{what}: must be a non-empty string, got {name!r}")
+    if not name.isprintable():
+        bad = next(c for c in name if not c.isprintable())
+        raise ModelError(f"{what} {name!r} contains the control character {bad!r}; "
+                         "use printable characters on one line")
+
+
+def check_strength(value, where: str) -> float | complex:
+    """``value`` as a float (a complex number stays complex) if it is a usable strength.
+
+    Raises
+    ------
+    ModelError
+        ``value`` is not a number, not finite, or nonzero with ``|value|`` outside
+        ``[1 / STRENGTH_LIMIT, STRENGTH_LIMIT]``; the message starts with ``where``.
+    """
+    if isinstance(value, bool) or not isinstance(value, numbers.Complex):
+        raise ModelError(f"{where}: must be a number, got {value!r}")
+    value = complex(value) if isinstance(value, complex) or getattr(value, "imag", 0) else float(value)
+    size = abs(value)
+    if not math.isfinite(size):
+        raise ModelError(f"{where}: must be a finite number, got {value!r}")
+    if size and not 1 / STRENGTH_LIMIT <= size <= STRENGTH_LIMIT:
+        raise ModelError(f"{where}: {value!r} is outside the strengths lowfold accepts (0 or "
+                         f"{1 / STRENGTH_LIMIT:g} <= |s| <= {STRENGTH_LIMIT:g}, so that squares "
+                         "of matrix elements stay finite); rescale the energy unit")
+    return value
 
 
 def expand_term(term: Term, strength: float, lattice: Lattice, site: Site) -> list[Product]:

@@ -1,6 +1,6 @@
 """Schrieffer-Wolff effective Hamiltonian, order by order, on plain matrices.
 
-Convention (DESIGN.md, "Perturbation theory used"): H = H0 + V with H0 diagonal on the
+Convention: H = H0 + V with H0 diagonal on the
 working space, P a set of H0 eigenstates (degenerate or quasi-degenerate) and Q the rest.
 ``H_eff = P e^S H e^-S P`` with S anti-Hermitian and P-Q block-off-diagonal. With O(X) the
 P-Q block part of X, ``L(X)_ij = O(X)_ij / (E_i - E_j)`` (so that ``[H0, L(X)] = O(X)``) and
@@ -330,7 +330,7 @@ def _real_vector(x, name):
 
 
 def exact_effective_hamiltonian(h_dense, p_index, *, degeneracy_tol=1e-10, overlap_tol=1e-8):
-    """Exact effective Hamiltonian on P by direct rotation (the test oracle of DESIGN.md).
+    """Exact effective Hamiltonian on P by direct rotation (the test oracle of the series).
 
     Take the dim(P) lowest eigenpairs (E, psi) of H, ``A = P psi``, its polar factor
     ``W = X Y^dagger`` from ``A = X Sigma Y^dagger``; return ``W diag(E) W^dagger``.

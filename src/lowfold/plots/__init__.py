@@ -1,0 +1,1 @@
+"""Figures of scan results and sweeps (matplotlib)."""

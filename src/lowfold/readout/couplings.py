@@ -1,11 +1,7 @@
-"""Spin-1/2 readout of effective Hamiltonians: Pauli strings, named couplings, rationals.
+"""Named spin-1/2 couplings read out of a Pauli expansion (exchange, DM, ring, ...).
 
-Conventions
------------
-A matrix of dimension ``2**N`` is read in the qubit basis where bit k of the index is site k
-and bit value 0 is spin up (``S^z = +1/2``, Pauli ``Z = +1``).  Spin operators are
-``S = sigma / 2``.  Pauli strings are written ``"X0 Y3 Z5"`` (sites ascending, identity
-factors omitted); the identity string is ``"I"``.
+The qubit basis and the Pauli-string notation are those of :mod:`lowfold.readout.pauli`;
+spin operators are ``S = sigma / 2``.
 
 The named couplings (``kind``) and their conventions, for sites listed in ``sites``:
 
@@ -23,200 +19,29 @@ where ``Jt_ab = 4 c(sigma^a_i sigma^b_j)`` is the two-site coupling tensor of
 
 Examples
 --------
->>> import numpy as np
->>> sz = np.diag([0.5, -0.5])
->>> pauli_coefficients(np.kron(sz, sz), 2)
-{'Z0 Z1': 0.25}
+>>> couplings, residual = spin_couplings({"X0 X1": [0.25], "Y0 Y1": [0.25], "Z0 Z1": [0.25]},
+...                                      2, orders=[2])
+>>> couplings
+[Coupling(kind='exchange', sites=(0, 1), value=1.0, orders={2: 1.0})]
+>>> residual
+{}
 """
 
-import math
 from dataclasses import dataclass, field
-from fractions import Fraction
 
 import numpy as np
-import scipy.sparse as sp
 
-from lowfold.build.numerics import pauli_strings
-from lowfold.errors import ModelError, SizeError
+from lowfold.errors import ModelError
+from lowfold.readout.pauli import (AXES, check_n_sites, ops_key, ops_label, parse_pauli_string,
+                                   pauli_ops)
+# Kept importable from here until jobs/derive.py imports them from their own modules.
+from lowfold.readout.pauli import pauli_coefficients_by_order  # noqa: F401
+from lowfold.readout.rationals import recognise_rational  # noqa: F401
 
-__all__ = [
-    "Coupling",
-    "pauli_coefficients",
-    "pauli_coefficients_by_order",
-    "parse_pauli_string",
-    "recognise_rational",
-    "spin_couplings",
-]
+__all__ = ["Coupling", "spin_couplings"]
 
-MAX_SITES = 24  # a 2**24 complex work vector is 256 MB
-_AXES = "XYZ"
 _KIND_RANK = {k: n for n, k in enumerate(
     ["constant", "field", "exchange", "dm", "anisotropy", "chirality", "ring"])}
-
-
-# --------------------------------------------------------------------------- Pauli strings
-
-def _ops_label(ops):
-    """``((0, 'X'), (3, 'Y'))`` -> ``"X0 Y3"``; ``()`` -> ``"I"``."""
-    return " ".join(f"{letter}{site}" for site, letter in ops) if ops else "I"
-
-
-def _ops_key(ops):
-    return (len(ops), tuple(s for s, _ in ops), tuple(letter for _, letter in ops))
-
-
-def parse_pauli_string(text: str) -> tuple[tuple[int, str], ...]:
-    """Parse ``"X0 Y3 Z5"`` into ``((0, "X"), (3, "Y"), (5, "Z"))``; ``"I"`` gives ``()``.
-
-    Raises
-    ------
-    ModelError
-        If a factor is not X/Y/Z followed by a site index, or sites are not ascending.
-    """
-    if not isinstance(text, str):
-        raise ModelError(f"Pauli string must be a str, got {type(text).__name__}")
-    if text.strip() == "I":
-        return ()
-    ops = []
-    for factor in text.split():
-        letter, digits = factor[:1], factor[1:]
-        if letter not in _AXES or not digits.isdigit():
-            raise ModelError(f"bad factor {factor!r} in Pauli string {text!r}; "
-                             "write e.g. 'X0 Y3 Z5' or 'I'")
-        ops.append((int(digits), letter))
-    sites = [s for s, _ in ops]
-    if not ops or any(a >= b for a, b in zip(sites, sites[1:])):
-        raise ModelError(f"Pauli string {text!r}: sites must be distinct and ascending")
-    return tuple(ops)
-
-
-def _masks_to_ops(x, z, n_sites):
-    ops = []
-    for site in range(n_sites):
-        xb, zb = (x >> site) & 1, (z >> site) & 1
-        if xb or zb:
-            ops.append((site, "Y" if xb and zb else ("X" if xb else "Z")))
-    return tuple(ops)
-
-
-def _coo_triplets(matrix, n_sites):
-    dim = 1 << n_sites
-    if sp.issparse(matrix):
-        coo = sp.coo_array(matrix)
-        rows, cols, data = coo.row, coo.col, coo.data
-        shape = coo.shape
-    else:
-        arr = np.asarray(matrix)
-        if arr.ndim != 2:
-            raise ModelError(f"matrix must be two-dimensional, got shape {arr.shape}")
-        shape = arr.shape
-        if shape == (dim, dim):
-            rows, cols = np.nonzero(arr)
-            data = arr[rows, cols]
-    if shape != (dim, dim):
-        raise ModelError(f"matrix of shape {shape} does not act on {n_sites} qubits "
-                         f"(expected ({dim}, {dim}))")
-    if not np.issubdtype(np.asarray(data).dtype, np.number):
-        raise ModelError("matrix elements must be numbers")
-    data = np.asarray(data, dtype=np.complex128)
-    if not np.all(np.isfinite(data)):
-        raise ModelError("matrix has non-finite elements")
-    return (np.asarray(rows, dtype=np.int64), np.asarray(cols, dtype=np.int64), data)
-
-
-def _check_n_sites(n_sites):
-    if isinstance(n_sites, bool) or not isinstance(n_sites, (int, np.integer)) or n_sites < 0:
-        raise ModelError(f"n_sites must be a non-negative integer, got {n_sites!r}")
-    if n_sites > MAX_SITES:
-        raise SizeError(f"{n_sites} qubits exceed the readout limit of {MAX_SITES}")
-    return int(n_sites)
-
-
-def _pauli_ops(matrix, n_sites, tol, hermitian_tol, max_terms):
-    """{ops: real coefficient}, in canonical order (weight, sites, letters)."""
-    n_sites = _check_n_sites(n_sites)
-    if isinstance(tol, bool) or not isinstance(tol, (int, float, np.floating, np.integer)) \
-            or not (math.isfinite(tol) and tol >= 0):
-        raise ModelError(f"tol must be a finite non-negative number, got {tol!r}")
-    if isinstance(max_terms, bool) or not isinstance(max_terms, (int, np.integer)) \
-            or max_terms < 1:
-        raise ModelError(f"max_terms must be a positive integer, got {max_terms!r}")
-    rows, cols, data = _coo_triplets(matrix, n_sites)
-    xs, zs, cs, complete = pauli_strings(rows, cols, data, n_sites, float(tol), int(max_terms))
-    if not complete:
-        raise SizeError(f"more than {max_terms} Pauli strings exceed tol = {tol:g}; "
-                        "raise tol or max_terms")
-    if cs.size:
-        worst = int(np.argmax(np.abs(cs.imag)))
-        scale = max(1.0, float(np.max(np.abs(cs))))
-        if abs(cs.imag[worst]) > hermitian_tol * scale:
-            label = _ops_label(_masks_to_ops(int(xs[worst]), int(zs[worst]), n_sites))
-            raise ModelError(f"matrix is not Hermitian: the coefficient of {label!r} is "
-                             f"{complex(cs[worst])!r}")
-    keep = np.abs(cs.real) > tol
-    terms = {_masks_to_ops(int(x), int(z), n_sites): float(c)
-             for x, z, c in zip(xs[keep], zs[keep], cs.real[keep])}
-    return dict(sorted(terms.items(), key=lambda item: _ops_key(item[0])))
-
-
-def pauli_coefficients(matrix, n_sites: int, *, tol: float = 1e-12,
-                       hermitian_tol: float = 1e-10,
-                       max_terms: int = 2_000_000) -> dict[str, float]:
-    """Pauli-string expansion ``H = sum_s c_s sigma_s`` of a Hermitian matrix on N qubits.
-
-    Parameters
-    ----------
-    matrix : ndarray or scipy sparse matrix, shape (2**n_sites, 2**n_sites)
-        Hermitian matrix in the qubit basis of the module conventions.
-    n_sites : int
-        Number of qubits N (at most ``MAX_SITES``).
-    tol : float, keyword-only
-        Coefficients with ``abs(c) <= tol`` are left out.
-    hermitian_tol : float, keyword-only
-        Largest imaginary part of a coefficient, relative to ``max(1, max |c|)``, accepted
-        as round-off (a Hermitian matrix has real coefficients).
-    max_terms : int, keyword-only
-        Largest number of strings returned (a dense random matrix has 4**N of them).
-
-    Returns
-    -------
-    dict of str to float
-        ``{"X0 Y3": c, ...}``, ordered by number of sites, then sites, then letters.
-
-    Raises
-    ------
-    ModelError
-        If the shape does not match ``n_sites``, an element is not finite, or the matrix
-        is not Hermitian.
-    SizeError
-        If ``n_sites > MAX_SITES`` or more than ``max_terms`` strings exceed ``tol``.
-
-    Notes
-    -----
-    Elements are grouped by flip pattern ``row ^ col``; for each pattern one Walsh-Hadamard
-    transform gives the coefficients of all strings with X/Y exactly on the flipped bits
-    (:func:`lowfold.build.numerics.pauli_strings`), in
-    O(nnz + P 2^N N) time for P distinct patterns.
-    """
-    terms = _pauli_ops(matrix, n_sites, tol, hermitian_tol, max_terms)
-    return {_ops_label(ops): c for ops, c in terms.items()}
-
-
-def pauli_coefficients_by_order(matrices: list, n_sites: int, *, tol: float = 1e-12,
-                                max_terms: int = 2_000_000) -> dict[str, list[float]]:
-    """Pauli expansion of each matrix of a list (one per perturbative order).
-
-    Returns
-    -------
-    dict of str to list of float
-        ``{string: [c for matrices[0], c for matrices[1], ...]}`` over the union of the
-        strings whose coefficient exceeds ``tol`` in at least one matrix.
-    """
-    if isinstance(matrices, np.ndarray) or sp.issparse(matrices):
-        raise ModelError("matrices must be a list of matrices, one per order")
-    per_order = [_pauli_ops(m, n_sites, tol, 1e-10, max_terms) for m in matrices]
-    keys = sorted(set().union(*per_order), key=_ops_key) if per_order else []
-    return {_ops_label(ops): [terms.get(ops, 0.0) for terms in per_order] for ops in keys}
 
 
 # --------------------------------------------------------------------------- templates
@@ -250,7 +75,7 @@ def _chirality_matrix():
 
 def _template(matrix, n_sites):
     """Pauli content of an operator on template positions 0..n-1, {ops: c}."""
-    return _pauli_ops(matrix, n_sites, 1e-14, 1e-10, 4 ** n_sites)
+    return pauli_ops(matrix, n_sites, 1e-14, 1e-10, 4 ** n_sites)
 
 
 def _placed(template, sites):
@@ -404,8 +229,8 @@ def _fit_ring(table, ring_cycles, n_sites, labels, tol):
 
 def _pair_tensor(table, i, j, n_orders):
     tensor = np.zeros((n_orders, 3, 3))
-    for a, la in enumerate(_AXES):
-        for b, lb in enumerate(_AXES):
+    for a, la in enumerate(AXES):
+        for b, lb in enumerate(AXES):
             tensor[:, a, b] = 4.0 * table.pop(((i, la), (j, lb)), np.zeros(n_orders))
     return tensor
 
@@ -426,8 +251,8 @@ def _read_pairs(table, labels, tol):
             if coupling is not None:
                 found.append(coupling)
                 jt = jt - explained
-        for a, la in enumerate(_AXES):  # unreported (sub-tol) parts stay in the residual
-            for b, lb in enumerate(_AXES):
+        for a, la in enumerate(AXES):  # unreported (sub-tol) parts stay in the residual
+            for b, lb in enumerate(AXES):
                 table[((i, la), (j, lb))] = jt[:, a, b] / 4.0
     return found
 
@@ -436,11 +261,11 @@ def _read_fields_and_constant(table, labels, tol):
     n = len(labels)
     found = []
     for (i,) in _supports(table, 1):
-        h = np.stack([2.0 * table.get(((i, a),), np.zeros(n)) for a in _AXES], axis=1)
+        h = np.stack([2.0 * table.get(((i, a),), np.zeros(n)) for a in AXES], axis=1)
         coupling = _make_coupling("field", (i,), h, labels, tol)
         if coupling is not None:
             found.append(coupling)
-            for a in _AXES:
+            for a in AXES:
                 table.pop(((i, a),), None)
     if () in table:
         coupling = _make_coupling("constant", (), table[()], labels, tol)
@@ -491,7 +316,7 @@ def spin_couplings(coeffs_by_order: dict[str, list[float]], n_sites: int, *,
     subtracted.  The ring operator has four-site strings only and chirality three-site
     strings only, so neither changes the one- and two-site readout.
     """
-    n_sites = _check_n_sites(n_sites)
+    n_sites = check_n_sites(n_sites)
     labels = [int(k) for k in orders]
     if not labels or len(set(labels)) != len(labels):
         raise ModelError(f"orders {orders} must name each order once (at least one)")
@@ -501,35 +326,7 @@ def spin_couplings(coeffs_by_order: dict[str, list[float]], n_sites: int, *,
     found += _read_pairs(table, labels, tol)
     found += _read_fields_and_constant(table, labels, tol)
     found.sort(key=lambda c: (_KIND_RANK[c.kind], sorted(c.sites), c.sites))
-    residual = {_ops_label(ops): [float(v) for v in values]
-                for ops, values in sorted(table.items(), key=lambda item: _ops_key(item[0]))
+    residual = {ops_label(ops): [float(v) for v in values]
+                for ops, values in sorted(table.items(), key=lambda item: ops_key(item[0]))
                 if np.max(np.abs(values)) > tol}
     return found, residual
-
-
-# --------------------------------------------------------------------------- rationals
-
-def recognise_rational(value: float, scale: float, *, max_denominator: int = 1000,
-                       rtol: float = 1e-8, atol: float = 0.0) -> Fraction | None:
-    """The fraction p/q (q <= max_denominator) that ``value / scale`` equals, if any.
-
-    Returns ``Fraction(p, q)`` when ``|value/scale - p/q| <= rtol |value/scale| + atol``,
-    else ``None``.  A recognised fraction is a hint to be flagged as such, not a proof.
-
-    Examples
-    --------
-    >>> recognise_rational(80 * 0.1**4 / 8.0**3, 0.1**4 / 8.0**3)
-    Fraction(80, 1)
-    >>> recognise_rational(math.pi, 1.0) is None
-    True
-    """
-    if not (math.isfinite(scale) and scale != 0):
-        raise ModelError(f"scale must be finite and non-zero, got {scale!r}")
-    if isinstance(max_denominator, bool) or not isinstance(max_denominator, int) \
-            or max_denominator < 1:
-        raise ModelError(f"max_denominator must be a positive integer, got {max_denominator!r}")
-    if not math.isfinite(value):
-        return None
-    ratio = value / scale
-    guess = Fraction(ratio).limit_denominator(max_denominator)
-    return guess if abs(ratio - float(guess)) <= rtol * abs(ratio) + atol else None

@@ -25,7 +25,7 @@ from typing import Any, Iterable, Mapping, Sequence
 import numpy as np
 
 from lowfold.errors import ModelError
-from lowfold.scans.store import axis_value, scalar
+from lowfold.scans.select import axis_value, scalar
 
 __all__ = ["Extrapolation", "fit_finite_size", "extrapolate_records"]
 

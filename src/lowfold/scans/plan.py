@@ -1,0 +1,145 @@
+"""Planning a scan: the grid's points, each with its model, sector, key and cost.
+
+:func:`plan_scan` expands the grid of a :class:`~lowfold.scans.scanfile.ScanSpec` (product
+or zip of its axes) into :class:`ScanPoint` objects in grid order; each point carries the
+base model with its lattice, parameters and sector applied, its store key
+(:func:`lowfold.scans.store.point_key`) and its cost (the basis dimension), by which
+:func:`order_by_cost` sorts the points biggest first for the scheduler.
+"""
+
+from __future__ import annotations
+
+import itertools
+from dataclasses import dataclass
+from fractions import Fraction
+from typing import Any, Iterable, Mapping
+
+from lowfold.build.basis import sector_size
+from lowfold.errors import LowfoldError, ModelError
+from lowfold.model.modelfile import load_model
+from lowfold.model.sector import Sector
+from lowfold.scans.scanfile import SECTOR_AXES, ScanSpec, scan_error
+from lowfold.scans.store import point_key
+
+__all__ = ["ScanPoint", "plan_scan", "order_by_cost"]
+
+
+@dataclass(frozen=True)
+class ScanPoint:
+    """One point of a scan, ready to run.
+
+    ``model`` is the base model with the point's lattice, sector and parameters applied;
+    ``error`` is set instead when the point is impossible before anything runs (e.g. a
+    filling that gives a fractional particle number).
+    """
+
+    key: str
+    values: Mapping[str, Any]
+    parameters: Mapping[str, float]
+    size: tuple[int, ...] | None
+    boundary: Any
+    sector: Mapping[str, Any]
+    n_sites: int
+    cost: float
+    model: Any = None
+    error: Mapping[str, Any] | None = None
+
+
+def _combinations(spec: ScanSpec):
+    names = [n for n, _ in spec.axes]
+    values = [v for _, v in spec.axes]
+    if not names:
+        return [{}]
+    if spec.combine == "product":
+        return [dict(zip(names, combo)) for combo in itertools.product(*values)]
+    length = max(len(v) for v in values)
+    return [{n: (v[i] if len(v) > 1 else v[0]) for n, v in zip(names, values)} for i in range(length)]
+
+
+def _point_sector(base: Sector, fixed: Mapping[str, Any], values: Mapping[str, Any], n_sites: int):
+    """The sector of a point, or an error message when it cannot be formed."""
+    wanted = {**fixed, **{k: v for k, v in values.items() if k in SECTOR_AXES}}
+    particles, sz = base.particles, base.sz
+    if "particles" in wanted:
+        particles = int(wanted["particles"])
+    if "filling" in wanted:
+        count = wanted["filling"] * n_sites
+        if abs(count - round(count)) > 1e-9:
+            return None, f"filling {wanted['filling']:g} on {n_sites} sites gives {count:g} particles, not an integer"
+        particles = int(round(count))
+    if "sz" in wanted:
+        sz = Fraction(wanted["sz"]).limit_denominator(2)
+    return Sector(particles, sz), None
+
+
+def _cost(model) -> float:
+    """Estimated cost of a point: its basis dimension (0 if it cannot be formed)."""
+    try:
+        return float(sector_size(model.site, model.n_sites, model.sector))
+    except (LowfoldError, ValueError, TypeError):
+        return 0.0
+
+
+def _sector_dict(sector: Sector) -> dict:
+    return {"particles": sector.particles, "sz": None if sector.sz is None else float(sector.sz)}
+
+
+def plan_scan(spec: ScanSpec, model=None) -> list[ScanPoint]:
+    """Expand the grid into points (in grid order), each with its model, key and cost.
+
+    Parameters
+    ----------
+    spec : ScanSpec
+    model : Model, optional
+        The base model (default: read from ``spec.model_path``).
+
+    Raises
+    ------
+    ModelError
+        A grid parameter the model does not define, or a lattice size / boundary the
+        model's lattice cannot take (naming the scan file and the key).
+    """
+    model = load_model(spec.model_path) if model is None else model
+    for name, _ in spec.axes:
+        if name not in ("size", "boundary", *SECTOR_AXES) and name not in model.parameters:
+            raise scan_error(spec.source, f"grid.{name}",
+                             f"not a parameter of {spec.model_path} "
+                             f"(parameters: {', '.join(model.parameters) or 'none'})")
+    lattices: dict = {}
+    points = []
+    for values in _combinations(spec):
+        size, boundary = values.get("size"), values.get("boundary")
+        if (size, boundary) not in lattices:
+            try:
+                lattices[size, boundary] = (model if size is None and boundary is None
+                                            else model.with_lattice(size=size, boundary=boundary))
+            except ModelError as exc:
+                key = "grid.size" if size is not None else "grid.boundary"
+                raise scan_error(spec.source, key, f"{size or ''} {boundary or ''}: {exc}") from None
+        point_model = lattices[size, boundary]
+        params = {k: v for k, v in values.items() if k in model.parameters}
+        point_model = point_model.with_parameters(params)
+        sector, problem = _point_sector(model.sector, spec.sector, values, point_model.n_sites)
+        parameters = {k: float(v) for k, v in point_model.parameters.items()}
+        sector_dict = _sector_dict(sector) if sector is not None else {"error": problem}
+        key = point_key(parameters=parameters, size=size,
+                        boundary=list(boundary) if isinstance(boundary, tuple) else boundary,
+                        task=spec.task, options=spec.options, sector=sector_dict)
+        if sector is not None:
+            point_model = point_model.with_sector(sector)
+        points.append(ScanPoint(
+            key=key, values=values, parameters=parameters, size=size,
+            boundary=list(boundary) if isinstance(boundary, tuple) else boundary,
+            sector=sector_dict, n_sites=point_model.n_sites,
+            cost=_cost(point_model) if sector is not None else 0.0, model=point_model,
+            error=None if problem is None else {"type": "ModelError", "message": problem,
+                                                "deterministic": True}))
+    keys = [p.key for p in points]
+    if len(set(keys)) != len(keys):
+        raise scan_error(spec.source, "grid", "the grid lists the same point more than once")
+    return points
+
+
+def order_by_cost(points: Iterable[ScanPoint]) -> list[ScanPoint]:
+    """The points sorted by cost, biggest basis first (so the longest points start first)."""
+    return sorted(points, key=lambda p: p.cost, reverse=True)

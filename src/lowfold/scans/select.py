@@ -1,0 +1,129 @@
+"""Selectors: one number out of a point record, by a short text.
+
+The plots and the finite-size fits read records through these selectors:
+
+* axis values (:func:`axis_value`): a parameter name ``"U"``, a ratio ``"t/U"``, an inverse
+  ``"1/U"``, the lattice length ``"L"`` (first size entry) or the number of sites ``"N"``;
+* quantities (:func:`scalar`): ``"energy"`` / ``"energy:k"`` (level k of a spectrum, or of a
+  derive check's exact spectrum), ``"gap:i:j"`` (``E_j - E_i``), ``"series"`` (the summed
+  series energy), ``"coupling:KIND[:SITES[:COMPONENT]]"`` (e.g. ``"coupling:exchange:0-1"``,
+  ``"coupling:field:2:z"``) and ``"error"`` (a derive check's max_abs_error); ``order=n``
+  sums a series or a coupling through order n (:func:`cumulative_orders`).
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any, Mapping
+
+from lowfold.errors import ModelError
+from lowfold.scans.table import flatten_components, sites_label
+
+__all__ = ["axis_value", "scalar", "cumulative_orders"]
+
+
+def axis_value(record: Mapping[str, Any], spec: str) -> float:
+    """Value of an axis selector (``"U"``, ``"t/U"``, ``"1/U"``, ``"L"``, ``"N"``, ``"1/L"``).
+
+    ``L`` is the first entry of the lattice size and ``N`` the number of sites; a model
+    parameter of the same name takes precedence.
+    """
+    spec = spec.replace(" ", "")
+    if "/" in spec:
+        num, den = spec.split("/", 1)
+        numerator = 1.0 if num == "1" else axis_value(record, num)
+        return numerator / axis_value(record, den)
+    parameters = record.get("parameters", {})
+    if spec in parameters:
+        return float(parameters[spec])
+    if spec == "L" and record.get("size"):
+        return float(record["size"][0])
+    if spec == "N" and record.get("n_sites") is not None:
+        return float(record["n_sites"])
+    raise ModelError(
+        f"axis {spec!r}: not a parameter ({', '.join(parameters) or 'none'}), 'L' or 'N' "
+        f"of point {record.get('key', '?')}")
+
+
+def cumulative_orders(orders: Mapping[str, Any], through: int | None = None) -> float:
+    """Sum of the per-order contributions ``{"2": c2, "4": c4}`` through order ``through``."""
+    return math.fsum(float(v) for k, v in orders.items() if through is None or int(k) <= through)
+
+
+def _component(value: Any, component: str | None, what: str) -> float:
+    if component is None or component == "":
+        if isinstance(value, (list, tuple)):
+            raise ModelError(f"{what} is a vector or matrix; name a component (x, y, z, xy, ...)")
+        return float(value)
+    for name, number in flatten_components(value):
+        if name == component:
+            return float(number)
+    raise ModelError(f"{what}: no component {component!r}")
+
+
+def _coupling(result: Mapping[str, Any], kind: str, sites: str | None) -> Mapping[str, Any]:
+    matches = [c for c in result.get("couplings", []) if c.get("kind") == kind
+               and (sites is None or sites_label(c.get("sites", [])) == sites)]
+    if len(matches) == 1:
+        return matches[0]
+    available = sorted({f"{c.get('kind')}:{sites_label(c.get('sites', []))}"
+                        for c in result.get("couplings", [])})
+    reason = "no" if not matches else "more than one"
+    raise ModelError(f"{reason} coupling {kind}{':' + sites if sites else ''}; "
+                     f"available: {', '.join(available) or 'none'}")
+
+
+def scalar(record: Mapping[str, Any], quantity: str, *, order: int | None = None) -> float:
+    """One number out of a successful record, by quantity selector (module docstring).
+
+    Parameters
+    ----------
+    record : dict
+        A point record with ``status == "ok"``.
+    quantity : str
+        ``energy[:k]``, ``gap:i:j``, ``series``, ``coupling:KIND[:SITES[:COMPONENT]]``,
+        ``error``.
+    order : int, optional
+        Sum a series or a coupling through this order only (for ``error``: the check at
+        this order, default the highest).
+    """
+    if record.get("status") != "ok":
+        raise ModelError(f"point {record.get('key', '?')} failed; it has no {quantity}")
+    result = record.get("result") or {}
+    head, *rest = quantity.split(":")
+    if head in ("energy", "gap"):
+        levels = result.get("energies")
+        if levels is None:
+            levels = (result.get("check") or {}).get("exact")
+        if levels is None:
+            raise ModelError(f"{quantity}: the {record.get('task')} result holds no energy levels")
+        idx = [int(i) for i in rest] or ([0] if head == "energy" else [0, 1])
+        if max(idx) >= len(levels):
+            raise ModelError(f"{quantity}: only {len(levels)} levels stored (raise 'levels')")
+        return float(levels[idx[0]]) if head == "energy" else float(levels[idx[1]]) - float(levels[idx[0]])
+    if head == "series":
+        if order is None:
+            return float(result["energy"])
+        return cumulative_orders(result["orders"], order)
+    if head == "coupling":
+        if not rest:
+            raise ModelError("coupling selector needs a kind: coupling:KIND[:SITES[:COMPONENT]]")
+        kind = rest[0]
+        sites = rest[1] if len(rest) > 1 and rest[1] else None
+        component = rest[2] if len(rest) > 2 else None
+        coupling = _coupling(result, kind, sites)
+        what = f"coupling {kind}"
+        if order is None:
+            return _component(coupling["value"], component, what)
+        return math.fsum(_component(v, component, what)
+                         for k, v in coupling.get("orders", {}).items() if int(k) <= order)
+    if head == "error":
+        by_order = (result.get("check") or {}).get("by_order") or {}
+        if not by_order:
+            raise ModelError(f"{quantity}: the result holds no check (run derive with check)")
+        key = str(order) if order is not None else max(by_order, key=int)
+        if key not in by_order:
+            raise ModelError(f"{quantity}: no check at order {key}")
+        return float(by_order[key]["max_abs_error"])
+    raise ModelError(f"unknown quantity {quantity!r}: use energy[:k], gap:i:j, series, "
+                     "coupling:KIND[:SITES[:COMPONENT]] or error")

@@ -1,0 +1,93 @@
+"""Input validation of the model layer through the installed ``lowfold`` command: each bad
+model gives exit status 2, nothing on stdout and exactly one line on stderr (no traceback).
+
+All runs start at once from one module fixture (each start-up imports numpy, scipy and
+numba).  The same inputs are checked through the Python API in ``test_model_input.py``.
+"""
+
+from __future__ import annotations
+
+import os
+import shutil
+import subprocess
+from concurrent.futures import ThreadPoolExecutor
+
+import pytest
+
+LOWFOLD = shutil.which("lowfold")
+
+SPIN_CHAIN = """\
+[lattice]
+shape = "chain"
+size = [4]
+[site]
+type = "spin"
+[[term]]
+type = "exchange"
+strength = 1.0
+"""
+
+# name -> (file contents (bytes) or None for a path made by the fixture, command, words
+# the single error line must contain)
+CASES = {
+    "latin1": (b'title = "h\xe9p"\n', "spectrum", ["not UTF-8", "offset 10"]),
+    "directory": (None, "spectrum", ["is a directory"]),
+    "missing": (None, "spectrum", ["no such file"]),
+    "below-a-file": (None, "spectrum", ["cannot be read"]),
+    "boson-2**62": (b'[lattice]\nshape = "chain"\nsize = [2]\n[site]\ntype = "boson"\n'
+                    b'max_occupation = 4611686018427387904\n[[term]]\ntype = "hopping"\n'
+                    b'strength = 1.0\n', "spectrum", ["max_occupation <= 65,535"]),
+    "spin-1e9": (SPIN_CHAIN.replace('"spin"', '"spin"\nspin = 1e9').encode(), "spectrum",
+                 ["spin <= 32767.5"]),
+    "size-1e12": (SPIN_CHAIN.replace("[4]", "[1000000000000]").encode(), "derive",
+                  ["4,096 sites"]),
+    "hubbard-40-sites": (b'[lattice]\nshape = "chain"\nsize = [40]\n[site]\ntype = "electron"\n'
+                         b'[[term]]\ntype = "hopping"\nstrength = 1.0\n', "derive",
+                         ["at most 31 such sites"]),
+    "unperturbed-twice": ((SPIN_CHAIN.replace('"exchange"', '"exchange"\nlabel = "ising"')
+                           + '[[term]]\ntype = "field"\naxis = "x"\nstrength = 0.1\n'
+                           '[perturbation]\nunperturbed = ["ising", "ising"]\n').encode(),
+                          "derive", ["perturbation.unperturbed: 'ising' is listed twice"]),
+    "t-1e308": (SPIN_CHAIN.replace("strength = 1.0", "strength = 1e308").encode(), "spectrum",
+                ["term[0].strength: 1e+308 is outside"]),
+    "label-newline": (SPIN_CHAIN.replace('"exchange"', '"exchange"\nlabel = "a\\nb"').encode(),
+                      "spectrum", ["term[0].label 'a\\nb' contains the control character"]),
+}
+
+
+def run(*args: str) -> subprocess.CompletedProcess:
+    env = {k: v for k, v in os.environ.items()
+           if k not in ("FORCE_COLOR", "TTY_COMPATIBLE", "TTY_INTERACTIVE", "COLUMNS")}
+    return subprocess.run([LOWFOLD, *args], capture_output=True, text=True, timeout=300,
+                          env=env, stdin=subprocess.DEVNULL, check=False)
+
+
+@pytest.fixture(scope="module")
+def runs(tmp_path_factory):
+    if LOWFOLD is None:
+        pytest.fail("the lowfold script is not on PATH; install the package (pip install -e .)")
+    directory = tmp_path_factory.mktemp("bad-models")
+    good = directory / "good.toml"
+    good.write_text(SPIN_CHAIN)
+    special = {"directory": directory, "missing": directory / "missing.toml",
+               "below-a-file": good / "x.toml"}
+    jobs = {}
+    for name, (contents, command, _) in CASES.items():
+        path = special.get(name, directory / f"{name}.toml")
+        if contents is not None:
+            path.write_bytes(contents)
+        jobs[name] = [command, str(path)]
+    with ThreadPoolExecutor(max_workers=2) as pool:
+        futures = {name: pool.submit(run, *args) for name, args in jobs.items()}
+        return {name: future.result() for name, future in futures.items()}
+
+
+@pytest.mark.parametrize("name", sorted(CASES))
+def test_bad_model_is_one_line_and_exit_2(runs, name):
+    proc = runs[name]
+    assert proc.returncode == 2, proc.stderr
+    assert "Traceback" not in proc.stderr and proc.stdout == ""
+    lines = proc.stderr.splitlines()
+    assert len(lines) == 1, proc.stderr
+    for words in CASES[name][2]:
+        assert words in lines[0], lines[0]
