@@ -5,45 +5,23 @@ no traceback; ``--json`` prints one JSON object on stdout and nothing else.  All
 of this module are started at once (a thread pool of subprocesses), because each start-up
 imports numpy, scipy and numba.  A representative set of bad inputs (one per code path:
 load-time checks, compile-time checks, I/O and TOML errors) runs by default; the rest of the
-bad inputs of ``test_modelfile.BAD_CASES`` are marked slow (about a second of CPU each).
+bad inputs of ``helpers.bad_models.BAD_CASES`` are marked slow (about a second of CPU each).
 """
 
 from __future__ import annotations
 
 import json
-import os
-import shutil
-import subprocess
-from concurrent.futures import ThreadPoolExecutor
 from functools import reduce
 
 import numpy as np
 import pytest
 
 import lowfold
-from test_modelfile import BAD_CASES, SPIN_CHAIN, key_missing, write_case
-
-LOWFOLD = shutil.which("lowfold")
+from helpers.bad_models import BAD_CASES, SPIN_CHAIN, key_missing, write_case
+from helpers.cli import one_line_error, run_all
 
 FAST_CASES = {"unknown-top-level-key", "field-along-x-with-sz-fixed", "invalid-toml",
               "missing-file"}
-
-
-def run(*args: str) -> subprocess.CompletedProcess:
-    """Run the installed script with pipes (not a terminal) and no forced colours."""
-    env = {k: v for k, v in os.environ.items()
-           if k not in ("FORCE_COLOR", "TTY_COMPATIBLE", "TTY_INTERACTIVE", "COLUMNS")}
-    return subprocess.run([LOWFOLD, *args], capture_output=True, text=True, timeout=300,
-                          env=env, stdin=subprocess.DEVNULL)
-
-
-def run_all(jobs: dict) -> dict:
-    """Run ``{name: args}`` concurrently; ``{name: CompletedProcess}``."""
-    if LOWFOLD is None:
-        pytest.fail("the lowfold script is not on PATH; install the package (pip install -e .)")
-    with ThreadPoolExecutor(max_workers=4) as pool:
-        futures = {name: pool.submit(run, *args) for name, args in jobs.items()}
-        return {name: future.result() for name, future in futures.items()}
 
 
 def bad_case_runs(directory, fast: bool) -> dict:
@@ -83,15 +61,6 @@ def slow_runs(tmp_path_factory):
 # user errors
 
 
-def check_one_line_error(proc: subprocess.CompletedProcess) -> str:
-    assert proc.returncode == 2, proc.stderr
-    assert "Traceback" not in proc.stderr
-    assert proc.stdout == ""
-    lines = proc.stderr.splitlines()
-    assert len(lines) == 1, proc.stderr
-    return lines[0]
-
-
 def case_param(case):
     marks = [] if case.name in FAST_CASES else [pytest.mark.slow]
     return pytest.param(case, id=case.name, marks=marks)
@@ -105,20 +74,20 @@ def result_of(case, request):
 @pytest.mark.parametrize("case", [case_param(c) for c in BAD_CASES])
 def test_bad_input_one_line_exit_2(case, request):
     _, proc = result_of(case, request)
-    check_one_line_error(proc)
+    one_line_error(proc)
 
 
 @pytest.mark.parametrize("case", [case_param(c) for c in BAD_CASES])
 def test_bad_input_line_names_file_and_key(case, request):
     path, proc = result_of(case, request)
-    line = check_one_line_error(proc)
+    line = one_line_error(proc)
     assert path in line
     assert not key_missing(line, case.keys), line
 
 
 def test_levels_below_one(runs):
     _, proc = runs["levels-zero"]
-    assert "levels" in check_one_line_error(proc)
+    assert "levels" in one_line_error(proc)
 
 
 # ---------------------------------------------------------------------------------------

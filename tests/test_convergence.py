@@ -5,6 +5,7 @@ from math import comb
 import numpy as np
 import pytest
 
+from helpers.exact import binom_half
 from lowfold.errors import ModelError
 from lowfold.perturbation.convergence import (
     is_even_series,
@@ -17,11 +18,8 @@ from lowfold.perturbation.series import rayleigh_schrodinger
 
 
 def _binom_half(j):
-    """C(1/2, j), the Taylor coefficients of sqrt(1 + x) (binomial series)."""
-    out = 1.0
-    for i in range(j):
-        out *= (0.5 - i) / (i + 1)
-    return out
+    """C(1/2, j) as a float (the exact fraction of helpers.exact)."""
+    return float(binom_half(j))
 
 
 def _power_law(alpha, lam_c, n):

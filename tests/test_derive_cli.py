@@ -9,32 +9,18 @@ imports numpy, scipy and numba).
 
 from __future__ import annotations
 
-import json
-import os
-import shutil
-import subprocess
-from concurrent.futures import ThreadPoolExecutor
-
 import numpy as np
 import pytest
-from test_derive import ISING_CHAIN, NO_GAP_SPINS, hubbard_text
 
-LOWFOLD = shutil.which("lowfold")
+from helpers.cli import one_json_object, one_line_error, run_all, succeeded
+from helpers.derive_models import ISING_CHAIN, NO_GAP_SPINS
+from helpers.modelfiles import hubbard_text, write_models
+
 T, U = 0.1, 1.0
-
-
-def run(*args: str) -> subprocess.CompletedProcess:
-    """The installed script with pipes (not a terminal) and no forced colours."""
-    env = {k: v for k, v in os.environ.items()
-           if k not in ("FORCE_COLOR", "TTY_COMPATIBLE", "TTY_INTERACTIVE", "COLUMNS")}
-    return subprocess.run([LOWFOLD, *args], capture_output=True, text=True, timeout=300, check=False,
-                          env=env, stdin=subprocess.DEVNULL)
 
 
 @pytest.fixture(scope="module")
 def runs(tmp_path_factory):
-    if LOWFOLD is None:
-        pytest.fail("the lowfold script is not on PATH; install the package (pip install -e .)")
     directory = tmp_path_factory.mktemp("derive-models")
     dimer = hubbard_text("chain", [2], t=T, U=U, order=4)
     files = {
@@ -46,10 +32,7 @@ def runs(tmp_path_factory):
         "unknown-label": dimer.replace('unperturbed = ["hubbard"]', 'unperturbed = ["hubard"]'),
         "no-perturbation": dimer.split("[perturbation]")[0],
     }
-    paths = {}
-    for name, text in files.items():
-        paths[name] = str(directory / f"{name}.toml")
-        (directory / f"{name}.toml").write_text(text)
+    paths = {name: str(path) for name, path in write_models(directory, files).items()}
     jobs = {
         "json": ["derive", paths["dimer"], "--json", "--check-scaling"],
         "order-2-no-check": ["derive", paths["dimer"], "--order", "2", "--json", "--no-check"],
@@ -60,22 +43,8 @@ def runs(tmp_path_factory):
     }
     for name in ("no-gap", "non-diagonal", "unknown-label", "no-perturbation"):
         jobs[name] = ["derive", paths[name]]
-    with ThreadPoolExecutor(max_workers=4) as pool:
-        futures = {name: pool.submit(run, *args) for name, args in jobs.items()}
-        done = {name: future.result() for name, future in futures.items()}
+    done = run_all(jobs)
     return {name: (paths.get(name), proc) for name, proc in done.items()}
-
-
-def ok(proc: subprocess.CompletedProcess) -> str:
-    assert proc.returncode == 0, proc.stderr
-    assert "Traceback" not in proc.stderr
-    return proc.stdout
-
-
-def one_json_object(proc) -> dict:
-    out = ok(proc)
-    assert len(out.strip().splitlines()) == 1      # one object, nothing else on stdout
-    return json.loads(out)
 
 
 # ----------------------------------------------------------------------------- JSON contract
@@ -140,7 +109,7 @@ def test_check_scaling_reports_powers(runs):
 
 def test_matrix_readout_json(runs):
     # Ising chain in a transverse field: P = {uuu, ddd}, tunnelling 2 G^3/Jz^2 at third
-    # order (hand calculation in test_derive.test_ising_chain_transverse_field_readout)
+    # order (hand calculation in test_derive.py, test_ising_chain_transverse_field_readout)
     data = one_json_object(runs["matrix"][1])
     assert data["manifold"]["readout"].startswith("matrix")
     assert data["terms"] == [] and data["couplings"] == []
@@ -154,7 +123,7 @@ def test_matrix_readout_json(runs):
 # ----------------------------------------------------------------------------- other outputs
 
 def test_latex_prints_a_tabular(runs):
-    out = ok(runs["latex"][1]).strip().splitlines()
+    out = succeeded(runs["latex"][1]).strip().splitlines()
     assert out[0].startswith(r"\begin{tabular}") and out[-1] == r"\end{tabular}"
     body = "\n".join(out)
     assert "exchange" in body and "order 4" in body and "$0,1$" in body
@@ -165,7 +134,7 @@ def test_latex_prints_a_tabular(runs):
 def test_demo_runs_the_main_job(runs):
     # the built-in example (four quantum dots, H0 = charging energy) prints the coupling
     # table, the recognised rationals, the check and the validity ratio; exit status 0
-    out = ok(runs["demo"][1])
+    out = succeeded(runs["demo"][1])
     for words in ("demo", "spin-1/2", "exchange", "rational (recognised)",
                   "max |E_eff - E_exact|", "validity ratio"):
         assert words in out, words
@@ -181,10 +150,5 @@ def test_demo_runs_the_main_job(runs):
     ("no-perturbation", "perturbation"),
 ])
 def test_user_error_is_one_line_exit_2(runs, case, words):
-    _, proc = runs[case]
-    assert proc.returncode == 2, (proc.stdout, proc.stderr)
-    assert "Traceback" not in proc.stderr
-    assert proc.stdout == ""
-    lines = proc.stderr.splitlines()
-    assert len(lines) == 1, proc.stderr
-    assert lines[0].startswith("lowfold: error:") and words in lines[0]
+    line = one_line_error(runs[case][1])
+    assert line.startswith("lowfold: error:") and words in line

@@ -1,50 +1,30 @@
 """Closed-form results for small clusters, checked for lowfold and for the dense reference.
 
 Each case is computed twice: by ``lowfold.spectrum`` on a model file, and by the dense
-Kronecker-product reference of ``tests/reference.py`` (which imports nothing of lowfold);
+Kronecker-product reference of ``tests/helpers/reference.py`` (which imports nothing of lowfold);
 both must reproduce the closed form.
 """
 
 from __future__ import annotations
 
-import tomllib
 from itertools import combinations
 
 import numpy as np
 import pytest
 
 import lowfold
-import reference as ref
+from helpers import reference as ref
+from helpers.modelfiles import lattice_text, model_of, term_text
 
 ATOL = 1e-9
 
 
-def load(text):
-    return lowfold.parse_model(tomllib.loads(text), source="<test>")
+def chain_text(site: dict, L, boundary, terms, sector=None):
+    return lattice_text("chain", [L], boundary, site, terms, sector=sector)
 
 
-def chain_text(site, L, boundary, terms, sector=""):
-    return f"""
-[lattice]
-shape = "chain"
-size = [{L}]
-boundary = "{boundary}"
-[site]
-{site}
-[sector]
-{sector}
-{terms}
-"""
-
-
-def term(kind, strength, extra=""):
-    return f"""
-[[term]]
-type = "{kind}"
-label = "{kind}"
-strength = {strength}
-{extra}
-"""
+def term(kind, strength, **keys):
+    return term_text(kind, strength, label=kind, **keys)
 
 
 def ring_bonds(L):
@@ -58,7 +38,7 @@ def reference_levels(site_type, L, terms, *, spin=0.5, **sector):
 
 
 def lowfold_levels(text, k):
-    return np.sort(lowfold.spectrum(load(text), levels=k).energies)
+    return np.sort(lowfold.spectrum(model_of(text), levels=k).energies)
 
 
 # --------------------------------------------------------------------------------------
@@ -77,9 +57,9 @@ DIMER_CASES = [(1.0, 0.0), (1.0, 1.0), (1.0, 4.0), (1.0, 10.0), (0.5, 20.0), (-1
 
 @pytest.mark.parametrize("t, U", DIMER_CASES)
 def test_hubbard_dimer_lowfold(t, U):
-    text = chain_text('type = "electron"', 2, "open",
-                      term("hopping", t, 'bonds = "nearest"') + term("hubbard", U),
-                      "particles = 2\nsz = 0")
+    text = chain_text({"type": "electron"}, 2, "open",
+                      term("hopping", t, bonds="nearest") + term("hubbard", U),
+                      {"particles": 2, "sz": 0})
     got = lowfold_levels(text, 4)
     np.testing.assert_allclose(got, dimer_levels(t, U), atol=ATOL)
     # ground state of the full N = 2 space (triplet S^z = +-1 at 0 lie above E_-)
@@ -114,8 +94,8 @@ def ring4_spectrum(J):
 
 @pytest.mark.parametrize("J", [1.0, 2.5, -1.0])
 def test_heisenberg_ring4(J):
-    text = chain_text('type = "spin"\nspin = 0.5', 4, "periodic",
-                      term("exchange", J, 'bonds = "nearest"'))
+    text = chain_text({"type": "spin", "spin": 0.5}, 4, "periodic",
+                      term("exchange", J, bonds="nearest"))
     expected = ring4_spectrum(J)
     if J > 0:
         assert abs(expected[0] + 2 * J) < 1e-12
@@ -135,8 +115,8 @@ def test_spin_dimer_all_spins(s):
     J = 0.8
     expected = np.sort([J / 2 * (S * (S + 1) - 2 * s * (s + 1))
                         for S in range(int(2 * s) + 1) for _ in range(2 * S + 1)])
-    text = chain_text(f'type = "spin"\nspin = {s}', 2, "open",
-                      term("exchange", J, 'bonds = "nearest"'))
+    text = chain_text({"type": "spin", "spin": s}, 2, "open",
+                      term("exchange", J, bonds="nearest"))
     np.testing.assert_allclose(lowfold_levels(text, len(expected)), expected, atol=ATOL)
     ref_levels = reference_levels("spin", 2, ref.expand_term("spin", "exchange", J,
                                                              bonds=[(0, 1)]), spin=s)
@@ -158,8 +138,8 @@ def one_body(L, t):
                                      (7, 4, 0.8), (8, 4, 1.0), (8, 5, -1.0), (5, 2, 1.0)])
 def test_free_spinless_fermions_ring(L, N, t):
     expected = one_body(L, t)[:N].sum()
-    text = chain_text('type = "fermion"', L, "periodic",
-                      term("hopping", t, 'bonds = "nearest"'), f"particles = {N}")
+    text = chain_text({"type": "fermion"}, L, "periodic",
+                      term("hopping", t, bonds="nearest"), {"particles": N})
     assert abs(lowfold_levels(text, 1)[0] - expected) < ATOL
     ref_e = reference_levels("fermion", L, ref.expand_term("fermion", "hopping", t,
                                                            bonds=ring_bonds(L)), particles=N)
@@ -171,8 +151,8 @@ def test_free_spinless_fermions_ring_excitations():
     L, N, t = 6, 3, 1.0
     eps = -2 * t * np.cos(2 * np.pi * np.arange(L) / L)
     expected = np.sort([eps[list(c)].sum() for c in combinations(range(L), N)])
-    text = chain_text('type = "fermion"', L, "periodic",
-                      term("hopping", t, 'bonds = "nearest"'), f"particles = {N}")
+    text = chain_text({"type": "fermion"}, L, "periodic",
+                      term("hopping", t, bonds="nearest"), {"particles": N})
     np.testing.assert_allclose(lowfold_levels(text, 8), expected[:8], atol=ATOL)
 
 
@@ -187,12 +167,11 @@ def free_electron_ground(L, t, N, sz=None):
 def test_free_electrons_ring(L, N, sz):
     t = 1.0
     expected = free_electron_ground(L, t, N, sz)
-    sector = f"particles = {N}" + ("" if sz is None else f"\nsz = {sz}")
-    text = chain_text('type = "electron"', L, "periodic",
-                      term("hopping", t, 'bonds = "nearest"') + term("hubbard", 0.0), sector)
+    sec = {"particles": N} if sz is None else {"particles": N, "sz": sz}
+    text = chain_text({"type": "electron"}, L, "periodic",
+                      term("hopping", t, bonds="nearest") + term("hubbard", 0.0), sec)
     assert abs(lowfold_levels(text, 1)[0] - expected) < ATOL
     if L <= 5:
-        sec = {"particles": N} if sz is None else {"particles": N, "sz": sz}
         ref_e = reference_levels("electron", L, ref.expand_term("electron", "hopping", t,
                                                                 bonds=ring_bonds(L)), **sec)
         assert abs(ref_e[0] - expected) < ATOL
@@ -216,9 +195,9 @@ def tfim_ground(L, J, h):
 def test_transverse_field_ising_ring(L, J, h):
     expected = tfim_ground(L, J, h)
     # field term: s sum S^x = (s/2) sum X, so s = -2h
-    terms = (term("product", -J, 'operators = ["Z", "Z"]\nbonds = "nearest"')
-             + term("field", -2 * h, 'axis = "x"\nsites = "all"'))
-    text = chain_text('type = "spin"\nspin = 0.5', L, "periodic", terms)
+    terms = (term("product", -J, operators=["Z", "Z"], bonds="nearest")
+             + term("field", -2 * h, axis="x", sites="all"))
+    text = chain_text({"type": "spin", "spin": 0.5}, L, "periodic", terms)
     assert abs(lowfold_levels(text, 1)[0] - expected) < ATOL
     ref_terms = ([(-J, [("Z", i), ("Z", j)]) for i, j in ring_bonds(L)]
                  + ref.expand_term("spin", "field", -2 * h, sites=range(L), axis="x"))

@@ -6,6 +6,7 @@ import numpy as np
 import pytest
 from scipy import integrate, special
 
+from helpers.modelfiles import hubbard_text
 from lowfold.errors import ModelError
 from lowfold.scans.extrapolate import extrapolate_records, fit_finite_size
 
@@ -100,27 +101,8 @@ def test_lieb_wu_quadrature_against_strong_coupling_expansion():
         assert lieb_wu_energy_per_site(U) == pytest.approx(expansion, abs=3 * 100 / U**5)
 
 
-MODEL = """
-title = "ring of quantum dots, one electron each"
-[lattice]
-shape = "chain"
-size = [4]
-boundary = "periodic"
-[site]
-type = "electron"
-[sector]
-particles = 4
-sz = 0
-[parameters]
-t = 1.0
-U = 20.0
-[[term]]
-type = "hopping"
-strength = "t"
-[[term]]
-type = "hubbard"
-strength = "U"
-"""
+MODEL = hubbard_text("chain", [4], boundary="periodic", t=1.0, U=20.0, sz=0,
+                     title="ring of quantum dots, one electron each")
 
 SCAN = """
 model = "ring.toml"

@@ -4,7 +4,7 @@ The species split (two-species bases) and the bit-mask strings with chunk-table 
 (radix-2 sites) must give the same CSR matrix and the same matrix-free products as the
 general any-radix kernels (``route="general"``), which ``test_hamiltonian_property``
 checks against the dense Kronecker-product reference.  The Jordan-Wigner sign of the
-split is also checked directly against that reference (``tests/reference.py``: explicit
+split is also checked directly against that reference (``tests/helpers/reference.py``: explicit
 Jordan-Wigner strings, common practice), and the fast ranks against the combinatorial
 ranks they replace.
 """
@@ -19,7 +19,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 import lowfold
-import reference as ref
+from helpers import reference as ref
 from lowfold._kernels import basis as basis_kernels
 from lowfold._kernels import operators as op_kernels
 from lowfold.build.basis import fixed_sum_basis, two_species_basis

@@ -4,7 +4,7 @@ For a small model of every site type (spin 1/2, spin 1, spinless fermions, boson
 in each kind of sector basis), ``Hamiltonian.of(model)`` must give the same CSR matrix as
 ``hamiltonian_matrix`` (the same arrays), the same products as ``hamiltonian_operator``,
 and a diagonal and state images that agree with the dense full-space matrix of
-``tests/reference.py`` (explicit Kronecker products with written-out Jordan-Wigner strings,
+``tests/helpers/reference.py`` (explicit Kronecker products with written-out Jordan-Wigner strings,
 common practice).  Images of states outside the sector are checked too: the compiled
 strings act on any encoded state.
 """
@@ -16,7 +16,7 @@ import pytest
 import scipy.sparse as sp
 
 import lowfold
-import reference as ref
+from helpers import reference as ref
 from lowfold import Hamiltonian, ModelError
 from lowfold.build.labels import state_labels, twice_sz
 

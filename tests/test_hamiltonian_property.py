@@ -1,6 +1,6 @@
 """Random small models: lowfold's Hamiltonian equals the dense Kronecker-product reference.
 
-The reference (``tests/reference.py``) writes every term out from the formulas of docs/model-files.md
+The reference (``tests/helpers/reference.py``) writes every term out from the formulas of docs/model-files.md
 and builds full-space matrices from local operator matrices and explicit Jordan-Wigner
 strings; the sector is cut out of the full space by brute force.  The matrix-free operator
 must agree with the CSR matrix on random vectors.
@@ -16,7 +16,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 import lowfold
-import reference as ref
+from helpers import reference as ref
 
 ATOL = 1e-12
 

@@ -14,6 +14,7 @@ from pathlib import Path
 
 import pytest
 
+from helpers.bad_models import ELECTRON_PAIR, PLAIN_SPIN_CHAIN, edit
 from lowfold import load_model
 from lowfold.errors import ModelError, SizeError
 from lowfold.model.lattice import make_lattice
@@ -22,17 +23,7 @@ from lowfold.model.modelfile import read_toml
 from lowfold.model.sites import MAX_RADIX, check_state_space, make_site
 from lowfold.model.terms import STRENGTH_LIMIT, Term
 
-SPIN_CHAIN = """\
-title = "Heisenberg chain"
-[lattice]
-shape = "chain"
-size = [4]
-[site]
-type = "spin"
-[[term]]
-type = "exchange"
-strength = 1.0
-"""
+SPIN_CHAIN = 'title = "Heisenberg chain"\n' + PLAIN_SPIN_CHAIN
 
 
 def write(tmp_path: Path, text: str, name: str = "model.toml") -> Path:
@@ -183,22 +174,7 @@ def test_repeated_unperturbed_label_is_refused(tmp_path):
 # strengths: finite, and small enough that squares of matrix elements stay finite
 
 
-HUBBARD_DIMER = """\
-[lattice]
-shape = "chain"
-size = [2]
-[site]
-type = "electron"
-[parameters]
-t = 1.0
-U = 8.0
-[[term]]
-type = "hopping"
-strength = "t"
-[[term]]
-type = "hubbard"
-strength = "U"
-"""
+HUBBARD_DIMER = edit(ELECTRON_PAIR, "[sector]\nparticles = 2\n\n", "")   # no sector
 
 
 @pytest.mark.parametrize("old, new, key", [

@@ -7,25 +7,12 @@ numba).  The same inputs are checked through the Python API in ``test_model_inpu
 
 from __future__ import annotations
 
-import os
-import shutil
-import subprocess
-from concurrent.futures import ThreadPoolExecutor
-
 import pytest
 
-LOWFOLD = shutil.which("lowfold")
+from helpers.bad_models import PLAIN_SPIN_CHAIN
+from helpers.cli import one_line_error, run_all
 
-SPIN_CHAIN = """\
-[lattice]
-shape = "chain"
-size = [4]
-[site]
-type = "spin"
-[[term]]
-type = "exchange"
-strength = 1.0
-"""
+SPIN_CHAIN = PLAIN_SPIN_CHAIN
 
 # name -> (file contents (bytes) or None for a path made by the fixture, command, words
 # the single error line must contain)
@@ -55,17 +42,8 @@ CASES = {
 }
 
 
-def run(*args: str) -> subprocess.CompletedProcess:
-    env = {k: v for k, v in os.environ.items()
-           if k not in ("FORCE_COLOR", "TTY_COMPATIBLE", "TTY_INTERACTIVE", "COLUMNS")}
-    return subprocess.run([LOWFOLD, *args], capture_output=True, text=True, timeout=300,
-                          env=env, stdin=subprocess.DEVNULL, check=False)
-
-
 @pytest.fixture(scope="module")
 def runs(tmp_path_factory):
-    if LOWFOLD is None:
-        pytest.fail("the lowfold script is not on PATH; install the package (pip install -e .)")
     directory = tmp_path_factory.mktemp("bad-models")
     good = directory / "good.toml"
     good.write_text(SPIN_CHAIN)
@@ -76,18 +54,12 @@ def runs(tmp_path_factory):
         path = special.get(name, directory / f"{name}.toml")
         if contents is not None:
             path.write_bytes(contents)
-        jobs[name] = [command, str(path)]
-    with ThreadPoolExecutor(max_workers=2) as pool:
-        futures = {name: pool.submit(run, *args) for name, args in jobs.items()}
-        return {name: future.result() for name, future in futures.items()}
+        jobs[name] = [command, path]
+    return run_all(jobs)
 
 
 @pytest.mark.parametrize("name", sorted(CASES))
 def test_bad_model_is_one_line_and_exit_2(runs, name):
-    proc = runs[name]
-    assert proc.returncode == 2, proc.stderr
-    assert "Traceback" not in proc.stderr and proc.stdout == ""
-    lines = proc.stderr.splitlines()
-    assert len(lines) == 1, proc.stderr
+    line = one_line_error(runs[name])
     for words in CASES[name][2]:
-        assert words in lines[0], lines[0]
+        assert words in line, line

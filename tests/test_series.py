@@ -8,6 +8,7 @@ import pytest
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
+from helpers.exact import binom_half
 from lowfold._kernels.series import rs_state_update
 from lowfold.errors import ModelError
 from lowfold.perturbation.series import (
@@ -40,14 +41,6 @@ def _ising_ring(n_sites):
     return h0, sp.csr_array(v)
 
 
-def _binom_half(j):
-    """Binomial coefficient C(1/2, j) as an exact fraction."""
-    out = Fraction(1)
-    for i in range(j):
-        out *= (Fraction(1, 2) - i) / (i + 1)
-    return out
-
-
 def _pfeuty_coefficients(max_order):
     """Taylor coefficients in g of -(1/pi) int_0^pi sqrt(1 + g^2 + 2 g cos k) dk.
 
@@ -61,7 +54,7 @@ def _pfeuty_coefficients(max_order):
             power = 2 * (j - i) + i
             if power <= max_order:
                 mean_cos = Fraction(comb(i, i // 2), 2**i)
-                coeffs[power] += _binom_half(j) * comb(j, i) * 2**i * mean_cos
+                coeffs[power] += binom_half(j) * comb(j, i) * 2**i * mean_cos
     return [-c for c in coeffs]
 
 
@@ -127,7 +120,7 @@ def test_pfeuty_coefficients_two_ways():
     # -1/4, -1/64, -1/256 (from memory).
     coeffs = _pfeuty_coefficients(12)
     for n in range(7):
-        assert coeffs[2 * n] == -_binom_half(n) ** 2
+        assert coeffs[2 * n] == -binom_half(n) ** 2
     assert all(c == 0 for c in coeffs[1::2])
     assert coeffs[:7] == [-1, 0, Fraction(-1, 4), 0, Fraction(-1, 64), 0, Fraction(-1, 256)]
 

@@ -4,47 +4,24 @@ User errors give exactly one line on stderr, exit status 2 and no traceback; ``-
 prints one JSON object on stdout and nothing else.  A few commands run the installed script
 as subprocesses, started at once (a thread pool), since each start-up imports numpy, scipy
 and numba; the other cases call the same entry point, ``lowfold.cli.main``, in this
-process.  The model files and the exact references come from ``test_state_series.py``.
+process.  The model files and the exact references come from ``helpers/series_models.py`` and
+``helpers/exact.py``.
 """
 
 from __future__ import annotations
 
-import json
-import os
-import shutil
 import subprocess
-from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
 import pytest
 
-import lowfold.plots.sweep_figure
 from lowfold import cli
-from test_state_series import (
-    DIMER_AND_FREE_SPIN,
-    GRADED_FIELDS,
-    NO_SPLIT,
-    ZEEMAN_CHAIN,
-    graded_dense,
-    label_index,
-    ring_coefficients,
-    ring_energy,
-    spin_z_total,
-    tfim_file,
-)
+from helpers.cli import one_json_object, one_line_error, run_all
+from helpers.modelfiles import write_models
+from helpers.exact import label_index, ring_coefficients, ring_energy, spin_z_total
+from helpers.series_models import (DIMER_AND_FREE_SPIN, GRADED_FIELDS, NO_SPLIT, ZEEMAN_CHAIN,
+                                   graded_dense, tfim_file)
 
-LOWFOLD = shutil.which("lowfold")
-HAS_PLOT_SWEEP = hasattr(lowfold.plots, "plot_sweep")
-
-
-def run(*args: str) -> subprocess.CompletedProcess:
-    """Run the installed script with pipes (not a terminal) and no forced colours; one
-    BLAS thread each, as several run at once on few cores."""
-    env = {k: v for k, v in os.environ.items()
-           if k not in ("FORCE_COLOR", "TTY_COMPATIBLE", "TTY_INTERACTIVE", "COLUMNS")}
-    env["OPENBLAS_NUM_THREADS"] = env["OMP_NUM_THREADS"] = "1"
-    return subprocess.run([LOWFOLD, *args], capture_output=True, text=True, timeout=300,
-                          env=env, stdin=subprocess.DEVNULL)
 
 
 MODELS = {"ring": tfim_file(6, 1.0, 14), "trimer": DIMER_AND_FREE_SPIN, "nosplit": NO_SPLIT,
@@ -68,17 +45,9 @@ ERRORS = {  # name: (model, extra arguments, a phrase the message must contain)
 SUBPROCESS_ERRORS = ("degenerate-diagonal", "no-perturbation")
 
 
-def write_models(directory):
-    paths = {}
-    for name, text in MODELS.items():
-        paths[name] = directory / f"{name}.toml"
-        paths[name].write_text(text)
-    return paths
-
-
 @pytest.fixture(scope="module")
 def models(tmp_path_factory):
-    return write_models(tmp_path_factory.mktemp("models"))
+    return write_models(tmp_path_factory.mktemp("models"), MODELS)
 
 
 @pytest.fixture
@@ -100,30 +69,14 @@ def call(models, monkeypatch, capsys):
 @pytest.fixture(scope="module")
 def runs(tmp_path_factory):
     """Every command of this module, run concurrently: ``{name: (dir, CompletedProcess)}``."""
-    if LOWFOLD is None:
-        pytest.fail("the lowfold script is not on PATH; install the package (pip install -e .)")
     directory = tmp_path_factory.mktemp("series")
-    paths = write_models(directory)
+    paths = write_models(directory, MODELS)
     jobs = {name: (model, extra) for name, (model, extra, _) in ERRORS.items()
             if name in SUBPROCESS_ERRORS}
     jobs.update({"json": ("ring", ["--json"]), "table": ("ring", [])})
-    if HAS_PLOT_SWEEP:
-        jobs["plot"] = ("zeeman", ["--sweep", "lambda=0:2:21", "--plot",
-                                   str(directory / "sweep.png")])
-    with ThreadPoolExecutor(max_workers=4) as pool:
-        futures = {name: pool.submit(run, "series", str(paths[model]), *extra)
-                   for name, (model, extra) in jobs.items()}
-        return {name: (directory, future.result()) for name, future in futures.items()}
-
-
-def one_json_object(proc: subprocess.CompletedProcess) -> dict:
-    """The single JSON object on stdout (nothing before or after it but a newline)."""
-    assert proc.returncode == 0, proc.stderr
-    assert "Traceback" not in proc.stderr
-    data, end = json.JSONDecoder().raw_decode(proc.stdout)
-    assert proc.stdout[end:] == "\n"
-    assert isinstance(data, dict)
-    return data
+    jobs["plot"] = ("zeeman", ["--sweep", "lambda=0:2:21", "--plot", str(directory / "sweep.png")])
+    done = run_all({name: ["series", paths[model], *extra] for name, (model, extra) in jobs.items()})
+    return {name: (directory, proc) for name, proc in done.items()}
 
 
 # ---------------------------------------------------------------------------------------
@@ -131,13 +84,9 @@ def one_json_object(proc: subprocess.CompletedProcess) -> dict:
 
 
 def check_one_line_error(proc, phrase):
-    assert proc.returncode == 2, proc.stderr
-    assert "Traceback" not in proc.stderr
-    assert proc.stdout == ""
-    lines = proc.stderr.splitlines()
-    assert len(lines) == 1, proc.stderr
-    assert lines[0].startswith("lowfold: error:")
-    assert phrase in lines[0]
+    line = one_line_error(proc)
+    assert line.startswith("lowfold: error:")
+    assert phrase in line
 
 
 @pytest.mark.parametrize("name", SUBPROCESS_ERRORS)
@@ -220,7 +169,6 @@ def test_terminal_output_runs(runs):
     assert not proc.stdout.lstrip().startswith("{")
 
 
-@pytest.mark.skipif(not HAS_PLOT_SWEEP, reason="lowfold.plots has no plot_sweep yet")
 def test_plot_writes_a_png(runs):
     directory, proc = runs["plot"]
     assert proc.returncode == 0, proc.stderr

@@ -10,20 +10,16 @@ compared, as sorted lists, so degenerate levels are compared as multisets.
 
 from __future__ import annotations
 
-import tomllib
-
 import numpy as np
 import pytest
 
 import lowfold
-import reference as ref
+from helpers import reference as ref
+from helpers.modelfiles import (exchange, hubbard_text, lattice_text, model_of, spin_text,
+                                term_text)
 
 LEVELS = 6
 ATOL = 1e-9
-
-
-def load(text):
-    return lowfold.parse_model(tomllib.loads(text), source="<test>")
 
 
 def lowfold_levels(model, k=LEVELS, method="auto"):
@@ -67,32 +63,6 @@ SQUARE_2x2_PERIODIC = [(0, 1), (2, 3), (0, 2), (1, 3)]
 # Hubbard models
 
 
-def hubbard_text(shape, size, boundary, t, U, particles, sz=None):
-    sector = f"particles = {particles}" + ("" if sz is None else f"\nsz = {sz}")
-    return f"""
-title = "Hubbard cluster"
-[lattice]
-shape = "{shape}"
-size = {list(size)}
-boundary = "{boundary}"
-[site]
-type = "electron"
-[sector]
-{sector}
-[parameters]
-t = {t}
-U = {U}
-[[term]]
-type = "hopping"
-strength = "t"
-bonds = "nearest"
-[[term]]
-type = "hubbard"
-strength = "U"
-sites = "all"
-"""
-
-
 def quspin_hubbard(n_sites, bonds, t, U, particles, sz=None, k=LEVELS):
     """The ``k`` lowest levels of the sector: a fixed (N_up, N_dn) or, without sz, all
     splits of N (the ``k`` lowest of each, merged)."""
@@ -115,7 +85,9 @@ def quspin_hubbard(n_sites, bonds, t, U, particles, sz=None, k=LEVELS):
 def test_hubbard_chain(boundary, particles, sz):
     # L = 6: the wrap bond (5, 0) carries the Jordan-Wigner parity of the 4 middle sites
     t, U = 1.0, 4.5
-    model = load(hubbard_text("chain", [6], boundary, t, U, particles, sz))
+    model = model_of(hubbard_text("chain", [6],
+                                  boundary=boundary, t=t, U=U,
+                                  particles=particles, sz=sz, hubbard_sites="all"))
     bonds = chain_bonds(6, boundary == "periodic")
     same_bonds(model, bonds)
     assert_levels(model, quspin_hubbard(6, bonds, t, U, particles, sz))
@@ -125,7 +97,9 @@ def test_hubbard_chain(boundary, particles, sz):
 def test_hubbard_ring_small(L, particles):
     # a ring with t < 0 and an odd length: no bipartite sign freedom hides a wrap error
     t, U = -0.7, 2.0
-    model = load(hubbard_text("chain", [L], "periodic", t, U, particles))
+    model = model_of(hubbard_text("chain", [L],
+                                  boundary="periodic", t=t, U=U,
+                                  particles=particles, hubbard_sites="all"))
     bonds = chain_bonds(L, True)
     same_bonds(model, bonds)
     assert_levels(model, quspin_hubbard(L, bonds, t, U, particles))
@@ -135,7 +109,9 @@ def test_hubbard_ring_small(L, particles):
 def test_hubbard_ladder(particles, sz, tmp_path):
     t, U = 1.0, 6.0
     path = tmp_path / "ladder.toml"
-    path.write_text(hubbard_text("ladder", [3], "open", t, U, particles, sz))
+    path.write_text(hubbard_text("ladder", [3],
+                                 boundary="open", t=t, U=U,
+                                 particles=particles, sz=sz, hubbard_sites="all"))
     model = lowfold.load_model(path)
     same_bonds(model, LADDER_2x3_OPEN)
     assert_levels(model, quspin_hubbard(6, LADDER_2x3_OPEN, t, U, particles, sz))
@@ -146,7 +122,9 @@ def test_hubbard_ring_degenerate_levels_by_iteration(method):
     # L = 7, N = 6, all S^z: 3003 states, above the size where lowfold diagonalises densely;
     # the iterative routes must return every member of the spin multiplets
     t, U = 1.0, 4.5
-    model = load(hubbard_text("chain", [7], "periodic", t, U, 6))
+    model = model_of(hubbard_text("chain", [7],
+                                  boundary="periodic", t=t, U=U,
+                                  particles=6, hubbard_sites="all"))
     bonds = chain_bonds(7, True)
     expected = quspin_hubbard(7, bonds, t, U, 6, k=8)
     assert np.min(np.diff(expected)) < 1e-9          # the case does contain degeneracies
@@ -156,7 +134,9 @@ def test_hubbard_ring_degenerate_levels_by_iteration(method):
 def test_hubbard_ring_above_dense_limit():
     # L = 7, N = 7, S^z = 1/2: 35 * 35 = 1225 states, odd ring, odd particle number
     t, U = 1.0, 3.0
-    model = load(hubbard_text("chain", [7], "periodic", t, U, 7, 0.5))
+    model = model_of(hubbard_text("chain", [7],
+                                  boundary="periodic", t=t, U=U,
+                                  particles=7, sz=0.5, hubbard_sites="all"))
     bonds = chain_bonds(7, True)
     assert_levels(model, quspin_hubbard(7, bonds, t, U, 7, 0.5))
 
@@ -166,31 +146,17 @@ def test_hubbard_ring_above_dense_limit():
 
 
 def spinless_text(L, boundary, t, V, particles):
-    return f"""
-[lattice]
-shape = "chain"
-size = [{L}]
-boundary = "{boundary}"
-[site]
-type = "fermion"
-[sector]
-particles = {particles}
-[[term]]
-type = "hopping"
-strength = {t}
-bonds = "nearest"
-[[term]]
-type = "interaction"
-strength = {V}
-bonds = "nearest"
-"""
+    return lattice_text("chain", [L], boundary, {"type": "fermion"},
+                        term_text("hopping", t, bonds="nearest")
+                        + term_text("interaction", V, bonds="nearest"),
+                        sector={"particles": particles})
 
 
 @pytest.mark.parametrize("boundary", ["open", "periodic"])
 @pytest.mark.parametrize("particles", [2, 3, 4])
 def test_spinless_chain(boundary, particles):
     t, V = 1.0, 1.3
-    model = load(spinless_text(7, boundary, t, V, particles))
+    model = model_of(spinless_text(7, boundary, t, V, particles))
     bonds = chain_bonds(7, boundary == "periodic")
     same_bonds(model, bonds)
     assert_levels(model, ref.quspin_spinless_energies(7, bonds, t, particles, V=V, k=LEVELS))
@@ -199,25 +165,11 @@ def test_spinless_chain(boundary, particles):
 @pytest.mark.parametrize("particles", [3, 4])
 def test_bose_hubbard_ring(particles):
     t, U, L, cutoff = 1.0, 3.0, 5, 2
-    model = load(f"""
-[lattice]
-shape = "chain"
-size = [{L}]
-boundary = "periodic"
-[site]
-type = "boson"
-max_occupation = {cutoff}
-[sector]
-particles = {particles}
-[[term]]
-type = "hopping"
-strength = {t}
-bonds = "nearest"
-[[term]]
-type = "hubbard"
-strength = {U}
-sites = "all"
-""")
+    model = model_of(lattice_text("chain", [L], "periodic",
+                                  {"type": "boson", "max_occupation": cutoff},
+                                  term_text("hopping", t, bonds="nearest")
+                                  + term_text("hubbard", U, sites="all"),
+                                  sector={"particles": particles}))
     bonds = chain_bonds(L, True)
     same_bonds(model, bonds)
     assert_levels(model, ref.quspin_bose_hubbard_energies(L, bonds, t, U, particles, cutoff, k=LEVELS))
@@ -227,35 +179,11 @@ sites = "all"
 # spin models
 
 
-def spin_text(shape, size, boundary, terms, *, spin=0.5, sz=None):
-    sector = "" if sz is None else f"[sector]\nsz = {sz}\n"
-    return f"""
-[lattice]
-shape = "{shape}"
-size = {list(size)}
-boundary = "{boundary}"
-[site]
-type = "spin"
-spin = {spin}
-{sector}
-{terms}
-"""
-
-
-def exchange(J, bonds="\"nearest\""):
-    return f"""
-[[term]]
-type = "exchange"
-strength = {J}
-bonds = {bonds}
-"""
-
-
 @pytest.mark.parametrize("boundary", ["open", "periodic"])
 @pytest.mark.parametrize("L, sz", [(8, 0), (7, 0.5), (8, None)])
 def test_heisenberg_chain(boundary, L, sz):
     J = 1.0
-    model = load(spin_text("chain", [L], boundary, exchange(J), sz=sz))
+    model = model_of(spin_text("chain", [L], boundary, exchange(J), sz=sz))
     bonds = chain_bonds(L, boundary == "periodic")
     same_bonds(model, bonds)
     assert_levels(model, ref.quspin_xxz_energies(L, bonds, J, J, sz=sz, k=LEVELS))
@@ -273,7 +201,7 @@ strength = {J * (delta - 1)}
 operators = ["Sz", "Sz"]
 bonds = "nearest"
 """
-    model = load(spin_text("chain", [L], boundary, terms, sz=0))
+    model = model_of(spin_text("chain", [L], boundary, terms, sz=0))
     bonds = chain_bonds(L, boundary == "periodic")
     same_bonds(model, bonds)
     assert_levels(model, ref.quspin_xxz_energies(L, bonds, J, J * delta, sz=0, k=LEVELS))
@@ -303,7 +231,7 @@ strength = {h}
 axis = "z"
 sites = "all"
 """
-    model = load(spin_text("chain", [L], "periodic", terms, sz=sz))
+    model = model_of(spin_text("chain", [L], "periodic", terms, sz=sz))
     bonds = chain_bonds(L, True)
     same_bonds(model, bonds)
     assert_levels(model, ref.quspin_xxz_energies(L, bonds, jxy, jz, sz=sz, hz=h, k=LEVELS))
@@ -321,7 +249,7 @@ strength = {strength}
 operators = ["{op}", "{op}"]
 bonds = "nearest"
 """ for name, op, strength in (("xx", "X", J / 4), ("yy", "Y", J / 4), ("zz", "Z", jz / 4)))
-    model = load(spin_text("chain", [L], "periodic", terms, sz=0))
+    model = model_of(spin_text("chain", [L], "periodic", terms, sz=0))
     bonds = chain_bonds(L, True)
     assert_levels(model, ref.quspin_xxz_energies(L, bonds, J, jz, sz=0, k=LEVELS))
 
@@ -334,7 +262,7 @@ bonds = "nearest"
 ])
 def test_square_heisenberg(size, boundary, bonds, sz):
     J = 1.0
-    model = load(spin_text("square", size, boundary, exchange(J), sz=sz))
+    model = model_of(spin_text("square", size, boundary, exchange(J), sz=sz))
     same_bonds(model, bonds)
     n = size[0] * size[1]
     assert_levels(model, ref.quspin_xxz_energies(n, bonds, J, J, sz=sz, general=True,
@@ -345,7 +273,7 @@ def test_square_heisenberg(size, boundary, bonds, sz):
 @pytest.mark.parametrize("sz", [0, 1])
 def test_spin1_chain(boundary, sz):
     J, L = 1.0, 6
-    model = load(spin_text("chain", [L], boundary, exchange(J), spin=1, sz=sz))
+    model = model_of(spin_text("chain", [L], boundary, exchange(J), spin=1, sz=sz))
     bonds = chain_bonds(L, boundary == "periodic")
     same_bonds(model, bonds)
     assert_levels(model, ref.quspin_xxz_energies(L, bonds, J, J, spin="1", sz=sz, k=LEVELS))
@@ -362,7 +290,7 @@ strength = {D}
 operators = ["Sz", "Sz"]
 sites = "all"
 """
-    model = load(spin_text("chain", [L], "periodic", terms, spin=1, sz=0))
+    model = model_of(spin_text("chain", [L], "periodic", terms, spin=1, sz=0))
     bonds = chain_bonds(L, True)
     from quspin.basis import spin_basis_1d
     from quspin.operators import hamiltonian
@@ -376,7 +304,7 @@ sites = "all"
 
 
 # --------------------------------------------------------------------------------------
-# the dense reference against QuSpin (self-check of tests/reference.py)
+# the dense reference against QuSpin (self-check of tests/helpers/reference.py)
 
 
 @pytest.mark.parametrize("periodic", [False, True])

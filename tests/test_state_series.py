@@ -1,392 +1,29 @@
 """``lowfold series`` end to end: model files -> :func:`lowfold.state_series`.
 
-Every model is written as a TOML model file and loaded with :func:`lowfold.load_model`; the
-results are checked against exact solutions (Pfeuty's transverse-field Ising chain, its
-finite-ring Jordan-Wigner solution), closed forms of our own derivation, and dense numpy
-calculations on independently built (Kronecker-product) matrices.  The CLI is exercised
-in ``test_series_cli.py``, which reuses the model files defined here.
+Every model is written as a TOML model file (``helpers/series_models.py``) and loaded with
+:func:`lowfold.load_model`; the results are checked against exact solutions (Pfeuty's
+transverse-field Ising chain, its finite-ring Jordan-Wigner solution), closed forms of our
+own derivation, and dense numpy calculations on independently built (Kronecker-product)
+matrices.  Sweeps are in ``test_state_series_sweeps.py``, the CLI in ``test_series_cli.py``.
 """
 
 from __future__ import annotations
 
 from fractions import Fraction
-from functools import reduce
 
 import numpy as np
 import pytest
 
-from lowfold import ModelError, build_basis, hamiltonian_matrix, load_model, state_series
-from lowfold.jobs.state_series import parse_sweep
-
-# ---------------------------------------------------------------------------------------
-# model files (TOML); spin labels: one letter per site, site 0 first, u = S^z +1/2
-
-TFIM_RING = """
-title = "transverse-field Ising ring"
-# H0 = -sum_i sigma^z_i (field strength -2 on S^z = sigma^z / 2): a unique all-up state.
-# V  = -g sum_i X_i X_(i+1): the Ising coupling, here along x (Pfeuty's chain rotated).
-[lattice]
-shape = "chain"
-size = [{L}]
-boundary = "periodic"
-[site]
-type = "spin"
-spin = 0.5
-[parameters]
-minus_g = {minus_g}
-[[term]]
-type = "field"
-axis = "z"
-strength = -2.0
-label = "field"
-[[term]]
-type = "product"
-operators = ["X", "X"]
-strength = "minus_g"
-bonds = "nearest"
-label = "ising"
-[perturbation]
-unperturbed = ["field"]
-order = {order}
-"""
-
-SPIN_DIMERS = """
-title = "two exchange-coupled spin dimers"
-# H0 = J (S0.S1 + S2.S3): not diagonal in the S^z basis, unique singlet-singlet ground state.
-# V  = J' S1.S2, a weak link between the dimers.
-[lattice]
-shape = "chain"
-size = [4]
-boundary = "open"
-[site]
-type = "spin"
-spin = 0.5
-[parameters]
-J = 1.0
-Jp = {Jp}
-[[term]]
-type = "exchange"
-strength = "J"
-bonds = [[0, 1], [2, 3]]
-label = "dimer"
-[[term]]
-type = "exchange"
-strength = "Jp"
-bonds = [[1, 2]]
-label = "link"
-[perturbation]
-unperturbed = ["dimer"]
-order = {order}
-"""
-
-IONIC_HUBBARD = """
-title = "ionic Hubbard chain, charge-density-wave limit"
-# Deep wells (-Delta) on the even sites of an open chain at half filling; with Delta > U the
-# unique H0 ground state has both electrons of a pair on each even site.  V = hopping.
-[lattice]
-shape = "chain"
-size = [4]
-boundary = "open"
-[site]
-type = "electron"
-[sector]
-particles = 4
-sz = 0
-[parameters]
-t = {t}
-U = 1.0
-Delta = 3.0
-[[term]]
-type = "hopping"
-strength = "t"
-bonds = "nearest"
-[[term]]
-type = "hubbard"
-strength = "U"
-[[term]]
-type = "potential"
-strength = -3.0
-sites = [0, 2]
-label = "wells"
-[perturbation]
-unperturbed = ["hubbard", "wells"]
-order = {order}
-"""
-
-OFFSET_DIMER = """
-title = "Hubbard dimer with a potential offset"
-# Two electrons on two dots; dot 0 lies D = 2 deeper (U = 1), so the pair on dot 0 is the
-# unique H0 ground state.  V = hopping t{tilt_note}.
-[lattice]
-shape = "chain"
-size = [2]
-boundary = "open"
-[site]
-type = "electron"
-[sector]
-particles = 2
-sz = 0
-[parameters]
-t = {t}
-U = 1.0
-[[term]]
-type = "hopping"
-strength = "t"
-bonds = "nearest"
-[[term]]
-type = "hubbard"
-strength = "U"
-[[term]]
-type = "potential"
-strength = -2.0
-sites = [0]
-label = "offset"
-{tilt}
-[perturbation]
-unperturbed = ["hubbard", "offset"]
-order = {order}
-"""
-
-TILT = """[[term]]
-type = "potential"
-strength = 1.0
-sites = [0]
-label = "tilt"
-"""
-
-GRADED_FIELDS = """
-title = "four spins in a graded field"
-# H0 = sum_i h_i S^z_i with all 16 configurations at distinct energies; V = J sum S_i.S_j.
-[lattice]
-shape = "chain"
-size = [4]
-boundary = "open"
-[site]
-type = "spin"
-spin = 0.5
-[parameters]
-J = {J}
-[[term]]
-type = "field"
-axis = "z"
-strength = -1.0
-sites = [0]
-label = "h0"
-[[term]]
-type = "field"
-axis = "z"
-strength = -2.1
-sites = [1]
-label = "h1"
-[[term]]
-type = "field"
-axis = "z"
-strength = -4.3
-sites = [2]
-label = "h2"
-[[term]]
-type = "field"
-axis = "z"
-strength = -8.7
-sites = [3]
-label = "h3"
-[[term]]
-type = "exchange"
-strength = "J"
-bonds = "nearest"
-[perturbation]
-unperturbed = ["h0", "h1", "h2", "h3"]
-order = 6
-"""
-GRADED_H = (-1.0, -2.1, -4.3, -8.7)
-
-ZEEMAN_CHAIN = """
-title = "spins in a field with Heisenberg exchange"
-# H0 = -sum_i S^z_i (unique all-up state), V = J sum S_i.S_j conserves S^z.
-[lattice]
-shape = "chain"
-size = [{L}]
-boundary = "open"
-[site]
-type = "spin"
-spin = 0.5
-[parameters]
-J = 1.0
-[[term]]
-type = "field"
-axis = "z"
-strength = -1.0
-label = "zeeman"
-[[term]]
-type = "exchange"
-strength = "J"
-bonds = "nearest"
-[perturbation]
-unperturbed = ["zeeman"]
-order = 4
-"""
-
-ONE_SPIN = """
-title = "one spin swept through a level crossing"
-# H(lambda) = -sigma^z + lambda (r sigma^z + b sigma^x): the diagonal levels cross at
-# lambda = 1/r, the x field b turns the crossing into an avoided one.
-[lattice]
-shape = "chain"
-size = [1]
-boundary = "open"
-[site]
-type = "spin"
-spin = 0.5
-[[term]]
-type = "field"
-axis = "z"
-strength = -2.0
-label = "bias"
-[[term]]
-type = "field"
-axis = "z"
-strength = {two_r}
-label = "ramp"
-[[term]]
-type = "field"
-axis = "x"
-strength = {two_b}
-label = "mixing"
-[perturbation]
-unperturbed = ["bias"]
-order = 8
-"""
-
-HUBBARD_DIMER = """
-title = "half-filled Hubbard dimer"
-# H0 = U sum n_up n_dn: the two singly occupied S^z = 0 states are degenerate and the
-# hopping couples them at second order.
-[lattice]
-shape = "chain"
-size = [2]
-boundary = "open"
-[site]
-type = "electron"
-[sector]
-particles = 2
-sz = 0
-[parameters]
-t = 0.1
-U = 1.0
-[[term]]
-type = "hopping"
-strength = "t"
-bonds = "nearest"
-[[term]]
-type = "hubbard"
-strength = "U"
-[perturbation]
-unperturbed = ["hubbard"]
-order = 4
-"""
-
-DIMER_AND_FREE_SPIN = """
-title = "a spin dimer beside a free spin"
-# H0 = S0.S1: its ground level (singlet x free spin) is twofold degenerate.
-[lattice]
-shape = "chain"
-size = [3]
-boundary = "open"
-[site]
-type = "spin"
-spin = 0.5
-[[term]]
-type = "exchange"
-strength = 1.0
-bonds = [[0, 1]]
-label = "pair"
-[[term]]
-type = "exchange"
-strength = 0.1
-bonds = [[1, 2]]
-label = "link"
-[perturbation]
-unperturbed = ["pair"]
-"""
-
-NO_SPLIT = """
-title = "no H0 / V split"
-[lattice]
-shape = "chain"
-size = [2]
-boundary = "open"
-[site]
-type = "spin"
-spin = 0.5
-[[term]]
-type = "exchange"
-strength = 1.0
-bonds = "nearest"
-"""
-
-
-def tfim_file(L, g, order):
-    return TFIM_RING.format(L=L, minus_g=-g, order=order)
-
-
-def offset_dimer_file(t, order, tilt=False):
-    return OFFSET_DIMER.format(t=t, order=order, tilt=TILT if tilt else "",
-                               tilt_note=", plus a tilt +1 n_0 that undoes half the offset"
-                               if tilt else "")
-
-
-def one_spin_file(r, b):
-    return ONE_SPIN.format(two_r=2.0 * r, two_b=2.0 * b)
-
-
-@pytest.fixture
-def load(tmp_path):
-    """Write a model file and load it: ``load(text, name)``."""
-    def _load(text, name="model.toml"):
-        path = tmp_path / name
-        path.write_text(text)
-        return load_model(path)
-    return _load
-
+from helpers.exact import (followed_eigenvalue, heisenberg, label_index, pfeuty_per_site,
+                           ring_coefficients, ring_energy, spin_z_total, tfim_dense)
+from helpers.modelfiles import hubbard_text
+from helpers.series_models import (DIMER_AND_FREE_SPIN, GRADED_FIELDS, HUBBARD_DIMER, NO_SPLIT,
+                                   SPIN_DIMERS, ZEEMAN_CHAIN, graded_dense, ionic_hubbard_file,
+                                   offset_dimer_file, one_spin_file, singlet_block, tfim_file)
+from lowfold import ModelError, build_basis, hamiltonian_matrix, state_series
 
 # ---------------------------------------------------------------------------------------
 # independent references
-
-PAULI_X = np.array([[0.0, 1.0], [1.0, 0.0]])
-PAULI_Y = np.array([[0.0, -1j], [1j, 0.0]])
-PAULI_Z = np.array([[1.0, 0.0], [0.0, -1.0]])
-
-
-def site_op(op, i, n_sites):
-    """``op`` on site i of n spin-1/2 (site 0 the leftmost Kronecker factor, |u> = (1, 0))."""
-    return reduce(np.kron, [op if j == i else np.eye(2) for j in range(n_sites)])
-
-
-def heisenberg(bonds, n_sites):
-    """sum over bonds of S_i.S_j, S = sigma / 2 (dense, real)."""
-    out = sum(site_op(p, i, n_sites) @ site_op(p, j, n_sites)
-              for i, j in bonds for p in (PAULI_X, PAULI_Y, PAULI_Z)) / 4
-    return np.real(out)
-
-
-def spin_z_total(n_sites):
-    return np.real(sum(site_op(PAULI_Z, i, n_sites) for i in range(n_sites)).diagonal()) / 2
-
-
-def label_index(label):
-    """Index of a spin label in the Kronecker basis (u -> bit 0, site 0 most significant)."""
-    return int("".join("0" if c == "u" else "1" for c in label), 2)
-
-
-def followed_eigenvalue(h0, v, psi0, steps=400):
-    """Eigenvalue of h0 + v grown from the eigenvector psi0 of h0 along lambda in [0, 1]
-    by maximal overlap in small steps (numpy eigh; common practice)."""
-    vector = psi0
-    for lam in np.linspace(0.0, 1.0, steps + 1)[1:]:
-        values, vectors = np.linalg.eigh(h0 + lam * v)
-        k = int(np.argmax(np.abs(vectors.T.conj() @ vector)))
-        vector = vectors[:, k]
-    return values[k]
 
 
 def taylor_by_cauchy(h0, v, e0, n_max, radius, points=64):
@@ -409,68 +46,6 @@ def taylor_by_cauchy(h0, v, e0, n_max, radius, points=64):
     assert abs(w[np.argmin(np.abs(w - value))] - start) < 1e-9  # closed loop, no branch cut
     c = np.fft.fft(samples) / points
     return np.array([c[n].real / radius**n for n in range(n_max + 1)])
-
-
-def binom_half(j):
-    """C(1/2, j) exactly: Taylor coefficients of sqrt(1 + x) (binomial series)."""
-    out = Fraction(1)
-    for i in range(j):
-        out *= (Fraction(1, 2) - i) / (i + 1)
-    return out
-
-
-def pfeuty_per_site(max_order):
-    """Taylor coefficients in g of e(g) = -(1/pi) int_0^pi sqrt(1 + g^2 + 2 g cos k) dk,
-    the ground-state energy per site of the infinite chain (Pfeuty, Ann. Phys. 57, 79
-    (1970)), as exact fractions.  sqrt(1 + g^2 + 2 g cos k) = |1 + g e^{ik}|
-    = sum_{a,b} C(1/2,a) C(1/2,b) g^(a+b) e^{ik(a-b)}; the k average keeps a = b:
-    e(g) = -sum_a C(1/2,a)^2 g^(2a) (binomial series; common practice)."""
-    coeffs = [Fraction(0)] * (max_order + 1)
-    for a in range(max_order // 2 + 1):
-        coeffs[2 * a] = -binom_half(a) ** 2
-    return coeffs
-
-
-def ring_coefficients(n_sites, max_order):
-    """Exact Taylor coefficients in g of the ground-state energy of the periodic ring of
-    n_sites: E = -sum_k sqrt(1 + g^2 + 2 g cos k), k = pi (2m + 1) / L (Jordan-Wigner
-    fermions with even parity take antiperiodic momenta: Lieb, Schultz and Mattis, Ann.
-    Phys. 16, 407 (1961); Pfeuty 1970).  With the expansion above, sum_k e^{ik(a-b)} =
-    L (-1)^((a-b)/L) when L divides a - b, else 0."""
-    coeffs = []
-    for n in range(max_order + 1):
-        total = Fraction(0)
-        for a in range(n + 1):
-            b = n - a
-            if (a - b) % n_sites == 0:
-                total += binom_half(a) * binom_half(b) * (-1) ** (abs(a - b) // n_sites)
-        coeffs.append(-n_sites * total)
-    return coeffs
-
-
-def ring_energy(n_sites, g):
-    """Closed-form ground-state energy of the ring (same source as ring_coefficients)."""
-    k = np.pi * (2 * np.arange(n_sites) + 1) / n_sites
-    return -np.sum(np.sqrt(1 + g * g + 2 * g * np.cos(k)))
-
-
-def tfim_dense(n_sites, g):
-    """H0 = -sum sigma^z, V = -g sum X X on a ring, by Kronecker products."""
-    h0 = -sum(site_op(PAULI_Z, i, n_sites) for i in range(n_sites))
-    v = -g * sum(site_op(PAULI_X, i, n_sites) @ site_op(PAULI_X, (i + 1) % n_sites, n_sites)
-                 for i in range(n_sites))
-    return h0, v
-
-
-def singlet_block(t, lam_tilt=0.0):
-    """Hubbard dimer with offset, two electrons, spin-singlet block on (|20>, singlet of one
-    electron per dot, |02>): hopping matrix elements -sqrt(2) t between neighbours in this
-    chain of states (common practice, the two-site Hubbard model), diagonal U - 2D, -D, U
-    with U = 1, D = 2, plus a tilt lam_tilt n_0."""
-    a = -np.sqrt(2.0) * t
-    return np.array([[1.0 - 4.0 + 2 * lam_tilt, a, 0.0],
-                     [a, -2.0 + lam_tilt, a],
-                     [0.0, a, 1.0]])
 
 
 # ---------------------------------------------------------------------------------------
@@ -581,7 +156,7 @@ def test_second_order_equals_dense_sum_over_states(load):
     # at cost Delta - U, so E2 = -6 t^2 / (Delta - U) and |psi_1> has six amplitudes
     # of size t / (Delta - U).
     t, gap = 0.2, 2.0
-    model = load(IONIC_HUBBARD.format(t=t, order=4))
+    model = load(ionic_hubbard_file(t, 4))
     result = state_series(model)
     basis = build_basis(model)
     h0 = hamiltonian_matrix(model, basis, list(model.unperturbed_labels)).toarray()
@@ -627,11 +202,6 @@ def test_second_order_tfim_from_kronecker_build(load):
 
 # ---------------------------------------------------------------------------------------
 # the exact eigenvalue, followed from the H0 state
-
-
-def graded_dense(J):
-    h0 = sum(h * site_op(PAULI_Z, i, 4) / 2 for i, h in enumerate(GRADED_H)).real
-    return h0, J * heisenberg([(0, 1), (1, 2), (2, 3)], 4)
 
 
 @pytest.mark.parametrize("state", [None, "duud"])
@@ -734,96 +304,6 @@ def test_pade_beats_partial_sum_near_the_radius(load):
 
 
 # ---------------------------------------------------------------------------------------
-# sweeps: avoided and true crossings
-
-
-def test_sweep_two_level_avoided_crossing(load):
-    # H(lambda) = (-1 + r lambda) sigma^z + b lambda sigma^x: eigenvalues
-    # +- sqrt((1 - r lambda)^2 + b^2 lambda^2), closest at lambda* = r / (r^2 + b^2).
-    r, b = 1.0, 0.05
-    result = state_series(load(one_spin_file(r, b)), sweep=parse_sweep("lambda=0:2:41"))
-    sweep = result.sweep.to_dict()
-    lambdas = np.linspace(0, 2, 41)
-    gaps = 2 * np.sqrt((1 - r * lambdas) ** 2 + (b * lambdas) ** 2)
-    best = lambdas[np.argmin(gaps)]
-    star = r / (r * r + b * b)
-    assert abs(best - star) <= 0.025
-    avoided = sweep["avoided_crossings"]
-    assert len(avoided) == 1
-    assert avoided[0]["lambda"] == pytest.approx(best, abs=1e-12)
-    assert avoided[0]["gap"] == pytest.approx(gaps.min(), abs=1e-12)
-    assert sweep["crossings"] == []
-    levels = np.array(sweep["levels"])
-    np.testing.assert_allclose(levels, np.stack([-gaps / 2, gaps / 2], axis=1), atol=1e-12)
-
-
-def test_sweep_hubbard_dimer_avoided_crossing(load):
-    # Offset dimer with a tilt +lambda n_0: the pair on dot 0 (diagonal -3 + 2 lambda) meets
-    # the singlet with one electron per dot (-2 + lambda) at lambda = 1, and the hopping
-    # repels them (singlet block, see singlet_block).  The triplet T0 (-2 + lambda, not
-    # coupled) runs between the two repelled levels; the avoided crossing is between
-    # singlet levels 0 and 1 of the dense singlet block.
-    t = 0.05
-    result = state_series(load(offset_dimer_file(t, 8, tilt=True)),
-                          sweep=parse_sweep("lambda=0:2:41"))
-    lambdas = np.linspace(0, 2, 41)
-    singlets = np.array([np.linalg.eigvalsh(singlet_block(t * lam, lam)) for lam in lambdas])
-    fine = np.linspace(0, 2, 4001)
-    gaps = [np.diff(np.linalg.eigvalsh(singlet_block(t * lam, lam))[:2])[0] for lam in fine]
-    star = fine[int(np.argmin(gaps))]
-    assert abs(star - 1.0) < 0.05  # pushed down a little by |02>
-    levels = np.array(result.sweep.levels)
-    for row, s in zip(levels, singlets):  # the dense singlet levels are among the levels
-        assert np.min(np.abs(row[:, None] - s[None, :2]), axis=0).max() < 1e-10
-    avoided = result.sweep.to_dict()["avoided_crossings"]
-    assert any(abs(c["lambda"] - star) <= 0.05 for c in avoided), avoided
-
-
-def test_sweep_spin_dimer_true_crossing_between_sz_sectors(load):
-    # Two spins, H0 = -(S0^z + S1^z), V = S0.S1.  Exactly: |uu> at
-    # -1 + lambda/4 (S^z = 1), the singlet at -3 lambda/4 (S^z = 0): a true crossing at
-    # lambda = 1 between S^z sectors (V conserves S^z; elementary two-spin algebra).
-    result = state_series(load(ZEEMAN_CHAIN.format(L=2)), sweep=parse_sweep("lambda=0:2:41"))
-    sweep = result.sweep.to_dict()
-    assert sweep["crossings"] == [{"lambda": pytest.approx(1.0, abs=0.025),
-                                   "sectors": ["Sz=0", "Sz=1"]}]
-    assert sweep["avoided_crossings"] == []
-    lambdas = np.array(sweep["lambda"])
-    np.testing.assert_allclose(sweep["followed"], -1 + lambdas / 4, atol=1e-12)
-    np.testing.assert_allclose(np.array(sweep["levels"])[:, 0],
-                               np.minimum(-1 + lambdas / 4, -3 * lambdas / 4), atol=1e-12)
-
-
-def test_sweep_spin_chain_crossings_match_dense_sectors(load):
-    # Four spins: H0 = -sum S^z, V = sum S.S (open chain).  Dense check: lowest level of
-    # each S^z sector from the Kronecker build; the ground state passes S^z = 2 -> 1 -> 0.
-    n = 4
-    result = state_series(load(ZEEMAN_CHAIN.format(L=n)), sweep=parse_sweep("lambda=0:2:41"))
-    sweep = result.sweep.to_dict()
-    lambdas = np.linspace(0, 2, 41)
-    sz = spin_z_total(n)
-    h0 = np.diag(-sz)
-    v = heisenberg([(i, i + 1) for i in range(n - 1)], n)
-    sectors = np.unique(sz)
-    lowest = np.array([[np.linalg.eigvalsh((h0 + lam * v)[np.ix_(sz == s, sz == s)])[0]
-                        for s in sectors] for lam in lambdas])
-    ground = sectors[np.argmin(lowest, axis=1)]
-    changes = [(0.5 * (lambdas[i] + lambdas[i + 1]), ground[i], ground[i + 1])
-               for i in range(len(lambdas) - 1) if ground[i] != ground[i + 1]]
-    assert [(a, b) for _, a, b in changes] == [(2, 1), (1, 0)]
-    reported = {(frozenset(c["sectors"]), round(c["lambda"], 6)) for c in sweep["crossings"]}
-    for lam, a, b in changes:
-        key = frozenset({f"Sz={int(a)}", f"Sz={int(b)}"})
-        assert any(k == key and abs(x - lam) <= 0.05 for k, x in reported), (lam, a, b)
-    # every reported crossing is a sign change of the dense lowest levels of its sectors
-    for c in sweep["crossings"]:
-        i, j = (int(np.flatnonzero(sectors == float(Fraction(s[3:])))[0]) for s in c["sectors"])
-        near = np.abs(lambdas - c["lambda"]) <= 0.05
-        diff = lowest[near, i] - lowest[near, j]
-        assert diff.min() < 0 < diff.max(), c
-
-
-# ---------------------------------------------------------------------------------------
 # refusals and user errors
 
 
@@ -840,8 +320,7 @@ def test_degenerate_h0_level_points_to_derive(load, text, state):
 def test_uncoupled_degenerate_partners_warn_and_proceed(load):
     # Three singly occupied dots, all spins up: no hop is allowed (Pauli), so the 7 other
     # singly occupied H0 states are never reached and |uuu> stays an eigenstate at E = 0.
-    text = HUBBARD_DIMER.replace("size = [2]", "size = [3]").replace(
-        "particles = 2\nsz = 0", "particles = 3")
+    text = hubbard_text("chain", [3], t=0.1, U=1.0, order=4)
     result = state_series(load(text), state="uuu")
     assert result.reference == "uuu"
     np.testing.assert_allclose(result.energies, 0.0, atol=1e-15)
@@ -863,16 +342,3 @@ def test_bad_requests_raise_model_error(load, text, kwargs, match):
     kwargs = dict(kwargs)
     with pytest.raises(ModelError, match=match):
         state_series(load(text), kwargs.pop("order", None), **kwargs)
-
-
-@pytest.mark.parametrize("text", ["lambda=0:2", "mu=0:1:5", "lambda=a:1:5", "lambda=0:1:1",
-                                  "lambda=1:1:5", "lambda=0:nan:5", "lambda=0:1:5000",
-                                  "lambda=0:1:-3", "", "lambda=0:1:4:2"])
-def test_sweep_syntax_errors(text):
-    with pytest.raises(ModelError, match="--sweep"):
-        parse_sweep(text)
-
-
-def test_sweep_parses_start_stop_count():
-    np.testing.assert_allclose(parse_sweep(" lambda = 0:2:41 "), np.linspace(0, 2, 41))
-    np.testing.assert_allclose(parse_sweep("lambda=-1:1e0:3"), [-1, 0, 1])

@@ -16,7 +16,6 @@ from typing import Any, Iterable, Mapping
 
 from lowfold.build.basis import sector_size
 from lowfold.errors import LowfoldError, ModelError
-from lowfold.model.modelfile import load_model
 from lowfold.model.sector import Sector
 from lowfold.scans.scanfile import SECTOR_AXES, ScanSpec, scan_error
 from lowfold.scans.store import point_key
@@ -91,7 +90,8 @@ def plan_scan(spec: ScanSpec, model=None) -> list[ScanPoint]:
     ----------
     spec : ScanSpec
     model : Model, optional
-        The base model (default: read from ``spec.model_path``).
+        The base model (default: :meth:`ScanSpec.base_model`, the spec's model object or
+        its model file).
 
     Raises
     ------
@@ -99,11 +99,11 @@ def plan_scan(spec: ScanSpec, model=None) -> list[ScanPoint]:
         A grid parameter the model does not define, or a lattice size / boundary the
         model's lattice cannot take (naming the scan file and the key).
     """
-    model = load_model(spec.model_path) if model is None else model
+    model = spec.base_model() if model is None else model
     for name, _ in spec.axes:
         if name not in ("size", "boundary", *SECTOR_AXES) and name not in model.parameters:
             raise scan_error(spec.source, f"grid.{name}",
-                             f"not a parameter of {spec.model_path} "
+                             f"not a parameter of {spec.model_name} "
                              f"(parameters: {', '.join(model.parameters) or 'none'})")
     lattices: dict = {}
     points = []

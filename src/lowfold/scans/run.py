@@ -14,6 +14,7 @@ worker) and :class:`ScanSummary` with :func:`format_summary`.
 
 from __future__ import annotations
 
+import dataclasses
 import hashlib
 import os
 import socket
@@ -24,8 +25,10 @@ from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any, Callable, Mapping
 
+import numpy as np
+
 from lowfold.errors import LowfoldError
-from lowfold.model.modelfile import load_model
+from lowfold.model.model import Model
 from lowfold.scans.cluster import available_cores, limit_threads, quiet_worker_plugin, start_local_cluster
 from lowfold.scans.plan import ScanPoint, order_by_cost, plan_scan
 from lowfold.scans.progress import ScanDisplay
@@ -33,7 +36,7 @@ from lowfold.scans.scanfile import ScanSpec, load_scan
 from lowfold.scans.store import RECORD_FORMAT, ResultStore
 from lowfold.scans.table import write_csv
 
-__all__ = ["ScanSummary", "run_scan", "evaluate_point", "format_summary"]
+__all__ = ["ScanSummary", "run_scan", "evaluate_point", "format_summary", "model_fingerprint"]
 
 
 def _now() -> str:
@@ -103,6 +106,26 @@ class ScanSummary:
 
 def _sha256(path: Path) -> str:
     return hashlib.sha256(path.read_bytes()).hexdigest()
+
+
+def model_fingerprint(model: Model) -> str:
+    """SHA-256 of a model object's full ``repr`` (every array element, floats exact).
+
+    Stands in for the file checksum when the model is given as an object: a resumed scan
+    recomputes its points when the model changed.  Stable across processes and runs (the
+    model is made of frozen dataclasses, tuples, ordered mappings and NumPy arrays).
+    """
+    with np.printoptions(threshold=sys.maxsize, floatmode="unique"):
+        text = repr(model)
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
+def _model_meta(spec: ScanSpec, model: Model) -> dict:
+    """The ``model`` entry of the records: file path and checksum, or the object's fingerprint."""
+    if spec.model is None:
+        return {"path": str(spec.model_path), "sha256": _sha256(Path(spec.model_path)),
+                "title": spec.title or model.title}
+    return {"path": None, "sha256": model_fingerprint(model), "title": spec.title or model.title}
 
 
 def _lowfold_version() -> str:
@@ -186,6 +209,7 @@ def _failure(record: Mapping[str, Any]) -> dict:
 def run_scan(
     scan: ScanSpec | str | os.PathLike,
     *,
+    model: Model | None = None,
     out: str | os.PathLike | None = None,
     scheduler: str | None = None,
     workers: int | None = None,
@@ -200,7 +224,13 @@ def run_scan(
     Parameters
     ----------
     scan : ScanSpec or path
-        The scan (a path is read with :func:`load_scan`).
+        The scan (a path is read with :func:`load_scan`).  A ScanSpec whose ``model`` is
+        an object runs that model and reads no model file.
+    model : Model, optional
+        Run the scan on this model instead of the scan's model (nothing is read from the
+        model file).  Records then store ``model.path = null`` and, as ``sha256``, the
+        :func:`model_fingerprint` of the model: a resumed scan recomputes its points when
+        the model object changed, or when switching between a file and an object.
     out : path, optional
         Results directory (default: ``<scan file stem>-results`` beside the scan file).
     scheduler : str, optional
@@ -237,15 +267,15 @@ def run_scan(
     """
     clock = time.perf_counter()
     spec = load_scan(scan) if not isinstance(scan, ScanSpec) else scan
+    if model is not None:
+        spec = dataclasses.replace(spec, model=model)       # ScanSpec checks its type
     if out is None:
         source = Path(spec.source)
         out = source.with_name(source.stem + "-results")
-    model = load_model(spec.model_path)
+    model = spec.base_model()
     points = plan_scan(spec, model)
-    model_sha = _sha256(Path(spec.model_path))
-    meta = {"model": {"path": str(spec.model_path), "sha256": model_sha,
-                      "title": spec.title or model.title},
-            "version": _lowfold_version()}
+    meta = {"model": _model_meta(spec, model), "version": _lowfold_version()}
+    model_sha = meta["model"]["sha256"]
     store = ResultStore(out)
     store.write_manifest({"scan": spec.source, "task": spec.task, "options": dict(spec.options),
                           "axes": {n: [list(v) if isinstance(v, tuple) else v for v in vals]

@@ -23,6 +23,10 @@ A scan file names a model file, a task and a grid::
 ``particles``, ``filling`` and ``sz`` may also be grid axes.  With ``combine = "zip"``
 the axes are walked together (lists of length 1 are repeated).
 
+From Python the model may also be given as a :class:`~lowfold.model.model.Model` object
+(``parse_scan(data, model=...)``, ``run_scan(..., model=...)``); the ``model`` key may then
+be left out, and the object is used instead of any file it names.
+
 Every problem is a :class:`~lowfold.errors.ModelError` whose message names the file and
 the key, e.g. ``scan.toml: grid.U: range needs num``.
 """
@@ -35,7 +39,8 @@ from pathlib import Path
 from typing import Any, Mapping
 
 from lowfold.errors import ModelError
-from lowfold.model.modelfile import read_toml
+from lowfold.model.model import Model
+from lowfold.model.modelfile import load_model, read_toml
 
 __all__ = ["TASK_NAMES", "SECTOR_AXES", "ScanSpec", "parse_scan", "load_scan", "scan_error"]
 
@@ -52,8 +57,9 @@ class ScanSpec:
     ----------
     source : str
         Where it came from (for messages).
-    model_path : Path
-        The model file (absolute, or relative to the working directory).
+    model_path : Path or None
+        The model file (absolute, or relative to the working directory); None when the
+        model is given as an object only.
     task : str
     options : Mapping
         The task's options (``[task]`` minus ``name``).
@@ -64,16 +70,41 @@ class ScanSpec:
     sector : Mapping
         Fixed ``[sector]`` entries (``particles``, ``filling``, ``sz``).
     title : str
+    model : Model, optional
+        The model itself, when given as an object; used instead of ``model_path``.
+
+    Raises
+    ------
+    ModelError
+        Neither a model file nor a model, or a ``model`` that is not a :class:`Model`.
     """
 
     source: str
-    model_path: Path
+    model_path: Path | None
     task: str
     options: Mapping[str, Any]
     axes: tuple[tuple[str, tuple], ...]
     combine: str = "product"
     sector: Mapping[str, Any] = field(default_factory=dict)
     title: str = ""
+    model: Model | None = None
+
+    def __post_init__(self):
+        if self.model is not None and not isinstance(self.model, Model):
+            raise ModelError(f"{self.source}: model must be a lowfold Model, got {type(self.model).__name__}")
+        if self.model is None and self.model_path is None:
+            raise ModelError(f"{self.source}: a scan needs a model file or a Model")
+
+    @property
+    def model_name(self) -> str:
+        """The model, for messages: its file, or the title (or source) of the given model."""
+        if self.model is None:
+            return str(self.model_path)
+        return self.model.title or self.model.source
+
+    def base_model(self) -> Model:
+        """The model given as an object, or else the one read from ``model_path``."""
+        return self.model if self.model is not None else load_model(self.model_path)
 
 
 def scan_error(source: str, key: str, message: str) -> ModelError:
@@ -178,7 +209,8 @@ def _task(source: str, table) -> tuple[str, dict]:
     return name, options
 
 
-def parse_scan(data: Mapping[str, Any], *, source: str = "<scan>", base_dir: str | os.PathLike = ".") -> ScanSpec:
+def parse_scan(data: Mapping[str, Any], *, source: str = "<scan>", base_dir: str | os.PathLike = ".",
+               model: Model | None = None) -> ScanSpec:
     """Validate a parsed scan document (see the module docstring for the format).
 
     Parameters
@@ -189,6 +221,9 @@ def parse_scan(data: Mapping[str, Any], *, source: str = "<scan>", base_dir: str
         Name used in error messages.
     base_dir : path, keyword-only
         Directory the model path is relative to.
+    model : Model, keyword-only, optional
+        The model as an object: the document's ``model`` key may then be left out, and
+        the object is used instead of the file it names.
 
     Raises
     ------
@@ -199,8 +234,8 @@ def parse_scan(data: Mapping[str, Any], *, source: str = "<scan>", base_dir: str
     if unknown:
         raise scan_error(source, ", ".join(sorted(unknown)),
                     f"unknown key (allowed: {', '.join(sorted(_TOP_KEYS))})")
-    model = data.get("model")
-    if not isinstance(model, str) or not model:
+    model_file = data.get("model")
+    if (model is None or model_file is not None) and (not isinstance(model_file, str) or not model_file):
         raise scan_error(source, "model", "needs model = 'path/to/model.toml' (relative to the scan file)")
     title = data.get("title", "")
     if not isinstance(title, str):
@@ -247,8 +282,9 @@ def parse_scan(data: Mapping[str, Any], *, source: str = "<scan>", base_dir: str
     for name in sector:
         if name in names:
             raise scan_error(source, f"sector.{name}", "is also a grid axis; give it in one place")
-    return ScanSpec(source=source, model_path=Path(base_dir) / model, task=task, options=options,
-                    axes=tuple(axes), combine=combine, sector=sector, title=title)
+    return ScanSpec(source=source, model_path=None if model_file is None else Path(base_dir) / model_file,
+                    task=task, options=options, axes=tuple(axes), combine=combine, sector=sector,
+                    title=title, model=model)
 
 
 def load_scan(path: str | os.PathLike) -> ScanSpec:

@@ -31,13 +31,14 @@ import hashlib
 import json
 import os
 import tempfile
+from contextlib import contextmanager
 from pathlib import Path
-from typing import Any, Iterable, Mapping
+from typing import Any, Iterable, Iterator, Mapping, TextIO
 
 from lowfold.errors import LowfoldError, ModelError
 
-__all__ = ["RECORD_FORMAT", "ResultStore", "point_key", "canonical_json", "write_json_atomic",
-           "load_results"]
+__all__ = ["RECORD_FORMAT", "ResultStore", "point_key", "canonical_json", "atomic_text_file",
+           "write_json_atomic", "load_results"]
 
 RECORD_FORMAT = 1
 
@@ -87,14 +88,19 @@ def point_key(
     return hashlib.sha256(canonical_json(payload).encode()).hexdigest()[:20]
 
 
-def write_json_atomic(path: str | os.PathLike, obj: Any) -> None:
-    """Write ``obj`` as JSON to ``path`` atomically (temporary file, fsync, os.replace)."""
+@contextmanager
+def atomic_text_file(path: str | os.PathLike, *, newline: str | None = None) -> Iterator[TextIO]:
+    """A UTF-8 text file that appears at ``path`` whole or not at all.
+
+    The block writes to a temporary file in the same directory, which is flushed, synced
+    to disk and moved over ``path`` with :func:`os.replace` when the block ends; if the
+    block raises, the temporary file is removed and ``path`` is left as it was.
+    """
     path = Path(path)
     fd, tmp = tempfile.mkstemp(dir=path.parent, prefix="." + path.name + ".", suffix=".tmp")
     try:
-        with os.fdopen(fd, "w", encoding="utf-8") as handle:
-            json.dump(_to_jsonable(obj), handle, indent=1, sort_keys=True)
-            handle.write("\n")
+        with os.fdopen(fd, "w", newline=newline, encoding="utf-8") as handle:
+            yield handle
             handle.flush()
             os.fsync(handle.fileno())
         os.replace(tmp, path)
@@ -102,6 +108,13 @@ def write_json_atomic(path: str | os.PathLike, obj: Any) -> None:
         if os.path.exists(tmp):
             os.unlink(tmp)
         raise
+
+
+def write_json_atomic(path: str | os.PathLike, obj: Any) -> None:
+    """Write ``obj`` as JSON to ``path`` atomically (:func:`atomic_text_file`)."""
+    with atomic_text_file(path) as handle:
+        json.dump(_to_jsonable(obj), handle, indent=1, sort_keys=True)
+        handle.write("\n")
 
 
 class ResultStore:
@@ -114,8 +127,14 @@ class ResultStore:
 
     Examples
     --------
-    >>> store = ResultStore(tmp_path / "out")            # doctest: +SKIP
-    >>> store.put({"key": "abc", "status": "ok", ...})   # doctest: +SKIP
+    >>> import tempfile
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> store = ResultStore(tmp.name)
+    >>> store.put({"key": "abc", "status": "ok", "result": {"energies": [-1.0]}}).name
+    'abc.json'
+    >>> store.get("abc")["status"], store.keys()
+    ('ok', ['abc'])
+    >>> tmp.cleanup()
     """
 
     def __init__(self, directory: str | os.PathLike):

@@ -10,12 +10,10 @@ from __future__ import annotations
 
 import csv
 import os
-import tempfile
-from pathlib import Path
 from typing import Any, Iterable, Mapping
 
 from lowfold.errors import ModelError
-from lowfold.scans.store import load_results
+from lowfold.scans.store import atomic_text_file, load_results
 
 __all__ = ["TABLE_COLUMNS", "table_rows", "write_csv", "to_dataframe", "flatten_components",
            "sites_label"]
@@ -144,18 +142,10 @@ def write_csv(source: str | os.PathLike | Iterable[Mapping[str, Any]], path: str
     """
     records = load_results(source) if isinstance(source, (str, os.PathLike)) else list(source)
     rows = table_rows(records)
-    path = Path(path)
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix="." + path.name + ".", suffix=".tmp")
-    try:
-        with os.fdopen(fd, "w", newline="", encoding="utf-8") as handle:
-            writer = csv.DictWriter(handle, fieldnames=_column_order(records))
-            writer.writeheader()
-            writer.writerows(rows)
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+    with atomic_text_file(path, newline="") as handle:
+        writer = csv.DictWriter(handle, fieldnames=_column_order(records))
+        writer.writeheader()
+        writer.writerows(rows)
     return len(rows)
 
 
