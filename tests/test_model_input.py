@@ -8,18 +8,22 @@ The same inputs are run through the installed command in ``test_model_input_cli.
 from __future__ import annotations
 
 import json
+import math
 import tracemalloc
 from dataclasses import replace
+from fractions import Fraction
 from pathlib import Path
 
 import pytest
 
 from helpers.bad_models import ELECTRON_PAIR, PLAIN_SPIN_CHAIN, edit
 from lowfold import load_model
+from lowfold.build.basis import sector_size
 from lowfold.errors import ModelError, SizeError
 from lowfold.model.lattice import make_lattice
 from lowfold.model.model import Model, PerturbationSpec
 from lowfold.model.modelfile import read_toml
+from lowfold.model.sector import Sector
 from lowfold.model.sites import MAX_RADIX, check_state_space, make_site
 from lowfold.model.terms import STRENGTH_LIMIT, Term
 
@@ -234,3 +238,51 @@ def test_titles_are_kept_exactly_as_given(tmp_path, title):
     model = load_model(write(tmp_path, f"title = {json.dumps(title)}\n" + SPIN_CHAIN.split("\n", 1)[1]))
     assert model.title == title
     assert replace(model).title == title and model.with_parameters().title == title
+
+
+# ---------------------------------------------------------------------------------------
+# sectors
+
+
+@pytest.mark.parametrize("n_sites, sz", [(2, 0), (4, 0), (4, 1), (3, Fraction(1, 2))])
+def test_electron_sector_with_sz_alone_is_the_union_over_particle_numbers(n_sites, sz):
+    # Blocks with N_up - N_dn = 2 sz: sum_k C(L, k + 2sz) C(L, k) = C(2L, L + 2sz)
+    # (Vandermonde's identity, common practice).
+    site = make_site("electron")
+    expected = math.comb(2 * n_sites, n_sites + int(2 * sz))
+    assert sector_size(site, n_sites, Sector(None, Fraction(sz))) == expected
+    model = Model(make_lattice("chain", [n_sites]), site, (), Sector(sz=Fraction(sz)))
+    assert model.sector.particles is None
+
+
+def test_sector_from_filling():
+    # Half filling of the Hubbard model is one electron per site (common practice); a
+    # filling that gives a fractional particle number is refused, as in scan files.
+    assert Sector.from_filling(1, 6) == Sector(6, None)
+    assert Sector.from_filling(Fraction(2, 3), 6, sz=0) == Sector(4, Fraction(0))
+    assert Sector.from_filling(0.1, 10) == Sector(1, None)       # 0.1 * 10 to rounding
+    assert Sector.from_filling(0.5, 4, sz=-0.5).sz == Fraction(-1, 2)
+    for filling, n_sites in ((0.3, 4), (Fraction(1, 3), 4), (-1, 4), (float("nan"), 2),
+                             ("1", 2), (True, 2), (1, 0), (1, 2.0)):
+        with pytest.raises(ModelError) as exc:
+            Sector.from_filling(filling, n_sites)
+        one_line(exc)
+    with pytest.raises(ModelError, match="multiple of 1/2"):
+        Sector.from_filling(1, 4, sz=0.3)
+    with pytest.raises(ModelError, match="gives 1.2 particles, not an integer"):
+        Sector.from_filling(0.3, 4)
+
+
+def test_sector_from_filling_means_what_scan_files_mean():
+    # the shipped scan file fixes filling = 1 over chains of 2 to 6 dots
+    from lowfold.scans.run import plan_scan
+    from lowfold.scans.scanfile import load_scan
+
+    examples = Path(__file__).resolve().parent.parent / "examples"
+    points = plan_scan(load_scan(examples / "scan_hubbard_exchange.toml"))
+    assert {p.n_sites for p in points} == {2, 3, 4, 5, 6}
+    for point in points:
+        assert point.model.sector == Sector.from_filling(1, point.n_sites, sz=point.model.sector.sz)
+    # half filling on six sites at S^z = 0: C(6, 3)^2 = 400 states (common practice)
+    model = next(p.model for p in points if p.n_sites == 6)
+    assert sector_size(model.site, 6, Sector.from_filling(1, 6, sz=0)) == math.comb(6, 3) ** 2

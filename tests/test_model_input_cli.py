@@ -7,6 +7,8 @@ numba).  The same inputs are checked through the Python API in ``test_model_inpu
 
 from __future__ import annotations
 
+import json
+
 import pytest
 
 from helpers.bad_models import PLAIN_SPIN_CHAIN
@@ -40,6 +42,24 @@ CASES = {
     "label-newline": (SPIN_CHAIN.replace('"exchange"', '"exchange"\nlabel = "a\\nb"').encode(),
                       "spectrum", ["term[0].label 'a\\nb' contains the control character"]),
 }
+# S+ S- on bonds without conjugate = true is not Hermitian: every command refuses it alike
+NOT_HERMITIAN = (SPIN_CHAIN.replace('"exchange"', '"exchange"\nlabel = "heisenberg"')
+                 + '[[term]]\ntype = "product"\nlabel = "flip"\noperators = ["S+", "S-"]\n'
+                 'strength = 0.1\n[perturbation]\nunperturbed = ["heisenberg"]\n').encode()
+for _command in ("spectrum", "series", "derive"):
+    CASES[f"not-hermitian-{_command}"] = (NOT_HERMITIAN, _command, [
+        "term[1] (flip) is not Hermitian (on sites 0, 1); add conjugate = true"])
+
+
+# name -> (file contents, command and options); these must succeed
+GOOD = {
+    # Electron sector fixing S^z alone: every particle number with N_up - N_dn = 0, on three
+    # sites sum_k C(3, k)^2 = C(6, 3) = 20 states (Vandermonde's identity, common practice).
+    "electron-sz-only": (b'[lattice]\nshape = "chain"\nsize = [3]\n[site]\ntype = "electron"\n'
+                         b'[sector]\nsz = 0\n[[term]]\ntype = "hopping"\nstrength = 1.0\n'
+                         b'[[term]]\ntype = "hubbard"\nstrength = 4.0\n',
+                         ["spectrum", "--json", "--levels", "1"]),
+}
 
 
 @pytest.fixture(scope="module")
@@ -54,7 +74,11 @@ def runs(tmp_path_factory):
         path = special.get(name, directory / f"{name}.toml")
         if contents is not None:
             path.write_bytes(contents)
-        jobs[name] = [command, path]
+        jobs[name] = [command, str(path)]
+    for name, (contents, args) in GOOD.items():
+        path = directory / f"{name}.toml"
+        path.write_bytes(contents)
+        jobs[name] = [args[0], str(path), *args[1:]]
     return run_all(jobs)
 
 
@@ -63,3 +87,9 @@ def test_bad_model_is_one_line_and_exit_2(runs, name):
     line = one_line_error(runs[name])
     for words in CASES[name][2]:
         assert words in line, line
+
+
+def test_electron_sector_with_sz_alone_is_accepted(runs):
+    proc = runs["electron-sz-only"]
+    assert proc.returncode == 0, proc.stderr
+    assert json.loads(proc.stdout)["dimension"] == 20

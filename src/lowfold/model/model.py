@@ -8,6 +8,7 @@ from typing import Mapping
 
 from lowfold.model.sector import Sector
 from lowfold.errors import ModelError
+from lowfold.model.hermiticity import check_hermitian_terms
 from lowfold.model.lattice import Lattice, make_lattice
 from lowfold.model.sites import Site, check_state_space
 from lowfold.model.terms import Term, check_label, check_strength, expand_term
@@ -49,7 +50,8 @@ class Model:
     Conventions (hbar = 1, S = sigma/2, fermion and spin encodings) are those of
     ``lowfold.model.sites`` and the README.  Construction validates everything that can be
     decided without building a basis: ``SizeError`` when the states would not fit one int64
-    (``lowfold.model.sites.check_state_space``), ``ModelError`` for any invalid term.
+    (``lowfold.model.sites.check_state_space``), ``ModelError`` for any invalid term and
+    for terms that do not sum to a Hermitian operator (``lowfold.model.hermiticity``).
     Term labels and parameter names are one printable line; ``title`` is any text and is
     kept exactly as given (whoever displays it escapes it for the display).
     """
@@ -81,6 +83,7 @@ class Model:
             except ModelError as exc:
                 prefix = f"term {term.label!r}"
                 raise ModelError(str(exc) if str(exc).startswith(prefix) else f"{prefix}: {exc}") from None
+        check_hermitian_terms(self)
         if self.perturbation is not None:
             for label in self.perturbation.unperturbed:
                 if label not in labels:

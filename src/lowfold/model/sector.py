@@ -1,12 +1,15 @@
 """Sectors: the conserved totals (particle number, S^z) that select part of a model's space.
 
-A :class:`Sector` is part of the model; the basis layer (``lowfold.build.basis``) enumerates
+A :class:`Sector` is part of the model (:meth:`Sector.from_filling` makes one from
+particles per site, as scan files do); the basis layer (``lowfold.build.basis``) enumerates
 its states.  :func:`sector_totals` turns a sector into digit-sum constraints per species and
 refuses sectors that cannot exist.
 """
 
 from __future__ import annotations
 
+import math
+import numbers
 from dataclasses import dataclass
 from fractions import Fraction
 
@@ -18,7 +21,11 @@ __all__ = ["Sector", "sector_totals"]
 
 @dataclass(frozen=True)
 class Sector:
-    """Conserved quantities: total particle number and total S^z (``None`` = not fixed)."""
+    """Conserved quantities: total particle number and total S^z (``None`` = not fixed).
+
+    Spins take ``sz``; spinless fermions and bosons take ``particles``; electrons take
+    either or both (``sz`` alone: every particle number, ``N_up - N_dn = 2 sz``).
+    """
 
     particles: int | None = None
     sz: Fraction | None = None
@@ -26,6 +33,54 @@ class Sector:
     @property
     def is_full(self) -> bool:
         return self.particles is None and self.sz is None
+
+    @classmethod
+    def from_filling(cls, filling, n_sites: int, *, sz=None) -> "Sector":
+        """The sector with ``filling`` particles per site on ``n_sites`` sites (what a scan
+        file's ``filling`` means), and optionally a fixed total ``sz``.
+
+        ``filling * n_sites`` must be a whole number: exactly for integers and fractions,
+        within 1e-9 for floats (0.1 * 10 is taken as 1).
+
+        Examples
+        --------
+        >>> Sector.from_filling(1, 6)
+        Sector(particles=6, sz=None)
+        >>> Sector.from_filling(Fraction(2, 3), 6, sz=0)
+        Sector(particles=4, sz=Fraction(0, 1))
+
+        Raises
+        ------
+        ModelError
+            A filling that is negative, not a finite number, or gives a fractional number
+            of particles; a bad ``n_sites`` or ``sz``.
+        """
+        if isinstance(n_sites, bool) or not isinstance(n_sites, numbers.Integral) or n_sites < 1:
+            raise ModelError(f"the number of sites must be an integer >= 1, got {n_sites!r}")
+        if (isinstance(filling, bool) or not isinstance(filling, numbers.Real)
+                or not math.isfinite(filling) or filling < 0):
+            raise ModelError(f"filling must be a finite number >= 0, got {filling!r}")
+        if isinstance(filling, numbers.Rational):
+            count = Fraction(filling) * int(n_sites)
+            whole = count.denominator == 1
+        else:
+            count = float(filling) * int(n_sites)
+            whole = abs(count - round(count)) <= 1e-9
+        if not whole:
+            raise ModelError(f"filling {float(filling):g} on {n_sites} sites gives "
+                             f"{float(count):g} particles, not an integer")
+        return cls(int(round(count)), None if sz is None else _half_integer(sz))
+
+
+def _half_integer(sz) -> Fraction:
+    """``sz`` as a Fraction; ``ModelError`` unless it is a multiple of 1/2."""
+    try:
+        value = Fraction(sz) if not isinstance(sz, bool) else None
+    except (TypeError, ValueError, OverflowError):
+        value = None
+    if value is None or (2 * value).denominator != 1:
+        raise ModelError(f"sz must be a multiple of 1/2, got {sz!r}")
+    return value
 
 
 
