@@ -1,5 +1,6 @@
-"""Validity diagnostics of a degenerate expansion: coupling-to-gap ratio, small denominators,
-intruder states.
+"""Validity diagnostics of an expansion: coupling-to-gap ratio, small denominators, intruder
+states, errors against an exact check that stop falling, and a series that continues a
+different level than the exact one followed from the reference.
 
 The Schrieffer-Wolff series is an expansion in ``|V_PQ| / Delta``, with ``Delta`` the energy
 denominators between P and the states V reaches (common practice; Bravyi, DiVincenzo and
@@ -14,10 +15,14 @@ from dataclasses import dataclass, field
 import numpy as np
 import scipy.sparse as sp
 
-__all__ = ["Diagnostics", "manifold_diagnostics", "merge_diagnostics"]
+__all__ = ["Diagnostics", "manifold_diagnostics", "merge_diagnostics", "check_divergence",
+           "followed_level_warnings", "GROWTH_WARNING", "MISMATCH_FACTOR"]
 
 RATIO_WARNING = 0.5        # |V_PQ| / gap above this: the expansion is unreliable
 INTRUDER_FRACTION = 0.1    # a Q state closer than this fraction of the typical denominator
+GROWTH_WARNING = 2.0       # check error at the top order over the smallest one: diverging
+ROUNDOFF_ERROR = 1e-9      # check errors below this times the largest one are rounding
+MISMATCH_FACTOR = 3.0      # |series - exact| over the series' own error estimate: warn
 
 
 @dataclass
@@ -103,3 +108,83 @@ def merge_diagnostics(parts: list[Diagnostics], label_of=None) -> Diagnostics:
             f"from {name(p)} (typical denominator {merged.typical_denominator:.3g}); "
             "consider widening the window to include it")
     return merged
+
+
+def check_divergence(errors_by_order) -> list[str]:
+    """A warning when the errors of an exact check stop falling with the order.
+
+    Parameters
+    ----------
+    errors_by_order : mapping or sequence
+        ``{order: error}`` (int or str keys; a value may also be a dict with
+        ``"max_abs_error"``, as in derive's ``check["by_order"]``), or errors indexed by
+        order.
+
+    Returns
+    -------
+    list of str
+        One sentence when the error at the highest order exceeds ``GROWTH_WARNING`` times
+        the smallest error of a lower order, errors at rounding level (``ROUNDOFF_ERROR``
+        times the largest) aside; empty otherwise.
+    """
+    if isinstance(errors_by_order, dict):
+        items = errors_by_order.items()
+    else:
+        items = enumerate(errors_by_order)
+    pairs = []
+    for order, error in items:
+        if isinstance(error, dict):
+            error = error.get("max_abs_error")
+        if error is not None and np.isfinite(error):
+            pairs.append((int(order), abs(float(error))))
+    pairs.sort()
+    if len(pairs) < 2:
+        return []
+    orders = np.array([p[0] for p in pairs])
+    errors = np.array([p[1] for p in pairs])
+    floor = ROUNDOFF_ERROR * errors.max()
+    best = int(np.argmin(errors[:-1]))
+    last = errors[-1]
+    if last > floor and last > GROWTH_WARNING * max(errors[best], floor):
+        return [(f"the error against the exact result stops falling with the order: smallest "
+                 f"{errors[best]:.3g} at order {orders[best]}, {last:.3g} at order "
+                 f"{orders[-1]}; the series has stopped converging, trust at most order "
+                 f"{orders[best]}")]
+    return []
+
+
+def followed_level_warnings(resummed: float, error: float, exact: float, *,
+                            lam: float = 1.0) -> list[str]:
+    """A warning when the series' resummed value and the exact level followed from the
+    reference differ by more than the series' own error estimate.
+
+    Parameters
+    ----------
+    resummed : float
+        The series' best value at ``lam`` (Pade value, or the partial sum).
+    error : float
+        The series' own error estimate (e.g. the Pade spread, or the last term); NaN or
+        None counts as zero, and a floor of ``1e-10 * max(1, |exact|)`` applies.
+    exact : float
+        The exact eigenvalue followed adiabatically from the reference state to ``lam``.
+    lam : float
+        The coupling factor, for the wording.
+
+    Returns
+    -------
+    list of str
+        One sentence when ``|resummed - exact| > MISMATCH_FACTOR * error``: past an avoided
+        crossing the series (and its Pade resummation) continues the diabatic level while
+        the followed exact value is the adiabatic one, so they may describe different
+        levels.  Empty otherwise.
+    """
+    error = 0.0 if error is None or not np.isfinite(error) else abs(float(error))
+    allowed = MISMATCH_FACTOR * max(error, 1e-10 * max(1.0, abs(exact)))
+    gap = abs(resummed - exact)
+    if gap <= allowed:
+        return []
+    return [(f"the series gives {resummed:.6g} at lambda = {lam:g} but the exact level "
+             f"followed from the reference state is {exact:.6g}, {gap:.3g} apart, more than "
+             f"the series' own error estimate ({error:.2g}): they may describe different "
+             "levels (an avoided crossing between lambda = 0 and here hands the followed level "
+             "over to another state, while the series continues the original one)")]

@@ -9,8 +9,9 @@ state corrections use intermediate normalisation, ``<psi0|psi_k> = 0`` for ``k >
 
 Only products of H0 and V with vectors are used.  With a diagonal H0 the reduced
 resolvent is elementwise (a numba kernel); with a general H0 each order solves
-``(E0 - H0)|psi_k> = Q(...)`` on the complement of ``psi0`` with MINRES or GMRES
-(Dalgarno-Lewis / Sternheimer style), so the spectrum of H0 is never needed.
+``(E0 - H0)|psi_k> = Q(...)`` on the complement of ``psi0`` (Dalgarno-Lewis / Sternheimer
+style): densely for small problems, with MINRES or GMRES for large ones, where the
+spectrum of H0 is never needed.
 
 By default the energies use Wigner's 2n+1 rule (E. P. Wigner, 1935), here in its
 intermediate-normalisation form for Hermitian H0 and V (derived from the recursion by
@@ -21,80 +22,37 @@ moving V between bra and ket; the tests compare it with the direct formula):
 
 so order ``n`` needs the states only up to ``floor(n/2)``; ``method="direct"`` uses
 ``E_k = <psi0|V|psi_{k-1}>`` instead.  V and H0 must be Hermitian.
-"""
 
-from dataclasses import dataclass, field
+The recursion and :class:`SeriesResult` live in :mod:`lowfold.perturbation.recursion`, the
+solvers of the general route in :mod:`lowfold.perturbation.resolvent`; this module holds
+the two routes and their input checks.
+"""
 
 import numpy as np
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
 from lowfold.build.numerics import rs_state_update as _state_update
-from lowfold.errors import ConvergenceError, ModelError
+from lowfold.errors import ModelError
+from lowfold.perturbation.recursion import (
+    SeriesResult,
+    chain_request,
+    finish_series,
+    run_chain,
+)
+from lowfold.perturbation.resolvent import (
+    DENSE_LIMIT,
+    DenseResolvent,
+    KrylovResolvent,
+    dense_matrix,
+)
 
 __all__ = ["SeriesResult", "rayleigh_schrodinger", "rayleigh_schrodinger_general"]
 
 _METHODS = ("wigner", "direct")
 _TOP_CONTRIBUTIONS = 10
 _HERMITICITY_TOL = 1e-10
-_REFINEMENTS = 6
-
-
-@dataclass(frozen=True, eq=False)
-class SeriesResult:
-    """Perturbation series of one eigenvalue of ``H0 + lambda V``.
-
-    Attributes
-    ----------
-    energies : (order + 1,) float array
-        ``E_0 .. E_n``, the coefficients of ``lambda^k`` (so their sum is the estimate at
-        ``lambda = 1``, the coupling V was given at).
-    states : list of arrays or None
-        ``|psi_1> .. |psi_n>`` (intermediate normalisation) when asked for, else None.
-    second_order_contributions : list of (int, float, float, float)
-        ``(m, |V_mn|^2, E_n - E_m, |V_mn|^2 / (E_n - E_m))`` for the basis states m that
-        contribute most to ``E_2`` (largest magnitude first, at most 10).  Empty for the
-        general (non-diagonal H0) route, where no eigenbasis of H0 is at hand.
-    first_order_norm : float
-        ``|| |psi_1> ||``, a first measure of how perturbative the state is.
-    method : str
-        ``"wigner"`` (2n+1 rule) or ``"direct"``.
-    warnings : tuple of str
-        Things the caller should pass on to the user (e.g. an uncoupled degeneracy).
-    degenerate_partners : int array
-        Basis states with the reference's H0 energy (diagonal route); they are left out
-        of the resolvent.
-    smallest_denominator : float
-        ``min |E_n - E_m|`` over the states in the resolvent (NaN on the general route).
-    matvecs : int
-        Number of products of V with a vector.
-    solver_iterations : int
-        Total iterations of the linear solver (general route; 0 otherwise).
-    """
-
-    energies: np.ndarray
-    states: list | None
-    second_order_contributions: list
-    first_order_norm: float
-    method: str
-    warnings: tuple = ()
-    degenerate_partners: np.ndarray = field(default_factory=lambda: np.zeros(0, dtype=np.int64))
-    smallest_denominator: float = float("nan")
-    matvecs: int = 0
-    solver_iterations: int = 0
-
-    @property
-    def order(self):
-        """Highest order of the energy series."""
-        return len(self.energies) - 1
-
-    def energy(self, lam=1.0, *, order=None):
-        """Partial sum ``sum_{k <= order} E_k lam^k`` (all orders by default)."""
-        n = self.order if order is None else int(order)
-        if not 0 <= n <= self.order:
-            raise ModelError(f"order must lie in 0..{self.order}, got {order}")
-        powers = lam ** np.arange(n + 1)
-        return float(np.dot(self.energies[: n + 1], powers))
+_SOLVERS = ("auto", "dense", "minres", "gmres")
 
 
 # -- input handling
@@ -163,108 +121,6 @@ def _diagonal_of(h0):
     if d.size == 0 or not np.all(np.isfinite(d)):
         raise ModelError("the diagonal of H0 must be a non-empty array of finite numbers")
     return d
-
-
-# -- the recursion, shared by both routes
-
-
-@dataclass
-class _Chain:
-    """State corrections and the scalars the energy formulas need."""
-
-    states: np.ndarray  # (K + 1, N): psi_0 .. psi_K
-    direct: np.ndarray  # direct[t] = <psi0|V|psi_{t-1}>, t = 1 .. (K + 1 or K)
-    lead_even: np.ndarray  # lead_even[k] = <V psi_{k-1}|psi_k>
-    lead_odd: np.ndarray  # lead_odd[k] = <psi_k|V psi_k>
-    length: int  # K actually reached
-    matvecs: int
-    first_w: np.ndarray  # V psi_0
-
-
-def _run_chain(apply_v, correction, psi0, e0, length, need_last_w, inspect=None):
-    """Build ``psi_1 .. psi_length``; ``inspect(k, V psi_k)`` may stop the chain early.
-
-    ``correction(w, states, energies, k, out)`` writes ``psi_k`` into ``out`` from
-    ``w = V psi_{k-1}`` and the direct energies ``energies[1 .. k]``.
-    """
-    n = psi0.size
-    states = np.zeros((length + 1, n), dtype=psi0.dtype)
-    states[0] = psi0
-    direct = np.zeros(length + 2)
-    direct[0] = e0
-    lead_even = np.zeros(length + 1)
-    lead_odd = np.zeros(length + 1)
-    w = apply_v(psi0)
-    first_w = w
-    matvecs = 1
-    direct[1] = np.vdot(psi0, w).real
-    lead_odd[0] = direct[1]
-    reached = length
-    if inspect is not None and inspect(0, w):
-        reached = 0
-    for k in range(1, reached + 1):
-        correction(w, states, direct, k, states[k])
-        lead_even[k] = np.vdot(w, states[k]).real
-        if k == length and not need_last_w:
-            break
-        w = apply_v(states[k])
-        matvecs += 1
-        direct[k + 1] = np.vdot(psi0, w).real
-        lead_odd[k] = np.vdot(states[k], w).real
-        if inspect is not None and inspect(k, w):
-            reached = k
-            break
-    return _Chain(states[: reached + 1], direct, lead_even, lead_odd, reached, matvecs, first_w)
-
-
-def _wigner_energies(chain, order):
-    """Energies ``E_0 .. E_order`` by the 2n+1 rule from ``psi_0 .. psi_{order // 2}``."""
-    m = order // 2
-    block = chain.states[1 : m + 1]
-    overlap = (block.conj() @ block.T).real if m else np.zeros((0, 0))
-    energies = np.zeros(order + 1)
-    energies[0] = chain.direct[0]
-    energies[1] = chain.lead_odd[0]
-    for t in range(2, order + 1):
-        k = t // 2
-        if t % 2 == 0:
-            value, l_max = chain.lead_even[k], k - 1
-        else:
-            value, l_max = chain.lead_odd[k], k
-        for i in range(1, k + 1):
-            for l in range(1, l_max + 1):
-                value -= energies[t - i - l] * overlap[i - 1, l - 1]
-        energies[t] = value
-    return energies
-
-
-def _chain_request(order, method, keep_states):
-    """Chain length and whether ``V psi_K`` is needed, for the energies and states asked."""
-    if method == "direct":
-        length, need_last_w = order - 1, True
-    else:
-        length, need_last_w = order // 2, order % 2 == 1
-    if keep_states and order > length:
-        length, need_last_w = order, False
-    if length < 1:
-        length, need_last_w = 1, order > 1
-    return length, need_last_w
-
-
-def _finish(chain, order, method, keep_states, **extra):
-    if method == "direct":
-        energies = chain.direct[: order + 1].copy()
-    else:
-        energies = _wigner_energies(chain, order)
-    states = [chain.states[k].copy() for k in range(1, order + 1)] if keep_states else None
-    return SeriesResult(
-        energies=energies,
-        states=states,
-        first_order_norm=float(np.linalg.norm(chain.states[1])),
-        method=method,
-        matvecs=chain.matvecs,
-        **extra,
-    )
 
 
 # -- diagonal H0
@@ -387,7 +243,7 @@ def rayleigh_schrodinger(h0, v, reference, order, *, method="wigner", keep_state
     inv[usable] = 1.0 / gaps[usable]
     smallest = float(np.min(np.abs(gaps[usable]))) if usable.any() else float("nan")
 
-    length, need_last_w = _chain_request(order, method, keep_states)
+    length, need_last_w = chain_request(order, method, keep_states)
     probe = None
     if partners.size:
         probe = _CouplingProbe(partners, order, coupling_tol)
@@ -399,10 +255,10 @@ def rayleigh_schrodinger(h0, v, reference, order, *, method="wigner", keep_state
     def correction(w, states, energies, k, out):
         _state_update(w, states, energies, k, inv, out)
 
-    chain = _run_chain(apply_v, correction, psi0, e0, length, need_last_w, probe)
+    chain = run_chain(apply_v, correction, psi0, e0, length, need_last_w, probe)
     warnings = (probe.warning(chain.length + 1),) if probe is not None else ()
     w0 = np.asarray(chain.first_w)
-    return _finish(
+    return finish_series(
         chain, order, method, keep_states,
         second_order_contributions=_second_order_terms(w0, gaps, usable),
         warnings=warnings,
@@ -414,98 +270,8 @@ def rayleigh_schrodinger(h0, v, reference, order, *, method="wigner", keep_state
 # -- general H0
 
 
-class _ComplementSolver:
-    """Solve ``(E0 - H0) x = b`` for ``b`` orthogonal to ``psi0``, with ``x`` orthogonal too."""
-
-    def __init__(self, apply_h0, psi0, e0, dtype, *, solver, rtol, maxiter, preconditioner,
-                 degeneracy_tol):
-        n = psi0.size
-        self.psi0, self.e0, self.apply_h0 = psi0, e0, apply_h0
-        self.operator = spla.LinearOperator((n, n), matvec=self._apply, dtype=dtype)
-        self.solver, self.rtol, self.maxiter = solver, rtol, maxiter
-        self.preconditioner, self.degeneracy_tol = preconditioner, degeneracy_tol
-        self.iterations = 0
-        self.accept = max(1e3 * rtol, 1e-13)
-
-    def _project(self, x):
-        return x - self.psi0 * np.vdot(self.psi0, x)
-
-    def _apply(self, x):
-        x = self._project(np.ravel(x))
-        return self._project(self.e0 * x - self.apply_h0(x))
-
-    def _count(self, *_):
-        self.iterations += 1
-
-    def _krylov(self, b):
-        if self.solver == "minres":
-            x, info = spla.minres(self.operator, b, rtol=self.rtol, maxiter=self.maxiter,
-                                  M=self.preconditioner, callback=self._count)
-        else:
-            x, info = spla.gmres(self.operator, b, rtol=self.rtol, atol=0.0,
-                                 maxiter=self.maxiter, M=self.preconditioner,
-                                 callback=self._count, callback_type="pr_norm")
-        return self._project(x), info
-
-    def _near_null(self, r, steps=40):
-        """True if ``E0 - H0`` has an eigenvalue within ``degeneracy_tol`` of zero seen by
-        ``r``: a Lanczos Ritz pair ``(theta, y)`` from ``r`` with ``|theta| +
-        ||A y - theta y|| <= degeneracy_tol`` proves one (Kahan's residual bound)."""
-        basis = [r / np.linalg.norm(r)]
-        for _ in range(min(steps, r.size - 1)):
-            q = self._apply(basis[-1])
-            for u in basis:  # full reorthogonalisation, twice
-                q = q - u * np.vdot(u, q)
-            for u in basis:
-                q = q - u * np.vdot(u, q)
-            norm_q = np.linalg.norm(q)
-            if norm_q <= 1e-14 * max(1.0, abs(self.e0)):
-                break
-            basis.append(q / norm_q)
-        vectors = np.array(basis)
-        images = np.array([self._apply(u) for u in vectors])
-        theta, coef = np.linalg.eigh(vectors.conj() @ images.T)
-        for t, c in zip(theta, coef.T):
-            y = c @ vectors
-            if abs(t) + np.linalg.norm(c @ images - t * y) <= self.degeneracy_tol:
-                return True
-        return False
-
-    def __call__(self, b, k):
-        """Solve at order ``k``, refining on the true residual (rounding drifts the
-        recurrence residual of the Krylov solvers away from it)."""
-        norm_b = np.linalg.norm(b)
-        if norm_b == 0.0:
-            return np.zeros_like(b)
-        x = np.zeros_like(b)
-        residual, rel = b, 1.0
-        for _ in range(_REFINEMENTS):
-            dx, info = self._krylov(residual)
-            x = x + dx
-            new_residual = b - self._apply(x)
-            new_rel = np.linalg.norm(new_residual) / norm_b
-            stalled = new_rel > 0.5 * rel
-            residual, rel = new_residual, new_rel
-            if rel <= self.accept or stalled:
-                break
-        if rel <= self.accept:
-            return x
-        if self._near_null(residual):
-            raise ModelError(
-                f"at order {k} the right-hand side has a component on a level of H0 within "
-                "degeneracy_tol of the reference energy, so V couples the reference to a "
-                "degenerate partner: a single-state series does not apply; treat the "
-                "degenerate manifold with `lowfold derive`"
-            )
-        raise ConvergenceError(
-            f"{self.solver} did not reach relative residual {self.rtol:g} at order {k} "
-            f"(got {rel:.3g}, info={info}); raise maxiter or pass a preconditioner",
-            partial={"order": k, "relative_residual": rel},
-        )
-
-
 def rayleigh_schrodinger_general(h0, v, psi0, e0, order, *, method="wigner", keep_states=False,
-                                 solver="minres", rtol=1e-12, maxiter=None, preconditioner=None,
+                                 solver="auto", rtol=1e-12, maxiter=None, preconditioner=None,
                                  degeneracy_tol=1e-6, eigen_tol=1e-8):
     """Perturbation series of the eigenvalue of ``H0 + V`` that grows out of ``psi0``.
 
@@ -526,8 +292,12 @@ def rayleigh_schrodinger_general(h0, v, psi0, e0, order, *, method="wigner", kee
         As in :func:`rayleigh_schrodinger`.
     keep_states : bool
         Return ``|psi_1> .. |psi_order>``.
-    solver : {"minres", "gmres"}
-        Iterative solver; MINRES suits the Hermitian, indefinite ``E0 - H0``.
+    solver : {"auto", "dense", "minres", "gmres"}
+        ``"dense"`` diagonalises H0 once and applies the reduced resolvent exactly (small
+        problems); ``"minres"`` / ``"gmres"`` solve each order iteratively (MINRES suits the
+        Hermitian, indefinite ``E0 - H0``); ``"auto"`` takes the dense route up to
+        ``resolvent.DENSE_LIMIT`` states, MINRES above (Krylov solvers stall on tiny
+        problems).
     rtol : float
         Relative residual asked of the solver at each order.
     maxiter : int, optional
@@ -535,8 +305,10 @@ def rayleigh_schrodinger_general(h0, v, psi0, e0, order, *, method="wigner", kee
     preconditioner : LinearOperator, optional
         Passed to the solver as ``M`` (for MINRES it must be Hermitian positive definite).
     degeneracy_tol : float
-        If a solve fails and ``(E0 - H0)`` shrinks its residual below ``degeneracy_tol``
-        times its norm, the failure is read as a coupled degenerate level of H0.
+        Levels of H0 within ``degeneracy_tol * max(1, ||H0||)`` of ``e0`` count as degenerate
+        with it (dense route); a failed iterative solve whose residual is carried by a level
+        of ``E0 - H0`` within ``degeneracy_tol`` times its scale of zero is read as a coupled
+        degenerate level (iterative routes).
     eigen_tol : float
         Allowed ``||H0 psi0 - e0 psi0||``, relative to ``max(1, |e0|)``.
 
@@ -556,12 +328,13 @@ def rayleigh_schrodinger_general(h0, v, psi0, e0, order, *, method="wigner", kee
     Notes
     -----
     Degenerate levels of H0 that V never couples to the reference are harmless here (the
-    Krylov spaces stay orthogonal to them) but, unlike on the diagonal route, they cannot
-    be reported without the spectrum of H0.
+    Krylov spaces stay orthogonal to them; the dense route drops their rounding-level
+    components) but, unlike on the diagonal route, they are not reported.  See
+    :mod:`lowfold.perturbation.resolvent` for the two solvers.
     """
     _check_order_method(order, method)
-    if solver not in ("minres", "gmres"):
-        raise ModelError(f"solver must be 'minres' or 'gmres', got {solver!r}")
+    if solver not in _SOLVERS:
+        raise ModelError(f"solver must be one of {_SOLVERS}, got {solver!r}")
     psi0 = np.asarray(psi0)
     if psi0.ndim != 1 or psi0.size == 0:
         raise ModelError("psi0 must be a non-empty 1-D array")
@@ -579,16 +352,23 @@ def rayleigh_schrodinger_general(h0, v, psi0, e0, order, *, method="wigner", kee
     if np.linalg.norm(apply_h0(psi0) - e0 * psi0) > eigen_tol * max(1.0, abs(e0)):
         raise ModelError("psi0 is not an eigenvector of H0 with eigenvalue e0 (within eigen_tol)")
 
-    solve = _ComplementSolver(apply_h0, psi0, e0, dtype, solver=solver, rtol=rtol,
-                              maxiter=maxiter, preconditioner=preconditioner,
-                              degeneracy_tol=degeneracy_tol)
+    if solver == "dense" or (solver == "auto" and n <= DENSE_LIMIT):
+        solve = DenseResolvent(dense_matrix(h0, apply_h0, n, dtype), psi0, e0,
+                               degeneracy_tol=degeneracy_tol)
+    else:
+        solve = KrylovResolvent(apply_h0, psi0, e0, dtype,
+                                solver="minres" if solver == "auto" else solver, rtol=rtol,
+                                maxiter=maxiter, preconditioner=preconditioner,
+                                degeneracy_tol=degeneracy_tol)
 
     def correction(w, states, energies, k, out):
         b = w - energies[1:k] @ states[k - 1 : 0 : -1]
         b = b - psi0 * np.vdot(psi0, b)
-        out[:] = solve(b, k)
+        scale = np.linalg.norm(w) + np.abs(energies[1:k]) @ np.linalg.norm(states[k - 1 : 0 : -1],
+                                                                           axis=1)
+        out[:] = solve(b, k, scale)
 
-    length, need_last_w = _chain_request(order, method, keep_states)
-    chain = _run_chain(apply_v, correction, psi0, e0, length, need_last_w)
-    return _finish(chain, order, method, keep_states, second_order_contributions=[],
+    length, need_last_w = chain_request(order, method, keep_states)
+    chain = run_chain(apply_v, correction, psi0, e0, length, need_last_w)
+    return finish_series(chain, order, method, keep_states, second_order_contributions=[],
                    solver_iterations=solve.iterations)
