@@ -69,7 +69,7 @@ def at_smaller_couplings(model, order, measure) -> np.ndarray:
     for factor in FACTORS:
         small = scaled(model, factor)
         _, h, p_index = full_sector(small)
-        rows.append(measure(derive(small, order, check=False), h, p_index))
+        rows.append(measure(derive(small, order, compare_exact=False), h, p_index))
     return np.array(rows)
 
 
@@ -90,10 +90,10 @@ def test_error_scaling_random_spin_models(seed):
     # seeds, e.g. 1, the odd orders shift the levels very little and the spectrum error of
     # the even orders falls faster at these couplings: allowed by the bound, not tested.)
     model = model_of(random_spin_text(seed))
-    result = derive(model, 6, check_scaling=True)
+    result = derive(model, 6, fit_scaling=True)
     assert result.manifold.dimension == 4 and not result.spin_form
     for n in range(1, 7):
-        assert result.scaling[str(n)]["ok"], (n, result.scaling[str(n)])
+        assert result.scaling[n].ok, (n, result.scaling[n])
     # independent fit, at smaller couplings (lambda = 0.6, 0.45, 0.3 of the file's V), with
     # our own dense diagonalisation of the whole sector
     assert_next_power(at_smaller_couplings(model, 6, spectrum_errors), 6)
@@ -117,9 +117,9 @@ def test_effective_hamiltonian_matches_exact_rotation():
 def test_hubbard_error_powers_with_vanishing_odd_orders():
     # Hubbard chain: the odd orders vanish at half filling (common practice; Takahashi 1977),
     # so the error of order 2k and 2k+1 both fall like (t/U)^(2k+2).
-    result = derive(hubbard("chain", (4,), t=0.08, order=4), 4, check_scaling=True)
-    powers = {int(n): v["power"] for n, v in result.scaling.items()}
-    assert all(result.scaling[str(n)]["ok"] for n in range(1, 5))
+    result = derive(hubbard("chain", (4,), t=0.08, order=4), 4, fit_scaling=True)
+    powers = {n: v.power for n, v in result.scaling.items()}
+    assert all(result.scaling[n].ok for n in range(1, 5))
     for n in range(1, 5):
         expected = n + 1 if n % 2 else n + 2
         assert powers[n] == pytest.approx(expected, abs=0.2), (n, powers)
@@ -133,14 +133,14 @@ def test_quasi_degenerate_window_is_checked():
     # (Bravyi, DiVincenzo and Loss 2011, Sec. 3, quasi-degenerate case), and the exact check
     # is done and scales.
     model = model_of(random_spin_text(3, split=0.02, order=4))
-    result = derive(model, 4, check_scaling=True)
+    result = derive(model, 4, fit_scaling=True)
     energies = np.sort(result.manifold.energies)
     assert result.manifold.dimension == 4
     assert energies[-1] - energies[0] == pytest.approx(0.02, rel=1e-9)
     assert result.check is not None
-    by_order = [result.check["by_order"][str(n)]["max_abs_error"] for n in range(5)]
+    by_order = [result.check.max_abs_error[n] for n in range(5)]
     assert by_order[4] < by_order[2] < by_order[0]
-    assert all(result.scaling[str(n)]["ok"] for n in range(1, 5)), result.scaling
+    assert all(result.scaling[n].ok for n in range(1, 5)), result.scaling
     assert_next_power(at_smaller_couplings(model, 4, rotation_differences), 4)
 
 
@@ -160,9 +160,9 @@ def test_window_above_the_lowest_level_is_checked_against_its_own_levels():
     missed = 128 * t**6 / U**5
     np.testing.assert_allclose(np.sort(la.eigvalsh(result.matrix())), [U, upper - missed],
                                rtol=0, atol=0.1 * missed)
-    np.testing.assert_allclose(result.check["exact"], [U, upper], rtol=0, atol=1e-12)
-    assert result.check["by_order"]["4"]["max_abs_error"] == pytest.approx(missed, rel=0.1)
-    assert result.check["by_order"]["2"]["max_abs_error"] == pytest.approx(16 * t**4 / U**3,
+    np.testing.assert_allclose(result.check.exact, [U, upper], rtol=0, atol=1e-12)
+    assert result.check.max_abs_error[4] == pytest.approx(missed, rel=0.1)
+    assert result.check.max_abs_error[2] == pytest.approx(16 * t**4 / U**3,
                                                                            rel=0.1)
 
 
@@ -173,7 +173,7 @@ def test_skipped_check_spends_no_exact_diagonalisation(monkeypatch):
     # 3.3 M-state block says "skip" (more than 5 minutes; benchmarks/bench_derive.py).
     # Here: a 6-site chain with the limit lowered to 300 states, so that the S^z = 0 block
     # (400 states) does not fit and the S^z = -3, -2, -1 blocks (1, 36, 225 states) do.
-    module = importlib.import_module("lowfold.jobs.derive")   # the attribute is the function
+    module = importlib.import_module("lowfold.jobs.check")
     calls = []
     original = module._exact_levels
     monkeypatch.setattr(module, "CHECK_MAX_STATES", 300)
@@ -202,8 +202,8 @@ def test_matrix_free_second_order_equals_recursion(case):
     # (Bravyi, DiVincenzo and Loss 2011, Sec. 3) used at order 2 must equal the
     # second order of the generator recursion used at order 3.
     model = SECOND_ORDER_CASES[case]()
-    free = derive(model, 2, check=False).orders[2].toarray()
-    recursion = derive(model, 3, check=False).orders[2].toarray()
+    free = derive(model, 2, compare_exact=False).orders[2].toarray()
+    recursion = derive(model, 3, compare_exact=False).orders[2].toarray()
     scale = np.max(np.abs(recursion))
     assert scale > 0
     np.testing.assert_allclose(free, recursion, rtol=0, atol=1e-12 * scale)
@@ -226,6 +226,6 @@ def test_reachable_space_truncation_matches_full_sector(order):
     working = reachable_from_states(v_op, states, order // 2)
     assert working.size < basis.size           # the truncation really drops states
     full = effective_hamiltonian_orders(h0.diagonal(), v, basis.index(states), order)
-    result = derive(model, order, check=False)
+    result = derive(model, order, compare_exact=False)
     for m in range(order + 1):
         np.testing.assert_allclose(result.orders[m].toarray(), full[m], rtol=0, atol=1e-14)

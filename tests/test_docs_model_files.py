@@ -23,7 +23,7 @@ from lowfold import ModelError, derive, parse_model
 
 DOC = Path(__file__).resolve().parents[1] / "docs" / "model-files.md"
 TEXT = DOC.read_text()
-BLOCKS = re.findall(r"```toml\n(.*?)```", TEXT, flags=re.S)
+BLOCKS = re.findall(r"```toml\n(.*?)```", TEXT, flags=re.DOTALL)
 TABLES = ("lattice", "site", "sector", "term", "perturbation")
 
 
@@ -72,7 +72,7 @@ def test_top_level_tables_are_the_parsers():
         parse_model(data)
     allowed = set(re.search(r"\(allowed: ([^)]*)\)", str(info.value)).group(1).split(", "))
     glance = re.findall(r"^\| `\[{1,2}([a-z]+)\]{1,2}` \|", section("Tables at a glance"),
-                        flags=re.M)
+                        flags=re.MULTILINE)
     assert set(glance) | {"title"} == allowed
 
 
@@ -93,7 +93,7 @@ def test_examples_use_documented_keys(block):
 def test_first_example_gives_the_stated_superexchange():
     model = parse_model(example())
     t, u = model.parameters["t"], model.parameters["U"]
-    result = derive(model, check=False)
+    result = derive(model, compare_exact=False)
     exchange = [c for c in result.couplings if c.kind == "exchange"]
     assert len(exchange) == 1 and exchange[0].sites == (0, 1)
     assert exchange[0].value == pytest.approx(4 * t**2 / u - 16 * t**4 / u**3, rel=1e-9)

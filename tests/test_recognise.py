@@ -12,9 +12,10 @@ Sources:
 from __future__ import annotations
 
 import pytest
+from helpers.derive_models import hubbard
+from helpers.modelfiles import hubbard_text, model_of, term_text
 
 from lowfold.jobs.derive import derive
-from lowfold.model.modelfile import parse_model
 from lowfold.readout.couplings import Coupling
 from lowfold.readout.rationals import recognise_couplings, single_ratio
 from lowfold.readout.spin_form import read_spin_form
@@ -22,17 +23,15 @@ from lowfold.readout.spin_form import read_spin_form
 T, U = 0.1, 8.0
 
 
-def hubbard_dimer(*, t=T, u=U, hopping="t", order=4):
-    """Two-site Hubbard model; ``hopping`` is the hopping strength (a name or a number)."""
-    return parse_model({
-        "lattice": {"shape": "chain", "size": [2]},
-        "site": {"type": "electron"},
-        "sector": {"particles": 2},
-        "parameters": {"t": t, "U": u},
-        "term": [{"type": "hopping", "strength": hopping, "bonds": "nearest"},
-                 {"type": "hubbard", "strength": "U"}],
-        "perturbation": {"unperturbed": ["hubbard"], "order": order},
-    })
+def hubbard_dimer(*, t=T, u=U):
+    """Two-site Hubbard model, H0 = Hubbard U, V = hopping t, to fourth order."""
+    return hubbard("chain", (2,), t=t, U=u, order=4)
+
+
+def two_strengths_in_v():
+    """The dimer with a second perturbation of literal strength: V has no single parameter."""
+    return model_of(hubbard_text("chain", [2], t=T, U=U, order=4,
+                                 terms=term_text("interaction", 0.05, label="repulsion")))
 
 
 def takahashi_exchange(t=T, u=U):
@@ -45,7 +44,7 @@ def test_single_ratio_names_v_then_h0():
 
 
 def test_single_ratio_needs_named_strengths():
-    assert single_ratio(hubbard_dimer(hopping=0.1)) is None
+    assert single_ratio(two_strengths_in_v()) is None
 
 
 def test_recognises_four_and_minus_sixteen():
@@ -67,12 +66,12 @@ def test_a_zero_strength_gives_no_scale(t, u):
 
 
 def test_no_single_ratio_gives_no_scale():
-    assert recognise_couplings(hubbard_dimer(hopping=0.1), [takahashi_exchange()]) == (None, {})
+    assert recognise_couplings(two_strengths_in_v(), [takahashi_exchange()]) == (None, {})
 
 
 def test_derived_fourth_order_dimer_exchange_is_recognised():
     model = hubbard_dimer()
-    result = derive(model, 4, check=False)
+    result = derive(model, 4, compare_exact=False)
     form, reason = read_spin_form(model, result.orders, result.manifold.states)
     assert reason == ""
     exchange = next(c for c in form.couplings if c.kind == "exchange")

@@ -200,7 +200,7 @@ def test_cluster_scan_equals_plain_loop_and_dimer_formula(tmp_path, client):
     assert summary.ok and summary.computed == 6 and summary.skipped == 0
     records = {r["key"]: r for r in load_results(tmp_path / "out")}
     for point in plan_scan(load_scan(scan)):
-        direct = run_task("spectrum", point.model, {"levels": 3})
+        direct = run_task("spectrum", point.model, {"levels": 3}).to_dict()
         stored = records[point.key]["result"]
         assert stored["dimension"] == direct["dimension"]
         np.testing.assert_allclose(stored["energies"], direct["energies"], rtol=0, atol=1e-10)

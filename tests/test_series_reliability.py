@@ -171,7 +171,7 @@ def test_check_divergence_on_the_two_site_derive(tmp_path):
         '[[term]]\ntype = "hopping"\nstrength = "t"\n[[term]]\ntype = "hubbard"\n'
         'strength = "U"\n[perturbation]\nunperturbed = ["hubbard"]\norder = 16\n')
     result = derive(load_model(path), 16)
-    warnings = check_divergence(result.check["by_order"])
+    warnings = check_divergence(result.check.max_abs_error)
     assert len(warnings) == 1 and "stopped converging" in warnings[0]
 
 

@@ -19,32 +19,20 @@ import dataclasses
 import numpy as np
 import pytest
 import scipy.sparse as sp
+from helpers.derive_models import hubbard
+from helpers.modelfiles import exchange, model_of, spin_text
 
 from lowfold.jobs.derive import derive
-from lowfold.model.modelfile import parse_model
 from lowfold.readout.spin_form import SpinForm, read_spin_form, spin_half_map
 
 T, U = 0.1, 8.0
 
 
-def dimer(site: str = "electron", particles: int | None = 2, order: int = 2):
-    """Two-site Hubbard (electron sites) or Heisenberg (spin sites) model as a parsed dict."""
+def dimer(site: str = "electron"):
+    """Two-site Hubbard model (H0 = U, V = t, to second order) or two spins 1/2."""
     if site == "electron":
-        terms = [{"type": "hopping", "strength": "t", "bonds": "nearest"},
-                 {"type": "hubbard", "strength": "U"}]
-        sector = {"particles": particles}
-    else:
-        terms = [{"type": "exchange", "strength": "t", "bonds": "nearest"},
-                 {"type": "field", "strength": "U", "axis": "z", "sites": "all"}]
-        sector = {}
-    return parse_model({
-        "lattice": {"shape": "chain", "size": [2]},
-        "site": {"type": site},
-        "sector": sector,
-        "parameters": {"t": T, "U": U},
-        "term": terms,
-        "perturbation": {"unperturbed": [terms[1]["type"]], "order": order},
-    })
+        return hubbard("chain", (2,), t=T, U=U, order=2)
+    return model_of(spin_text("chain", [2], "open", exchange(1.0)))
 
 
 # ---------------------------------------------------------------------------- spin_half_map
@@ -110,7 +98,7 @@ def test_hand_second_order_reads_as_anderson_superexchange():
 
 def test_derived_second_order_reads_as_anderson_superexchange():
     model = dimer()
-    result = derive(model, 2, check=False)
+    result = derive(model, 2, compare_exact=False)
     form, reason = read_spin_form(model, result.orders, result.manifold.states)
     assert reason == ""
     assert result.manifold.states.tolist() == [3, 6, 9, 12]

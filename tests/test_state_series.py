@@ -106,15 +106,15 @@ def test_tfim_domb_sykes_radius_is_the_critical_coupling(load):
     # point to g_c = 1; from order L on they oscillate (a large fit residual).
     g, n_sites = 0.5, 12
     low = state_series(load(tfim_file(n_sites, g, 10)))
-    ratio = low.ratio
-    assert ratio["variable"] == "lambda^2"
-    assert ratio["side"] == "positive"
-    g_c = g * ratio["radius"]  # radius is in lambda, the factor of the file's V
+    ratio = low.ratio_test
+    assert ratio.variable == "lambda^2"
+    assert ratio.side == "positive"
+    g_c = g * ratio.radius  # radius is in lambda, the factor of the file's V
     assert abs(g_c - 1.0) < 0.08, g_c
-    assert ratio["exponent"] < 0  # a weak (energy-like) singularity, not a pole
-    assert ratio["fit_residual"] < 1e-8
+    assert ratio.exponent < 0  # a weak (energy-like) singularity, not a pole
+    assert ratio.fit_residual < 1e-8
     high = state_series(load(tfim_file(n_sites, g, 20), "high.toml"))
-    assert high.ratio["fit_residual"] > 0.1
+    assert high.ratio_test.fit_residual > 0.1
 
 
 # ---------------------------------------------------------------------------------------
@@ -181,7 +181,7 @@ def test_second_order_equals_dense_sum_over_states(load):
         assert c["contribution"] == pytest.approx(-t**2 / gap, abs=1e-14)
     assert sum(c["contribution"] for c in contributions) == pytest.approx(e2, abs=1e-14)
     first = result.first_order
-    assert sorted(abs(f["amplitude"]) for f in first) == pytest.approx([t / gap] * 6)
+    assert sorted(abs(f.amplitude) for f in first) == pytest.approx([t / gap] * 6)
     assert result.validity_ratio == pytest.approx(t / gap)
 
 

@@ -13,7 +13,7 @@ import pytest
 from helpers.exact import heisenberg, spin_z_total
 from helpers.series_models import ZEEMAN_CHAIN, offset_dimer_file, one_spin_file, singlet_block
 from lowfold import ModelError, state_series
-from lowfold.jobs.state_series import parse_sweep
+from lowfold.cli.app import parse_sweep
 
 # ---------------------------------------------------------------------------------------
 # sweeps: avoided and true crossings

@@ -14,7 +14,6 @@ from lowfold.model.terms import Term
 from lowfold.model.model import Model, PerturbationSpec
 from lowfold.model.modelfile import load_model, parse_model
 from lowfold.build.hamiltonian import Hamiltonian, build_basis, hamiltonian_matrix, hamiltonian_operator
-from lowfold.solve.exact import SpectrumResult, spectrum
 from lowfold.perturbation.schrieffer_wolff import (effective_hamiltonian_orders,
                                             exact_effective_hamiltonian)
 from lowfold.perturbation.series import SeriesResult, rayleigh_schrodinger, rayleigh_schrodinger_general
@@ -22,9 +21,14 @@ from lowfold.perturbation.convergence import pade_estimate, pade_table, partial_
 from lowfold.readout.couplings import Coupling, spin_couplings
 from lowfold.readout.pauli import pauli_coefficients
 from lowfold.readout.rationals import recognise_rational
-from lowfold.jobs.derive import EffectiveModel, derive
-from lowfold.jobs.state_series import StateSeries, state_series
+from lowfold.results import (DeriveCheck, EffectiveModel, ManifoldDiagnostics, ManifoldSummary,
+                             PauliTerm, PowerFit, Recognised, Spectrum, StateSeries, Sweep)
+from lowfold.jobs.spectrum import spectrum
+from lowfold.jobs.derive import derive
+from lowfold.jobs.series import state_series
 from lowfold.jobs.tasks import run_task
+
+SpectrumResult = Spectrum     # the name before the results layer; kept for scripts
 
 __all__ = [
     "__version__",
@@ -39,4 +43,6 @@ __all__ = [
     "partial_sums", "pade_table", "pade_estimate", "ratio_test",
     "Coupling", "pauli_coefficients", "spin_couplings", "recognise_rational",
     "EffectiveModel", "derive", "StateSeries", "state_series", "run_task",
+    "Spectrum", "Sweep", "DeriveCheck", "PowerFit", "PauliTerm", "Recognised",
+    "ManifoldSummary", "ManifoldDiagnostics",
 ]

@@ -23,9 +23,9 @@ def hubbard(shape: str, size: tuple, boundary: str = "open", t: float = 0.1, U: 
 
 
 @cache
-def hubbard_result(shape, size, order, t=0.1, U=1.0, check=True):
+def hubbard_result(shape, size, order, t=0.1, U=1.0, compare_exact=True):
     """``derive`` of :func:`hubbard`, cached across the test modules."""
-    return derive(hubbard(shape, size, t=t, U=U, order=order), order, check=check)
+    return derive(hubbard(shape, size, t=t, U=U, order=order), order, compare_exact=compare_exact)
 
 
 def anderson_text(eps_d: float, U: float, V: float) -> str:

@@ -1,4 +1,6 @@
-"""The ``lowfold`` command.
+"""The ``lowfold`` command: the typer app (commands, option parsing, error wording).
+
+The rendering of result objects lives in :mod:`lowfold.cli.render`.
 
 Every user error (a :class:`~lowfold.errors.LowfoldError`) becomes one line on stderr and
 exit status 2.  ``--json`` prints exactly one JSON object on stdout; progress goes to stderr
@@ -14,16 +16,14 @@ from importlib import resources
 from pathlib import Path
 from typing import Optional
 
-import numpy as np
 import typer
 from rich.console import Console
-from rich.table import Table
 
 from lowfold import __version__
 from lowfold.errors import LowfoldError, ModelError
 from lowfold.model.modelfile import load_model
-from lowfold.jobs.state_series import parse_sweep
-from lowfold.jobs.tasks import run_task
+from lowfold.cli import render
+from lowfold.jobs.tasks import parse_lambda_range, run_task
 
 app = typer.Typer(add_completion=False, no_args_is_help=True, pretty_exceptions_enable=False,
                   help="Effective low-energy models of lattice Hamiltonians, checked against "
@@ -58,6 +58,14 @@ def _emit_json(data: dict) -> None:
     sys.stdout.write(json.dumps(data) + "\n")
 
 
+def parse_sweep(text: str):
+    """``--sweep lambda=START:STOP:COUNT`` -> the coupling factors (errors name the flag)."""
+    try:
+        return parse_lambda_range(text)
+    except ModelError as exc:
+        raise ModelError(f"--sweep: {exc}") from None
+
+
 @app.command()
 def spectrum(model: Path = typer.Argument(..., help="model file (TOML)"),
              levels: int = typer.Option(4, "--levels", "-k", help="number of lowest levels"),
@@ -67,87 +75,8 @@ def spectrum(model: Path = typer.Argument(..., help="model file (TOML)"),
     with _progress(not json_out) as progress:
         result = run_task("spectrum", m, {"levels": levels}, progress=progress)
     if json_out:
-        return _emit_json(result)
-    table = Table(title=f"{m.title}: {result['dimension']:,} states")
-    table.add_column("level", justify="right")
-    table.add_column("energy", justify="right")
-    table.add_column("E - E0", justify="right")
-    e0 = result["energies"][0]
-    for n, e in enumerate(result["energies"]):
-        table.add_row(str(n), f"{e:.12g}", f"{e - e0:.6g}")
-    out.print(table)
-
-
-def _fmt(value) -> str:
-    if isinstance(value, list):
-        flat = np.ravel(np.array(value, dtype=float))
-        return "(" + ", ".join(f"{x:.6g}" for x in flat) + ")"
-    return f"{value:.6g}"
-
-
-def _coupling_rows(result: dict):
-    orders = sorted({int(k) for c in result["couplings"] for k in c["orders"]})
-    rows = []
-    for c in result["couplings"]:
-        sites = ",".join(str(s) for s in c["sites"]) or "-"
-        cells = [_fmt(c["orders"][str(n)]) if str(n) in c["orders"] else "" for n in orders]
-        hint = ""
-        if "recognised" in c:
-            hint = ", ".join(f"{n}: {q}" for n, q in c["recognised"]["coefficients"].items())
-        rows.append((c["kind"], sites, cells, _fmt(c["value"]), hint))
-    return orders, rows
-
-
-def _print_derive(m, result: dict) -> None:
-    man = result["manifold"]
-    gap = "none" if man["gap"] is None else f"{man['gap']:.6g}"
-    out.print(f"[bold]{m.title}[/bold]: manifold of {man['dimension']:,} states at H0 energy "
-              f"{man['energy']:.6g}, gap {gap}, readout {man['readout']}")
-    orders, rows = _coupling_rows(result)
-    if rows:
-        table = Table(title=f"couplings to order {result['order']} (S = sigma/2)")
-        for name in ("kind", "sites", *[f"order {n}" for n in orders], "total"):
-            table.add_column(name, justify="left" if name in ("kind", "sites") else "right")
-        recognised = any(r[4] for r in rows)
-        if recognised:
-            table.add_column("rational (recognised)", justify="left")
-        for kind, sites, cells, total, hint in rows:
-            table.add_row(kind, sites, *cells, total, *([hint] if recognised else []))
-        out.print(table)
-    elif "effective" in result:
-        out.print(f"effective matrix on {len(result['effective']['basis'])} basis states "
-                  "(use --json for its entries)")
-    check = result.get("check")
-    if check:
-        table = Table(title="check against the exact low-lying spectrum")
-        table.add_column("order", justify="right")
-        table.add_column("max |E_eff - E_exact|", justify="right")
-        for n, entry in check["by_order"].items():
-            table.add_row(n, f"{entry['max_abs_error']:.3e}")
-        out.print(table)
-    if result.get("scaling"):
-        powers = ", ".join(f"{n}: {v['power']:.2f}" if v["power"] is not None else f"{n}: -"
-                           for n, v in result["scaling"].items())
-        out.print(f"fitted power of the error per order (must be >= n+1): {powers}")
-    diag = result["diagnostics"]
-    ratio = diag["validity_ratio"]
-    out.print(f"validity ratio |V_PQ|/gap = {ratio:.3g}" if ratio is not None else "validity ratio: -",
-              f", smallest denominator {diag['smallest_denominator']:.6g}"
-              if diag["smallest_denominator"] is not None else "",
-              f" ({' -> '.join(diag['closest_states'])})" if diag["closest_states"] else "", sep="")
-    for warning in result["warnings"]:
-        err.print(f"warning: {warning}", markup=False)
-
-
-def _latex(result: dict) -> str:
-    orders, rows = _coupling_rows(result)
-    head = " & ".join(["kind", "sites", *[f"order {n}" for n in orders], "total"])
-    lines = [r"\begin{tabular}{ll" + "r" * (len(orders) + 1) + "}", r"\hline", head + r" \\", r"\hline"]
-    for kind, sites, cells, total, _ in rows:
-        lines.append(" & ".join([kind, f"${sites}$", *[f"${c}$" if c else "" for c in cells],
-                                 f"${total}$"]) + r" \\")
-    lines += [r"\hline", r"\end{tabular}"]
-    return "\n".join(lines)
+        return _emit_json(result.to_dict())
+    render.print_spectrum(out, m.title, result)
 
 
 @app.command()
@@ -164,55 +93,10 @@ def derive(model: Path = typer.Argument(..., help="model file (TOML) with a [per
     with _progress(not (json_out or latex)) as progress:
         result = run_task("derive", m, options, progress=progress)
     if json_out:
-        return _emit_json(result)
+        return _emit_json(result.to_dict())
     if latex:
-        return print(_latex(result))
-    _print_derive(m, result)
-
-
-def _print_series(m, result: dict, order_shown: int) -> None:
-    diag = result["diagnostics"]
-    out.print(f"[bold]{m.title}[/bold]: series of the state {diag['reference']}")
-    table = Table(title="energy by order")
-    for name in ("order", "E_n", "partial sum", "|error| vs exact"):
-        table.add_column(name, justify="right")
-    errors = diag["error_by_order"] or {}
-    for (n, e), s in zip(result["orders"].items(), diag["partial_sums"]):
-        table.add_row(n, f"{e:.12g}", f"{s:.12g}", f"{errors[n]:.3e}" if n in errors else "")
-    out.print(table)
-    if diag["exact"] is not None:
-        out.print(f"exact eigenvalue (followed from lambda = 0): {diag['exact']:.12g}")
-    if diag["pade"]:
-        p = diag["pade"]
-        spread = f" +- {p['spread']:.2g}" if p["spread"] is not None else ""
-        out.print(f"Pade [{p['approximant'][0]}/{p['approximant'][1]}]: {p['value']:.12g}{spread}")
-    if diag["ratio_test"]:
-        r = diag["ratio_test"]
-        radius = "infinite" if r["radius"] is None else f"{r['radius']:.4g}"
-        out.print(f"radius of convergence (Domb-Sykes, in {r['variable']}): {radius}, "
-                  f"nearest singularity on the {r['side']} axis")
-    if diag["validity_ratio"] is not None:
-        out.print(f"validity ratio |V_mn| / |E_n - E_m|: {diag['validity_ratio']:.3g}")
-    if diag["second_order_contributions"]:
-        table = Table(title="largest second-order contributions")
-        for name in ("intermediate state", "|V_mn|^2", "E_n - E_m", "contribution"):
-            table.add_column(name, justify="right")
-        for c in diag["second_order_contributions"]:
-            table.add_row(c["state"], f"{c['coupling_squared']:.6g}", f"{c['denominator']:.6g}",
-                          f"{c['contribution']:.6g}")
-        out.print(table)
-    sweep = result.get("sweep")
-    if sweep:
-        for c in sweep["avoided_crossings"]:
-            out.print(f"avoided crossing at lambda = {c['lambda']:.4g}: gap {c['gap']:.4g} "
-                      f"(levels {c['levels'][0]}, {c['levels'][1]}, {c['sector']})")
-        for c in sweep["crossings"]:
-            out.print(f"true crossing near lambda = {c['lambda']:.4g} ({c['sectors'][0]} / {c['sectors'][1]})")
-        useful = ", ".join(f"order {n}: {'-' if v is None else f'{v:.3g}'}"
-                           for n, v in sweep["useful_up_to"].items())
-        out.print(f"series within 1% of the smallest denominator up to lambda = {useful}")
-    for warning in result["warnings"]:
-        err.print(f"warning: {warning}", markup=False)
+        return print(render.latex_couplings(result))
+    render.print_derive(out, err, m.title, result)
 
 
 @app.command()
@@ -230,14 +114,19 @@ def series(model: Path = typer.Argument(..., help="model file (TOML) with a [per
     if plot is not None and plot.suffix.lower() not in (".png", ".svg", ".pdf"):
         raise ModelError(f"--plot: use a .png, .svg or .pdf file name, got {plot.name!r}")
     options = {"order": order, "state": state, "sweep": parse_sweep(sweep) if sweep else None}
-    with _progress(not json_out) as progress:
-        result = run_task("series", m, options, progress=progress)
+    try:
+        with _progress(not json_out) as progress:
+            result = run_task("series", m, options, progress=progress)
+    except ModelError as exc:
+        if state is not None and str(exc).startswith("state "):
+            raise ModelError(f"--{exc}") from None
+        raise
     if plot is not None:
         from lowfold.plots.sweep_figure import plot_sweep
-        plot_sweep(result["sweep"], title=m.title, output=plot)
+        plot_sweep(result.sweep.to_dict(), title=m.title, output=plot)
     if json_out:
-        return _emit_json(result)
-    _print_series(m, result, order)
+        return _emit_json(result.to_dict())
+    render.print_series(out, err, m.title, result)
     if plot is not None:
         out.print(f"figure written to {plot}")
 

@@ -1,49 +1,72 @@
-"""The jobs lowfold does, as functions returning JSON-ready dictionaries.
+"""The jobs lowfold does, by name, as functions returning result objects.
 
 The command line, the scans and user scripts all call :func:`run_task`, so a scan point and
-``lowfold TASK MODEL --json`` give the same numbers.
+``lowfold TASK MODEL --json`` give the same numbers (``run_task(...).to_dict()`` is that JSON).
+Task options come from scan files (``[task]`` table) and the command line; their names are
+those of the scan-file format (docs/scans.md): ``levels``; ``order``, ``check``,
+``check_scaling``; ``order``, ``state``, ``sweep`` (an array, or the text
+``"lambda=START:STOP:COUNT"``).
 """
 
 from __future__ import annotations
 
+import re
 from typing import Callable
 
-from lowfold.jobs.derive import derive
+import numpy as np
+
 from lowfold.errors import ModelError
-from lowfold.solve.exact import spectrum
+from lowfold.jobs.derive import derive
+from lowfold.jobs.series import state_series
+from lowfold.jobs.spectrum import spectrum
+from lowfold.jobs.sweep import lambda_grid
 from lowfold.model.model import Model
-from lowfold.jobs.state_series import parse_sweep, state_series
+from lowfold.results import EffectiveModel, Spectrum, StateSeries
 
-__all__ = ["TASKS", "run_task"]
-
-
-def _spectrum_task(model: Model, options: dict, progress) -> dict:
-    levels = int(options.get("levels", 4))
-    return spectrum(model, levels, progress=progress).to_dict()
+__all__ = ["TASKS", "RESULT_TYPES", "run_task", "parse_lambda_range"]
 
 
-def _derive_task(model: Model, options: dict, progress) -> dict:
-    result = derive(model, options.get("order"), check=options.get("check", True),
-                    check_scaling=options.get("check_scaling", False), progress=progress)
-    return result.to_dict()
+def parse_lambda_range(text: str) -> np.ndarray:
+    """``"lambda=0:1:41"`` -> 41 coupling factors from 0 to 1 (``START:STOP:COUNT``)."""
+    match = re.fullmatch(r"\s*lambda\s*=\s*([^:]+):([^:]+):(\d+)\s*", text or "")
+    if not match:
+        raise ModelError("a sweep is written lambda=START:STOP:COUNT (e.g. lambda=0:1:41), "
+                         f"got {text!r}")
+    try:
+        start, stop = float(match.group(1)), float(match.group(2))
+    except ValueError:
+        raise ModelError(f"a sweep's START and STOP must be numbers, got {text!r}") from None
+    return lambda_grid(start, stop, int(match.group(3)))
 
 
-def _series_task(model: Model, options: dict, progress) -> dict:
+def _spectrum_task(model: Model, options: dict, progress) -> Spectrum:
+    return spectrum(model, int(options.get("levels", 4)), progress=progress)
+
+
+def _derive_task(model: Model, options: dict, progress) -> EffectiveModel:
+    return derive(model, options.get("order"), compare_exact=options.get("check", True),
+                  fit_scaling=options.get("check_scaling", False), progress=progress)
+
+
+def _series_task(model: Model, options: dict, progress) -> StateSeries:
     sweep = options.get("sweep")
-    result = state_series(model, options.get("order"), state=options.get("state"),
-                          sweep=parse_sweep(sweep) if isinstance(sweep, str) else sweep,
-                          progress=progress)
-    return result.to_dict()
+    return state_series(model, options.get("order"), state=options.get("state"),
+                        sweep=parse_lambda_range(sweep) if isinstance(sweep, str) else sweep,
+                        progress=progress)
 
 
 TASKS: dict[str, Callable] = {"spectrum": _spectrum_task, "derive": _derive_task,
                               "series": _series_task}
+RESULT_TYPES: dict[str, type] = {"spectrum": Spectrum, "derive": EffectiveModel,
+                                 "series": StateSeries}
 
 
 def run_task(task: str, model: Model, options: dict | None = None, *,
-             progress: Callable[[str], None] | None = None) -> dict:
+             progress: Callable[[str], None] | None = None):
     """Run ``task`` (``"spectrum"``, ``"derive"``, ``"series"``) on ``model``; the result is
-    the dictionary that ``lowfold TASK MODEL --json`` prints."""
+    a :class:`~lowfold.results.Spectrum`, :class:`~lowfold.results.EffectiveModel` or
+    :class:`~lowfold.results.StateSeries` (``RESULT_TYPES[task]``), whose ``to_dict()`` is
+    what ``lowfold TASK MODEL --json`` prints."""
     if task not in TASKS:
         raise ModelError(f"unknown task {task!r} (known: {', '.join(TASKS)})")
     return TASKS[task](model, dict(options or {}), progress)

@@ -30,6 +30,7 @@ import scipy.sparse as sp
 import scipy.sparse.linalg
 
 from lowfold.build.numerics import second_order_product
+from lowfold.perturbation.orders import MAX_SCHRIEFFER_WOLFF_ORDER, validate_order
 from lowfold.errors import LowfoldError, ManifoldError, ModelError
 
 __all__ = [
@@ -88,7 +89,7 @@ def effective_hamiltonian_orders(h0_diag, v, p_index, order, *, gap_tol=1e-9, he
         Indices of the manifold P in the working space; the output follows this order.
         H0 need not be constant on P: each state keeps its own energy in the denominators.
     order : int
-        Highest order n >= 0.
+        Highest order n, 0 .. ``MAX_SCHRIEFFER_WOLFF_ORDER`` (40).
     gap_tol : float, keyword-only
         ManifoldError if some ``|E_a - E_m|`` (a in P, m in Q) is below
         ``gap_tol * max(1, max|H0|)``.
@@ -254,9 +255,7 @@ def _validate(h0_diag, v, p_index, order, herm_tol):
     if np.max(np.abs((vmat - vmat.conj().T).data), initial=0.0) > herm_tol * vmax:
         raise ModelError("v is not Hermitian; pass the full Hermitian matrix, both triangles")
     p_index = _check_indices(p_index, e.size)
-    if isinstance(order, bool) or not isinstance(order, (int, np.integer)) or order < 0:
-        raise ModelError(f"order must be an integer >= 0, got {order!r}")
-    return e, vmat, p_index, int(order)
+    return e, vmat, p_index, validate_order(order, minimum=0, maximum=MAX_SCHRIEFFER_WOLFF_ORDER)
 
 
 def _check_indices(p_index, dim):

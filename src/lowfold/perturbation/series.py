@@ -34,6 +34,7 @@ import scipy.sparse.linalg as spla
 
 from lowfold.build.numerics import rs_state_update as _state_update
 from lowfold.errors import ModelError
+from lowfold.perturbation.orders import MAX_SERIES_ORDER, validate_order
 from lowfold.perturbation.recursion import (
     SeriesResult,
     chain_request,
@@ -91,8 +92,7 @@ def _check_hermitian(apply, n, name):
 
 
 def _check_order_method(order, method):
-    if isinstance(order, bool) or not isinstance(order, (int, np.integer)) or order < 1:
-        raise ModelError(f"order must be an integer >= 1, got {order!r}")
+    validate_order(order, maximum=MAX_SERIES_ORDER)
     if method not in _METHODS:
         raise ModelError(f"method must be one of {_METHODS}, got {method!r}")
 
@@ -186,7 +186,7 @@ def rayleigh_schrodinger(h0, v, reference, order, *, method="wigner", keep_state
     reference : int
         Index of the unperturbed basis state.
     order : int
-        Highest order of the energy, ``>= 1``.
+        Highest order of the energy, 1 .. ``MAX_SERIES_ORDER`` (200).
     method : {"wigner", "direct"}
         Energies by the 2n+1 rule (states up to ``order // 2``) or by ``<psi0|V|psi_{k-1}>``.
     keep_states : bool
@@ -287,7 +287,7 @@ def rayleigh_schrodinger_general(h0, v, psi0, e0, order, *, method="wigner", kee
     e0 : float
         Its eigenvalue.
     order : int
-        Highest order of the energy, ``>= 1``.
+        Highest order of the energy, 1 .. ``MAX_SERIES_ORDER`` (200).
     method : {"wigner", "direct"}
         As in :func:`rayleigh_schrodinger`.
     keep_states : bool

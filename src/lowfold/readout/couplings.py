@@ -32,11 +32,16 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from lowfold.errors import ModelError
-from lowfold.readout.pauli import (AXES, check_n_sites, ops_key, ops_label, parse_pauli_string,
-                                   pauli_ops)
-# Kept importable from here until jobs/derive.py imports them from their own modules.
-from lowfold.readout.pauli import pauli_coefficients_by_order  # noqa: F401
-from lowfold.readout.rationals import recognise_rational  # noqa: F401
+from lowfold.readout.pauli import (
+    AXES,
+    check_n_sites,
+    ops_key,
+    ops_label,
+    parse_pauli_string,
+    pauli_coefficients_by_order,  # noqa: F401 (for jobs/derive.py until it imports from pauli)
+    pauli_ops,
+)
+from lowfold.readout.rationals import recognise_rational  # noqa: F401 (likewise, from rationals)
 
 __all__ = ["Coupling", "spin_couplings"]
 

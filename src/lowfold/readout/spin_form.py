@@ -10,11 +10,12 @@ Conventions
 -----------
 An electron state is the occupation-number integer of :mod:`lowfold.model.sites`: bits
 ``0..N-1`` hold the spin-up slots of sites ``0..N-1`` and bits ``N..2N-1`` the spin-down
-slots (Jordan-Wigner order = slot order), and the state is ``prod_{i up} c+_{i up} prod_{j down} c+_{j down} |0>`` with all up
-operators first (each group in ascending site order).  The spin state ``|s_0 s_1 ...>``
-of one electron per site is ``c+_{0 s_0} c+_{1 s_1} ... |0>`` in site order, so the two
-differ by the sign of the reordering, ``(-1)^#{(i up, j down): j < i}``.  The qubit index
-of an electron state is its spin-down bit pattern (bit k set = site k down).
+slots (Jordan-Wigner order = slot order), and the state is
+``prod_{i up} c+_{i up} prod_{j down} c+_{j down} |0>``, all up operators first, each
+group in ascending site order.  The spin state ``|s_0 s_1 ...>`` of one electron per site
+is ``c+_{0 s_0} c+_{1 s_1} ... |0>`` in site order, so the two differ by the sign of the
+reordering, ``(-1)^#{(i up, j down): j < i}``.  The qubit index of an electron state is its
+spin-down bit pattern (bit k set = site k down).
 """
 
 from __future__ import annotations

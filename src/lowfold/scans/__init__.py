@@ -1,2 +1,4 @@
-"""Scans over parameters and cluster sizes: scan files (``scanfile``), running on Dask
-(``run``), the result store on disk (``store``) and finite-size fits (``extrapolate``)."""
+"""Scans over parameters and cluster sizes: scan files (``scanfile``), the plan of points
+(``plan``), Dask clusters (``cluster``), running and progress (``run``, ``progress``), the
+result store on disk (``store``), selectors and tables of stored points (``select``,
+``table``) and finite-size fits (``extrapolate``)."""

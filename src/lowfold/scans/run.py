@@ -54,7 +54,8 @@ def evaluate_point(task: str, model, options: Mapping[str, Any], compute: Callab
     options : dict
         The task's options.
     compute : callable, optional
-        ``compute(task, model, options) -> dict``; default :func:`lowfold.jobs.tasks.run_task`.
+        ``compute(task, model, options) -> result object`` (with ``to_dict()``); default
+        :func:`lowfold.jobs.tasks.run_task`.
 
     Returns
     -------
@@ -68,7 +69,7 @@ def evaluate_point(task: str, model, options: Mapping[str, Any], compute: Callab
     started, clock = _now(), time.perf_counter()
     result, error = None, None
     try:
-        result = compute(task, model, dict(options))
+        result = compute(task, model, dict(options)).to_dict()
     except LowfoldError as exc:
         error = {"type": type(exc).__name__, "message": str(exc), "deterministic": True}
     seconds = time.perf_counter() - clock
@@ -250,7 +251,7 @@ def run_scan(
     progress : bool, optional
         Show a rich progress bar on stderr (default: only when stderr is a terminal).
     compute : callable, optional
-        ``compute(task, model, options) -> dict`` replacing :func:`lowfold.jobs.tasks.run_task`
+        ``compute(task, model, options) -> result object`` replacing :func:`lowfold.jobs.tasks.run_task`
         (must be importable by the workers).
 
     Returns

@@ -1,0 +1,26 @@
+"""The spectrum job: the lowest energies of a model in its sector, as a result object."""
+
+from __future__ import annotations
+
+from typing import Callable
+
+from lowfold.model.model import Model
+from lowfold.results import Spectrum
+from lowfold.solve import exact
+
+__all__ = ["spectrum"]
+
+
+def spectrum(model: Model, levels: int = 4, *, vectors: bool = False, method: str = "auto",
+             memory_limit: int | None = None,
+             progress: Callable[[str], None] | None = None) -> Spectrum:
+    """The ``levels`` lowest energies of the model in its sector.
+
+    ``method``: ``"auto"`` (dense for small spaces, then Lanczos on a CSR matrix if it fits in
+    memory, else matrix-free Lanczos), ``"csr"``, ``"matrix-free"`` or ``"dense"``.  Raises
+    ``SizeError`` before building anything that would not fit in ``memory_limit`` bytes
+    (default: 80 % of the available memory).  See :func:`lowfold.solve.exact.spectrum`.
+    """
+    found = exact.spectrum(model, levels, vectors=vectors, method=method,
+                           memory_limit=memory_limit, progress=progress)
+    return Spectrum(found.dimension, found.energies, found.vectors, found.method)
