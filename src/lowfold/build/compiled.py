@@ -151,8 +151,10 @@ def _strings(strings) -> np.ndarray:
 
 def _canonical(factors):
     """Sort ``[(slot, SlotOperator), ...]`` by slot (stable), with the sign of reordering
-    fermionic factors, and multiply factors on the same slot.  Returns (sign, factors) or
-    ``(0, ())`` if the product vanishes."""
+    fermionic factors, multiply factors on the same slot, and scale every factor so that
+    its first non-zero amplitude is 1 (so that equal operators written differently, such as
+    ``S+ Sz`` and ``Sz S+``, collect into one string and can cancel).  Returns
+    ``(coefficient, factors)``, or ``(0, ())`` if the product vanishes."""
     items = list(factors)
     sign = 1
     for a in range(1, len(items)):          # insertion sort, counting odd-odd swaps
@@ -171,7 +173,19 @@ def _canonical(factors):
             merged.append((slot, op))
     if any(op.is_zero() for _, op in merged):
         return 0, ()
-    return sign, tuple(merged)
+    coefficient = complex(sign)
+    normalised = []
+    for slot, op in merged:
+        lead = next(a for a in op.amplitudes if a != 0)
+        coefficient *= lead
+        normalised.append((slot, SlotOperator(op.shift, _unit_lead(op.amplitudes, lead),
+                                              op.fermionic)))
+    return coefficient, tuple(normalised)
+
+
+def _unit_lead(amplitudes, lead) -> tuple:
+    """Amplitudes divided by ``lead`` (the lead becomes exactly 1)."""
+    return tuple(complex(a) / lead for a in amplitudes)
 
 
 def _term_strings(model: Model, label: str, products) -> dict:
@@ -186,9 +200,9 @@ def _term_strings(model: Model, label: str, products) -> dict:
             for (name, site_index), (mono_coef, mono_factors) in zip(factors, choice):
                 c *= mono_coef
                 slot_factors += [(site_index + mode * n_sites, op) for mode, op in mono_factors]
-            sign, key = _canonical(slot_factors)
-            if sign:
-                strings[key] = strings.get(key, 0) + sign * c
+            factor, key = _canonical(slot_factors)
+            if factor:
+                strings[key] = strings.get(key, 0) + factor * c
     scale = max((abs(c) for c in strings.values()), default=0.0)
     return {k: c for k, c in strings.items() if abs(c) > 1e-14 * scale}
 

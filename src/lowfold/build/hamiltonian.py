@@ -138,7 +138,8 @@ class Hamiltonian:
         by itself.  ``matrix``: an already built :meth:`to_csr` or :meth:`as_linear_operator`
         (default: the matrix-free operator)."""
         matrix = self.as_linear_operator() if matrix is None else matrix
-        check_model_hermitian(self.model, self.basis, matrix, self.labels)
+        check_model_hermitian(self.model, self.basis, matrix, self.labels,
+                              coefficient_scale=_coefficient_scale(self.operator))
 
 
 def hamiltonian_matrix(model: Model, basis: Basis | None = None, labels=None, *,
@@ -173,16 +174,27 @@ def _what(labels) -> str:
     return "the Hamiltonian" if labels is None else f"the terms {', '.join(labels)}"
 
 
-def check_model_hermitian(model: Model, basis: Basis, matrix, labels=None) -> None:
+def _coefficient_scale(operator) -> float:
+    """The largest coefficient of the compiled strings: the scale of round-off in H, also
+    when the strings cancel (a term that sums to zero is Hermitian, whatever its noise)."""
+    return float(np.abs(operator.coef).max()) if operator.coef.size else 0.0
+
+
+def check_model_hermitian(model: Model, basis: Basis, matrix, labels=None, *,
+                          coefficient_scale: float | None = None) -> None:
     """``check_hermitian`` for a model's operator; on failure, name the first term that is
-    not Hermitian by itself (the usual culprit: a product without ``conjugate = true``)."""
+    not Hermitian by itself (the usual culprit: a product without ``conjugate = true``).
+    ``coefficient_scale``: the largest compiled coefficient (default: compiled here)."""
+    if coefficient_scale is None:
+        coefficient_scale = _coefficient_scale(compile_operator(model, labels))
     try:
-        check_hermitian(matrix, what=_what(labels))
+        check_hermitian(matrix, what=_what(labels), scale=coefficient_scale)
     except ModelError as exc:
         for label in (labels or [t.label for t in model.terms]):
-            alone = operator_linear(compile_operator(model, [label]), basis)
+            alone_operator = compile_operator(model, [label])
+            alone = operator_linear(alone_operator, basis)
             try:
-                check_hermitian(alone)
+                check_hermitian(alone, scale=_coefficient_scale(alone_operator))
             except ModelError:
                 raise ModelError(f"{model.source}: {model.term_key(label)} is not Hermitian; add "
                                  "conjugate = true or its Hermitian partner") from None
@@ -190,17 +202,20 @@ def check_model_hermitian(model: Model, basis: Basis, matrix, labels=None) -> No
 
 
 def check_hermitian(matrix, *, what: str = "the Hamiltonian", rtol: float = 1e-10,
-                    rng: np.random.Generator | None = None) -> None:
+                    scale: float = 0.0, rng: np.random.Generator | None = None) -> None:
     """Raise ``ModelError`` unless ``matrix`` (sparse or LinearOperator) is Hermitian.
 
     Compares ``<u, A v>`` with ``<A u, v>`` for random vectors: exact for small matrices
     (a full comparison), and a random test, wrong with probability zero, for large ones.
+    Differences are measured against the size of the matrix, or ``scale`` (the size of the
+    terms it was summed from) when that is larger: a matrix of pure round-off left by
+    cancelling terms is zero, not "not Hermitian".
     """
     if sp.issparse(matrix) and matrix.shape[0] <= 4000:
         diff = abs(matrix - matrix.conj().T)
         bad = diff.max() if diff.nnz else 0.0
-        scale = abs(matrix).max() if matrix.nnz else 0.0
-        if bad > rtol * max(scale, 1e-300):
+        size = max(abs(matrix).max() if matrix.nnz else 0.0, scale)
+        if bad > rtol * max(size, 1e-300):
             raise ModelError(f"{what} is not Hermitian (largest |H - H^dagger| = {bad:.3g}); "
                              "add conjugate = true to product terms or their Hermitian partners")
         return
@@ -209,7 +224,8 @@ def check_hermitian(matrix, *, what: str = "the Hamiltonian", rtol: float = 1e-1
     v = rng.standard_normal(matrix.shape[0])
     av, au = matrix @ v, matrix @ u
     left, right = np.vdot(u, av), np.vdot(au, v)
-    scale = np.linalg.norm(au) * np.linalg.norm(v) + np.linalg.norm(av) * np.linalg.norm(u)
-    if abs(left - right) > rtol * max(scale, 1e-300):
+    size = (np.linalg.norm(au) * np.linalg.norm(v) + np.linalg.norm(av) * np.linalg.norm(u)
+            + scale * np.linalg.norm(u) * np.linalg.norm(v))
+    if abs(left - right) > rtol * max(size, 1e-300):
         raise ModelError(f"{what} is not Hermitian; add conjugate = true to product terms or "
                          "their Hermitian partners")
