@@ -66,6 +66,9 @@ def derive(model: Model, order: int | None = None, *, compare_exact: bool = True
     EffectiveModel
         ``model`` is the model derived (with the widened sector, if any).
     """
+    if model.lattice.infinite:       # linked-cluster expansion (jobs/lattice.py)
+        from lowfold.jobs.lattice import derive_infinite
+        return derive_infinite(model, order, progress=progress)
     say = progress or (lambda message: None)
     spec = model.perturbation
     if spec is None:
