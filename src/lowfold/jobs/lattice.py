@@ -23,14 +23,16 @@ from lowfold.model.lattice import Lattice, make_lattice
 from lowfold.model.model import Model, PerturbationSpec
 from lowfold.model.sector import Sector
 from lowfold.model.terms import ONE_SITE_TYPES, Term
-from lowfold.perturbation.linked_clusters import ClusterWeights, LatticeSum, lattice_sum
+from lowfold.perturbation.linked_clusters import (ClusterWeights, LatticeSum, add_embedded,
+                                                  canonical_form, connected_edge_sets,
+                                                  lattice_sum)
 from lowfold.perturbation.orders import validate_order
 from lowfold.readout.couplings import spin_couplings
 from lowfold.readout.pauli import parse_pauli_string
 from lowfold.results import CouplingClass, EffectiveModel, ManifoldSummary
 
 __all__ = ["LinkedClusterRun", "derive_infinite", "energy_per_site", "linked_cluster_sum",
-           "check_linked_cluster_model"]
+           "check_linked_cluster_model", "open_cluster_sum", "read_classes"]
 
 TOL = 1e-10   # coefficients at or below this (absolute) are left out of the readout
 MAX_ORDER = 40        # as the derive job
@@ -142,11 +144,24 @@ def linked_cluster_sum(model: Model, order: int, *, energy: bool = False,
     n_basis, ndim = len(lat.unit_cell), len(lat.translations)
     centre = cells // 2
     reference = sum(centre * cells**k for k in range(ndim))
-    colour_of, labels, bond_list, colours = {}, {}, [], []
+    bond_list, colours, labels = _coloured_bonds(model, patch)
+    weights = ClusterWeights(_solver(model, labels, order, energy), order,
+                             even_trees=prune and _even_trees(model))
+    cell_of = np.arange(patch.n_sites) // n_basis
+    total = lattice_sum(patch.n_sites, np.array(bond_list, dtype=np.int64).reshape(-1, 2),
+                        colours, cell_of, reference, n_basis, weights, order)
+    return LinkedClusterRun(total, patch, reference, n_basis, time.perf_counter() - start)
+
+
+def _coloured_bonds(model: Model, cluster: Lattice):
+    """V-bonds of a cluster of the model's shape, each with the colour of its set of terms."""
     on_bond: dict[tuple, list[str]] = {}
-    for term in bonded:
-        for i, j in patch.bonds(term.bonds):
-            on_bond.setdefault((int(i), int(j)), []).append(term.label)
+    for label in model.perturbation_labels:
+        term = model.term(label)
+        if term.bonds is not None:
+            for i, j in cluster.bonds(term.bonds):
+                on_bond.setdefault((int(i), int(j)), []).append(label)
+    colour_of, labels, bond_list, colours = {}, {}, [], []
     for bond, names in sorted(on_bond.items()):
         key = tuple(sorted(names))
         if key not in colour_of:
@@ -154,12 +169,34 @@ def linked_cluster_sum(model: Model, order: int, *, energy: bool = False,
             labels[colour_of[key]] = key
         bond_list.append(bond)
         colours.append(colour_of[key])
+    return bond_list, colours, labels
+
+
+def open_cluster_sum(model: Model, cluster: Lattice, order: int, *, energy: bool = False,
+                     prune: bool = True) -> dict:
+    """Sum of the weights of every connected subcluster of a finite open ``cluster`` of the
+    model's shape, on the cluster's sites (the linked-cluster identity: this equals the
+    effective Hamiltonian of the cluster itself, order by order)."""
+    check_linked_cluster_model(model)
+    bonds, colours, labels = _coloured_bonds(model, cluster)
     weights = ClusterWeights(_solver(model, labels, order, energy), order,
                              even_trees=prune and _even_trees(model))
-    cell_of = np.arange(patch.n_sites) // n_basis
-    total = lattice_sum(patch.n_sites, np.array(bond_list, dtype=np.int64).reshape(-1, 2),
-                        colours, cell_of, reference, n_basis, weights, order)
-    return LinkedClusterRun(total, patch, reference, n_basis, time.perf_counter() - start)
+    at: dict[int, list[int]] = {}
+    for k, (i, j) in enumerate(bonds):
+        at.setdefault(i, []).append(k)
+        at.setdefault(j, []).append(k)
+    adjacent = [sorted({f for s in bonds[k] for f in at[s] if f != k}) for k in range(len(bonds))]
+    sets = connected_edge_sets(adjacent, range(len(bonds)), min(order, len(bonds)))
+    total: dict = {}
+    clusters = [((s,), ()) for s in range(cluster.n_sites)]
+    clusters += [(tuple(sorted({s for n in es for s in bonds[n]})),
+                  tuple((*bonds[n], colours[n]) for n in es)) for es in sets]
+    for sites, edges in clusters:
+        index = {s: k for k, s in enumerate(sites)}
+        canon, label = canonical_form(len(sites), [(index[a], index[b], c) for a, b, c in edges])
+        inverse = {label[k]: sites[k] for k in range(len(sites))}
+        add_embedded(total, weights.weight(canon), inverse)
+    return total
 
 
 def _cell_reach(patch: Lattice, bond_class: str) -> int:

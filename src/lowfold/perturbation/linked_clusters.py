@@ -35,7 +35,7 @@ import igraph
 import numpy as np
 
 __all__ = ["ClusterGraph", "LatticeSum", "canonical_form", "connected_edge_sets",
-           "ClusterWeights", "lattice_sum"]
+           "ClusterWeights", "lattice_sum", "add_embedded"]
 
 ClusterGraph = tuple[int, tuple[tuple[int, int, int], ...]]
 Operator = dict[tuple, np.ndarray]
@@ -125,7 +125,7 @@ def _local(sites, edges) -> tuple[int, list]:
     return len(sites), [(index[a], index[b], c) for a, b, c in edges]
 
 
-def _add(target: Operator, source: Operator, site_of, scale: float = 1.0) -> None:
+def add_embedded(target: Operator, source: Operator, site_of, scale: float = 1.0) -> None:
     """``target += scale * source`` with the sites of ``source`` renamed by ``site_of``."""
     for key, values in source.items():
         new = tuple(sorted((site_of[s], p) for s, p in key))
@@ -177,7 +177,7 @@ class ClusterWeights:
         for sites, edges in _subgraphs(graph):
             canon, label = canonical_form(*_local(sites, edges))
             inverse = {label[k]: sites[k] for k in range(len(sites))}
-            _add(total, self.weight(canon), inverse, -1.0)
+            add_embedded(total, self.weight(canon), inverse, -1.0)
         self._weights[graph] = total
         return total
 
@@ -237,7 +237,7 @@ def lattice_sum(n_sites: int, bonds, colours, cell_of, reference: int, n_basis: 
             weights.pruned += 1
             continue
         inverse = {label[k]: sites[k] for k in range(len(sites))}
-        _add(total, weights.weight(canon), inverse)
+        add_embedded(total, weights.weight(canon), inverse)
     return LatticeSum(_translate(total, cell_of, reference, n_basis), len(clusters),
                       weights.computed)
 
