@@ -21,6 +21,8 @@ from lowfold.perturbation.convergence import pade_estimate, pade_table, partial_
 from lowfold.readout.couplings import Coupling, spin_couplings
 from lowfold.readout.pauli import pauli_coefficients
 from lowfold.readout.rationals import recognise_rational
+from lowfold.readout.formulas import coupling_formula, latex_formula
+from lowfold.readout.classes import class_name
 from lowfold.results import (DeriveCheck, EffectiveModel, ManifoldDiagnostics, ManifoldSummary,
                              PauliTerm, PowerFit, Recognised, Spectrum, StateSeries, Sweep)
 from lowfold.jobs.spectrum import spectrum
@@ -42,6 +44,7 @@ __all__ = [
     "SeriesResult", "rayleigh_schrodinger", "rayleigh_schrodinger_general",
     "partial_sums", "pade_table", "pade_estimate", "ratio_test",
     "Coupling", "pauli_coefficients", "spin_couplings", "recognise_rational",
+    "coupling_formula", "latex_formula", "class_name",
     "EffectiveModel", "derive", "StateSeries", "state_series", "run_task",
     "Spectrum", "Sweep", "DeriveCheck", "PowerFit", "PauliTerm", "Recognised",
     "ManifoldSummary", "ManifoldDiagnostics",
