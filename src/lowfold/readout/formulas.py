@@ -33,7 +33,7 @@ from typing import Mapping
 from lowfold.model.model import Model
 from lowfold.readout.rationals import recognise_rational, single_ratio
 
-__all__ = ["formula_coefficients", "coupling_formula", "latex_formula"]
+__all__ = ["formula_coefficients", "coupling_formula", "latex_formula", "latex_hamiltonian"]
 
 _ZERO = 1e-9             # |c_m| at or below this is an absent order
 _GREEK = frozenset("alpha beta gamma delta epsilon zeta eta theta iota kappa lambda mu nu xi "
@@ -179,3 +179,91 @@ def latex_formula(model: Model, orders: Mapping[int, object]) -> str | None:
     t, u, coefficients = found
     t, u = _latex_symbol(t), _latex_symbol(u)
     return _joined([(c, _latex_term(c, m, t, u)) for m, c in coefficients.items()])
+
+
+# --------------------------------------------------------------------------- the Hamiltonian
+
+_PAIR_SUMS = {"nearest": r"\langle ij \rangle", "next-nearest": r"\langle\langle ij \rangle\rangle",
+              "third": r"\langle\langle\langle ij \rangle\rangle\rangle"}
+_PAIR_INDEX = {"nearest": "1", "next-nearest": "2", "third": "3"}
+_SYMBOL = {"constant": "e_0", "field": r"\mathbf{h}", "exchange": "J", "dm": r"\mathbf{D}",
+           "anisotropy": r"\Gamma", "chirality": r"\chi", "ring": "K", "pauli": "c"}
+_S = {k: rf"\mathbf{{S}}_{k}" for k in "ijkl"}
+
+
+def _where(name: str) -> str:
+    if name in _PAIR_SUMS:
+        return _PAIR_SUMS[name]
+    if name == "4-cycle":
+        return r"\square"
+    if name == "triangle":
+        return r"\triangle"
+    return rf"\text{{{name}}}"
+
+
+def _operator(kind: str, name: str, letters: str | None) -> str:
+    i, j, k, l = (_S[x] for x in "ijkl")
+    if kind == "field":
+        return rf"\sum_i {_SYMBOL['field']} \cdot {i}"
+    body = {
+        "exchange": rf"{i} \cdot {j}",
+        "dm": rf"{_SYMBOL['dm']} \cdot ({i} \times {j})",
+        "anisotropy": r"S^a_i \Gamma_{ab} S^b_j",
+        "chirality": rf"{i} \cdot ({j} \times {k})",
+        "ring": rf"\left[({i} \cdot {j})({k} \cdot {l}) + ({i} \cdot {l})({j} \cdot {k}) "
+                rf"- ({i} \cdot {k})({j} \cdot {l})\right]",
+        "pauli": " ".join(rf"\sigma^{{{x.lower()}}}_{{{n + 1}}}"
+                          for n, x in enumerate((letters or "").split())),
+    }[kind]
+    return rf"\sum_{{{_where(name)}}} {body}"
+
+
+def latex_hamiltonian(model: Model, classes) -> str:
+    """The effective Hamiltonian of coupling classes as LaTeX equations, ready for a paper.
+
+    ``H = N e_0 + J_1 \\sum_{\\langle ij \\rangle} \\mathbf{S}_i \\cdot \\mathbf{S}_j + ...``
+    (``N`` sites, ``e_0`` the constant per site, ``J_1, J_2, J_3`` the nearest, next-nearest
+    and third-neighbour exchange, ``K`` the ring exchange of ``readout.couplings``, ``\\chi``
+    the scalar chirality, vectors and tensors named ``\\mathbf{h}``, ``\\mathbf{D}``,
+    ``\\Gamma``; a second class of the same kind and name gets a prime), then one line per
+    coefficient: its formula (:func:`latex_formula`) when there is one, else its value.
+    Spin operators ``S = sigma/2``; each sum runs over the members of the class once.
+
+    Parameters
+    ----------
+    model : Model
+        The model derived (parameter names of the formulas).
+    classes : sequence of CouplingClass
+        Objects with ``kind``, ``name``, ``orders``, ``value`` and ``operator`` (duck-typed:
+        readout does not import results).
+    """
+    terms, definitions, used = [], [], {}
+    for c in classes:
+        symbol = _SYMBOL.get(c.kind, "c")
+        if c.kind == "exchange":
+            symbol = f"J_{{{_PAIR_INDEX.get(c.name, c.name)}}}" if c.name in _PAIR_INDEX \
+                else rf"J_{{\text{{{c.name}}}}}"
+        primes = used.get(symbol, 0)
+        used[symbol] = primes + 1
+        symbol += "'" * primes
+        formula = latex_formula(model, c.orders) if not isinstance(c.value, list) else None
+        if c.kind == "constant":
+            terms.append(f"N {symbol}")
+        elif c.kind in ("field", "dm", "anisotropy"):
+            terms.append(_operator(c.kind, c.name, c.operator).replace(_SYMBOL[c.kind], symbol))
+        else:
+            terms.append(f"{symbol} {_operator(c.kind, c.name, c.operator)}")
+        value = formula if formula is not None else _latex_value(c.value)
+        definitions.append(f"{symbol} &= {value}")
+    lines = [r"\begin{align}", "H &= " + " \\nonumber\\\\\n  &\\quad + ".join(terms) + r" \\"]
+    lines += [d + r" \\" for d in definitions[:-1]] + definitions[-1:]
+    lines.append(r"\end{align}")
+    return "\n".join(lines)
+
+
+def _latex_value(value) -> str:
+    if isinstance(value, list):
+        rows = [v if isinstance(v, list) else [v] for v in value]
+        body = r" \\ ".join(" & ".join(f"{float(x):.6g}" for x in row) for row in rows)
+        return rf"\begin{{pmatrix}} {body} \end{{pmatrix}}"
+    return f"{float(value):.6g}"
