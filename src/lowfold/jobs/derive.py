@@ -20,6 +20,7 @@ from lowfold.build.basis import explicit_basis
 from lowfold.build.labels import state_labels, twice_sz
 from lowfold.errors import SizeError
 from lowfold.jobs.check import ManifoldBlock, exact_check
+from lowfold.jobs.classes import group_into_classes
 from lowfold.model.model import Model
 from lowfold.perturbation.diagnostics import manifold_diagnostics, merge_diagnostics
 from lowfold.perturbation.manifold import (Manifold, diagonal_energies, find_manifold,
@@ -105,6 +106,7 @@ def derive(model: Model, order: int | None = None, *, compare_exact: bool = True
     warnings += list(diagnostics.warnings)
     labels = state_labels(model, manifold.states) if dim <= 4096 else []
     readout = _read_out(model, manifold.states, orders)
+    classes = group_into_classes(model, readout["couplings"], readout["residual"], warnings=warnings)
     check = scaling = None
     if compare_exact:
         say("exact check")
@@ -118,7 +120,7 @@ def derive(model: Model, order: int | None = None, *, compare_exact: bool = True
     return EffectiveModel(order, summary, tuple(orders), tuple(labels), readout["terms"],
                           readout["couplings"], readout["recognised"], check, scaling,
                           ManifoldDiagnostics.from_diagnostics(diagnostics, label_of),
-                          tuple(warnings), readout["residual"], model)
+                          tuple(warnings), readout["residual"], model, classes)
 
 
 def _whole_manifold(model: Model) -> tuple[Model, list[str]]:
