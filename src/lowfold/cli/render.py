@@ -14,6 +14,7 @@ from rich.console import Console
 from rich.markup import escape
 from rich.table import Table
 
+from lowfold.readout.formulas import latex_hamiltonian
 from lowfold.results import EffectiveModel, Recognised, Spectrum, StateSeries
 from lowfold.results.effective import COUPLING_TOL
 
@@ -119,6 +120,7 @@ def print_derive(out: Console, err: Console, title: str, result: EffectiveModel)
             table.add_row(user_text(kind), sites, *cells, total,
                           *([user_text(formula)] if any(formulas) else []))
         out.print(table)
+        _print_classes(out, result)
     elif not result.spin_form:
         _print_matrices(out, result)
     if result.check is not None:
@@ -139,6 +141,25 @@ def print_derive(out: Console, err: Console, title: str, result: EffectiveModel)
               if diag.smallest_denominator is not None else "",
               f" ({user_text(' -> '.join(diag.closest_states))})" if diag.closest_states else "", sep="")
     _warn(err, result.warnings)
+
+
+def _print_classes(out: Console, result: EffectiveModel) -> None:
+    """The coupling classes of a translation-invariant cluster (none: nothing printed), then
+    their formulas one per line (a formula column would not fit a narrow terminal)."""
+    if not result.classes:
+        return
+    orders = sorted({m for c in result.classes for m in c.orders})
+    table = Table(title="coupling classes (value of one member; members per site)")
+    for name in ("kind", "class", "per site", "value", *[f"order {n}" for n in orders]):
+        table.add_column(name, justify="left" if name in ("kind", "class") else "right", no_wrap=True)
+    for c in result.classes:
+        kind = f"{c.kind} {c.operator}" if c.operator else c.kind
+        table.add_row(kind, c.name, f"{c.multiplicity:.4g}", _fmt(c.value),
+                      *[_fmt(c.orders[n]) if n in c.orders else "" for n in orders])
+    out.print(table)
+    for c in result.classes:
+        if c.formula:
+            out.print(f"{c.kind} {c.name}: {c.formula}", markup=False, soft_wrap=True)
 
 
 MATRIX_LIMIT = 16      # effective matrices up to this dimension are printed entry by entry
@@ -194,7 +215,9 @@ def _print_matrices(out: Console, result: EffectiveModel) -> None:
 
 def latex_couplings(result: EffectiveModel) -> str:
     """The coupling table as a LaTeX ``tabular``, with the recognised rationals as fractions
-    (``\\frac{4 t^{2}}{U} - \\frac{16 t^{4}}{U^{3}}``) in a last column when there are any."""
+    (``\\frac{4 t^{2}}{U} - \\frac{16 t^{4}}{U^{3}}``) in a last column when there are any;
+    with coupling classes, then the effective Hamiltonian in equations
+    (:func:`lowfold.readout.formulas.latex_hamiltonian`)."""
     orders, rows = _coupling_rows(result)
     formulas = [rational_formula(r[4], latex=True) for r in rows]
     extra = ["rational (recognised)"] if any(formulas) else []
@@ -206,6 +229,8 @@ def latex_couplings(result: EffectiveModel) -> str:
         cells += [f"${formula}$" if formula else ""] if extra else []
         lines.append(" & ".join(cells) + r" \\")
     lines += [r"\hline", r"\end{tabular}"]
+    if result.classes:
+        lines += ["", latex_hamiltonian(result.model, result.classes)]
     return "\n".join(lines)
 
 

@@ -150,6 +150,9 @@ def _parse_lattice(table: dict):
     if not isinstance(shape, str):
         raise ModelError("lattice.shape: missing or not a string")
     if shape == "graph":
+        if table.get("boundary") == "infinite":
+            raise ModelError("lattice.boundary: a graph cannot be infinite; use a lattice shape "
+                             "(chain, ladder, square, ...) or open graph bonds")
         for key in ("size", "boundary"):
             if key in table:
                 raise ModelError(f"lattice.{key}: not used with shape = \"graph\" (give sites and bonds)")
@@ -162,6 +165,11 @@ def _parse_lattice(table: dict):
     for key in ("sites", "bonds"):
         if key in table:
             raise ModelError(f"lattice.{key}: only used with shape = \"graph\"")
+    if table.get("boundary") == "infinite":
+        if "size" in table:
+            raise ModelError("lattice.size: not used with boundary = \"infinite\" (leave it out, "
+                             "or give boundary \"open\" or \"periodic\")")
+        return make_lattice(shape, None, "infinite")
     size = table.get("size")
     if isinstance(size, int) and not isinstance(size, bool):
         size = [size]
