@@ -12,7 +12,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from helpers.cli import one_line_error, run, succeeded
+from helpers.cli import one_json_object, one_line_error, run, succeeded
 from helpers.modelfiles import hubbard_text, model_of, spin_text, term_text, write_models
 from lowfold import ModelError, derive, load_model
 from lowfold.jobs.export import export_text, write_export
@@ -88,3 +88,15 @@ def test_cli_export_then_spectrum_on_a_larger_periodic_ring(tmp_path):
     assert '"energies"' in out
     error = one_line_error(run("spectrum", str(exported), "--size", "2,x"))
     assert "--size" in error
+
+
+def test_cli_size_and_boundary_overrides_on_derive(tmp_path):
+    paths = write_models(tmp_path, {"hubbard": hubbard_text("chain", [4], boundary="periodic",
+                                                            t=0.1, U=1.0, order=2)})
+    data = one_json_object(run("derive", str(paths["hubbard"]), "--no-check", "--json",
+                               "--size", "2", "--boundary", "open"))
+    exchange = [c for c in data["couplings"] if c["kind"] == "exchange"]
+    assert [c["sites"] for c in exchange] == [[0, 1]]
+    assert exchange[0]["value"] == pytest.approx(4 * 0.1**2 / 1.0, rel=1e-12)
+    error = one_line_error(run("derive", str(paths["hubbard"]), "--boundary", "twisted"))
+    assert error.startswith("lowfold: error: --boundary")
