@@ -100,3 +100,22 @@ def test_cli_size_and_boundary_overrides_on_derive(tmp_path):
     assert exchange[0]["value"] == pytest.approx(4 * 0.1**2 / 1.0, rel=1e-12)
     error = one_line_error(run("derive", str(paths["hubbard"]), "--boundary", "twisted"))
     assert error.startswith("lowfold: error: --boundary")
+
+
+def test_coupling_classes_become_one_term_each(hubbard_ring):
+    import dataclasses
+
+    from lowfold.results import CouplingClass
+    j1, j2 = 4 * T**2 / U - 16 * T**4 / U**3, 4 * T**4 / U**3
+    classes = (CouplingClass("exchange", "nearest", ((0.0,), (1.0,)), 1, {2: 4 * T**2 / U,
+                                                                         4: -16 * T**4 / U**3}),
+               CouplingClass("exchange", "next-nearest", ((0.0,), (2.0,)), 1, {4: j2}),
+               CouplingClass("pauli", "three in a row", ((0.0,), (1.0,), (2.0,)), 1,
+                             {4: 1e-3}, operator="Z X Z"))
+    with_classes = dataclasses.replace(hubbard_ring, classes=classes)
+    model = model_of(export_text(with_classes))
+    by_label = {t.label: t for t in model.terms}
+    assert by_label["J1"].bonds == "nearest" and by_label["J2"].bonds == "next-nearest"
+    assert by_label["P"].pattern == ((0,), (1,), (2,)) and by_label["P"].operators == ("Z", "X", "Z")
+    assert model.parameters["J1"] == pytest.approx(j1, rel=1e-12)
+    assert len(model.products(["P"])[0][1]) == 6        # translated around the 6-site ring

@@ -68,6 +68,7 @@ def export_text(result) -> str:
     classes = tuple(getattr(result, "classes", ()) or ())
     groups = _class_groups(classes, model.lattice) if classes else _groups(result, model.lattice)
     constant = next((c.value for c in result.couplings if c.kind == "constant"), 0.0)
+    per_site = [c.value for c in classes if c.kind == "constant"]
     parameters, terms = {"E0": float(constant)}, [_term("constant", "E0", {})]
     for kind, name_hint, value, selector in groups:
         name = _unique(_name(kind, name_hint), parameters)
@@ -76,7 +77,10 @@ def export_text(result) -> str:
         terms.append(_term(kind, name, {**extra, **selector}))
     lines = [f"title = {_toml(f'effective model of {model.title} (order {result.order})')}",
              "# written by lowfold derive --export: the couplings summed to order "
-             f"{result.order}", "", _lattice_table(model.lattice),
+             f"{result.order}"]
+    if per_site and not constant:
+        lines.append(f"# constant per site (not written as a term): {_toml(per_site[0])}")
+    lines += ["", _lattice_table(model.lattice),
              "[site]", 'type = "spin"', "spin = 0.5", "", "[parameters]"]
     lines += [f"{name} = {_toml(value)}" for name, value in parameters.items()]
     window = [float(constant) - 1.0, float(constant) + 1.0]
@@ -153,6 +157,8 @@ def _class_groups(classes, lattice):
     out = []
     coords = np.asarray(lattice.coordinates)
     for c in classes:
+        if c.kind == "constant":
+            continue
         value = getattr(c, "value", None)
         if value is None:
             value = sum(np.asarray(v, dtype=float) for v in c.orders.values())
@@ -162,6 +168,8 @@ def _class_groups(classes, lattice):
             selector = {"bonds": name}
         elif name in ("triangle", "4-cycle"):
             selector = {"cycles": 3 if name == "triangle" else 4}
+        elif name == "site":
+            selector = {"sites": "all"}
         else:
             sites = [int(np.argmin(np.linalg.norm(coords - np.asarray(p, float), axis=1)))
                      for p in c.positions]
