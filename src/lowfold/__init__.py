@@ -6,6 +6,7 @@ The public API is re-exported here; everything else is an implementation detail.
 __version__ = "0.1.0"
 
 from lowfold.errors import ConvergenceError, LowfoldError, ManifoldError, ModelError, SizeError
+from lowfold.errors import StoreError
 from lowfold.model.lattice import BOND_CLASSES, SHAPES, Lattice, make_lattice
 from lowfold.model.sites import Site, make_site
 from lowfold.model.sector import Sector
@@ -33,7 +34,7 @@ SpectrumResult = Spectrum     # the name before the results layer; kept for scri
 
 __all__ = [
     "__version__",
-    "LowfoldError", "ModelError", "ManifoldError", "SizeError", "ConvergenceError",
+    "LowfoldError", "ModelError", "ManifoldError", "SizeError", "ConvergenceError", "StoreError",
     "SHAPES", "BOND_CLASSES", "Lattice", "make_lattice",
     "Site", "make_site", "Basis", "Sector", "Term", "Model", "PerturbationSpec",
     "load_model", "parse_model",

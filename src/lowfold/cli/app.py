@@ -191,9 +191,14 @@ def scan(scan_file: Path = typer.Argument(..., metavar="SCAN", help="scan file (
          retry_failed: bool = typer.Option(False, "--retry-failed", help="recompute points stored as errors"),
          json_out: bool = typer.Option(False, "--json", help="print one JSON summary")):
     """Run a parameter / size scan on Dask, storing every finished point as it completes."""
-    from lowfold.scans.run import format_summary, run_scan
-    summary = run_scan(scan_file, out=out, scheduler=scheduler, workers=workers,
-                       retry_failed=retry_failed, progress=False if json_out else None)
+    from lowfold.scans.run import ScanInterrupted, format_summary, run_scan
+    try:
+        summary = run_scan(scan_file, out=out, scheduler=scheduler, workers=workers,
+                           retry_failed=retry_failed, progress=False if json_out else None)
+    except ScanInterrupted as exc:      # typer turns Ctrl-C into a silent exit 130
+        err.print(f"lowfold: interrupted: {exc.stored} of {exc.total} points are stored in "
+                  f"{exc.out}; run the same command again to resume", markup=False, soft_wrap=True)
+        raise typer.Exit(130) from None
     if json_out:
         _emit_json(summary.to_dict())
     else:
@@ -228,6 +233,8 @@ def plot(results: Path = typer.Argument(..., help="results directory of a scan")
                         exact_levels=exact_gap, series=series_dir, levels=levels,
                         variable=variable, degree=degree, power=power, per_site=per_site,
                         title=title)
+    for note in info.get("warnings", []):
+        err.print(f"lowfold: warning: {note}", markup=False, soft_wrap=True)
     if json_out:
         return _emit_json(info)
     print(f"figure written to {output}")
