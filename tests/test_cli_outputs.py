@@ -1,6 +1,6 @@
 """Requests that cannot be met are refused up front, in one line, with exit status 2.
 
-- ``--plot`` / ``--output`` files that cannot be written are refused before any computation
+- ``--plot`` / ``--output`` / ``--export`` files that cannot be written are refused before any computation
   (the sweep used to run to its end and then fail with a traceback).  The order is shown
   with a model the series job itself refuses (a degenerate H0 ground level): the output
   check speaks first.
@@ -41,6 +41,7 @@ def runs(tmp_path_factory):
         "plot-is-directory": ["series", two, "--plot", directory / "taken.png"],
         "sweep-plot-missing-dir": ["series", two, "--sweep", "lambda=0:1:5", "--plot", missing],
         "figure-missing-dir": ["plot", directory, "--kind", "couplings", "--output", missing],
+        "export-missing-dir": ["derive", two, "--export", directory / "missing" / "h.toml"],
         "series-without-plot": ["series", two],
         "levels-beyond-memory": ["spectrum", chain, "--levels", "1000000000"],
         "levels-beyond-dimension": ["spectrum", two, "--levels", "1000000000", "--json"],
@@ -49,7 +50,8 @@ def runs(tmp_path_factory):
 
 @pytest.mark.parametrize("name, flag", [("plot-missing-dir", "--plot"),
                                         ("sweep-plot-missing-dir", "--plot"),
-                                        ("figure-missing-dir", "--output")])
+                                        ("figure-missing-dir", "--output"),
+                                        ("export-missing-dir", "--export")])
 def test_missing_output_directory_is_refused_first(runs, name, flag):
     line = one_line_error(runs[name])
     assert flag in line and "missing" in line and "does not exist" in line
