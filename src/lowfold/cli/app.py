@@ -79,6 +79,17 @@ def spectrum(model: Path = typer.Argument(..., help="model file (TOML)"),
     render.print_spectrum(out, m.title, result)
 
 
+def _parse_check_levels(text: Optional[str]):
+    """``--check-levels all|K`` -> ``"all"``, an int, or None (the default)."""
+    if text is None:
+        return None
+    if text.strip().lower() == "all":
+        return "all"
+    if text.strip().isdigit() and int(text) >= 1:
+        return int(text)
+    raise ModelError(f"--check-levels: give all or a positive whole number, got {text!r}")
+
+
 @app.command()
 def derive(model: Path = typer.Argument(..., help="model file (TOML) with a [perturbation] table"),
            order: Optional[int] = typer.Option(None, "--order", "-n", help="highest order (default: the file's)"),
@@ -86,10 +97,15 @@ def derive(model: Path = typer.Argument(..., help="model file (TOML) with a [per
            latex: bool = typer.Option(False, "--latex", help="print the coupling table as LaTeX"),
            no_check: bool = typer.Option(False, "--no-check", help="skip the exact check"),
            check_scaling: bool = typer.Option(False, "--check-scaling",
-                                              help="fit the power of the error at smaller couplings")):
+                                              help="fit the power of the error at smaller couplings"),
+           check_levels: Optional[str] = typer.Option(None, "--check-levels", metavar="all|K",
+                                                      help="lowest levels of each S^z block the check compares (default 8)")):
     """Effective low-energy model of MODEL, order by order, checked against exact spectra."""
+    levels = _parse_check_levels(check_levels)
     m = load_model(model)
     options = {"order": order, "check": not no_check, "check_scaling": check_scaling}
+    if levels is not None:
+        options["check_levels"] = levels
     with _progress(not (json_out or latex)) as progress:
         result = run_task("derive", m, options, progress=progress)
     if json_out:
@@ -190,7 +206,7 @@ def demo(json_out: bool = typer.Option(False, "--json", help="print one JSON obj
         if not json_out:
             out.print(f"[bold]lowfold demo[/bold]: {file.name} (built-in example)\n")
         derive(file, order=None, json_out=json_out, latex=False, no_check=False,
-               check_scaling=False)
+               check_scaling=False, check_levels=None)
 
 
 def main() -> None:
