@@ -23,7 +23,8 @@ from lowfold.errors import SizeError
 from lowfold.jobs.check import ManifoldBlock, exact_check
 from lowfold.jobs.check_levels import DEFAULT_CHECK_LEVELS, check_levels_value
 from lowfold.model.model import Model
-from lowfold.perturbation.diagnostics import manifold_diagnostics, merge_diagnostics
+from lowfold.perturbation.diagnostics import (check_divergence, manifold_diagnostics,
+                                              merge_diagnostics)
 from lowfold.perturbation.manifold import (Manifold, diagonal_energies, find_manifold,
                                            reachable_states, restricted_operator,
                                            split_operators, state_labels, twice_sz)
@@ -116,6 +117,8 @@ def derive(model: Model, order: int | None = None, *, compare_exact: bool = True
                                               blocks, levels=check_levels,
                                               fit_scaling=fit_scaling, progress=say)
         warnings += skipped
+        if check is not None:
+            warnings += check_divergence(check.max_abs_error)
     gap = diagnostics.gap
     summary = ManifoldSummary(dim, float(manifold.energies.min()),
                               float(gap) if np.isfinite(gap) else None, readout["readout"],
