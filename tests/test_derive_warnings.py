@@ -9,6 +9,7 @@ import numpy as np
 import pytest
 
 from helpers.derive_models import hubbard
+from lowfold.jobs.check_winding import shortest_winding_loop, wrap_around_warnings
 from lowfold.jobs.derive import derive
 from lowfold.perturbation.convergence import VALIDITY_WARNING
 
@@ -50,3 +51,56 @@ def test_validity_ratio_past_the_documented_threshold_warns():
     result = derive(hubbard("chain", (2,), t=t, U=1.0, order=2), 2, compare_exact=False)
     assert result.diagnostics.validity_ratio == pytest.approx(t)
     assert len(validity_warnings(result)) == 1, result.warnings
+
+
+def wrap_warnings(result):
+    return [w for w in result.warnings if "wind around" in w]
+
+
+@pytest.mark.parametrize("shape, size, boundary, loop", [
+    ("chain", (6,), "periodic", 6),          # the ring itself
+    ("chain", (6,), "open", None),
+    ("triangular", (3, 3), "periodic", 3),   # three bonds along a lattice vector
+    ("square", (4, 4), "periodic", 4),
+    ("ladder", (4,), "periodic", 4),
+])
+def test_shortest_winding_loop(shape, size, boundary, loop):
+    # Counted by hand on the cluster's bond graph.
+    assert shortest_winding_loop(hubbard(shape, size, boundary)) == loop
+
+
+def test_triangular_torus_warns_at_order_four():
+    # A 3x3 triangular torus: the order-4 nearest-neighbour exchange includes processes that
+    # wind around the torus (J1 = 4 - 80 t^4/U^3 there, issue report); loops of 3 bonds wind.
+    result = derive(hubbard("triangular", (3, 3), "periodic", order=4), 4, compare_exact=False)
+    assert len(wrap_warnings(result)) == 1
+    assert "from order 3 on" in wrap_warnings(result)[0]
+
+
+def test_six_site_ring_criterion_against_a_longer_ring():
+    # Exchange J_01 of a periodic Hubbard ring at half filling, t/U = 0.1, orders 4 and 6.
+    # Below the shortest winding loop (6 bonds) the 6-site ring must agree with the 8-site
+    # ring, whose loop (8 bonds) is not reached by order 6 either, so both give the infinite
+    # chain's coefficient (4 t^2/U - 16 t^4/U^3 at fourth order: Takahashi, J. Phys. C 10,
+    # 1289 (1977)); at order 6 the 6-site ring receives winding processes and differs.
+    def exchange(length, order):
+        result = derive(hubbard("chain", (length,), "periodic", order=order), order,
+                        compare_exact=False)
+        coupling = [c for c in result.couplings
+                    if c.kind == "exchange" and tuple(c.sites) == (0, 1)][0]
+        return result, coupling.orders
+
+    four, j_six_at_4 = exchange(6, 4)
+    six, j_six = exchange(6, 6)
+    eight, j_eight = exchange(8, 6)
+    t, U = 0.1, 1.0
+    assert j_six_at_4[4] == pytest.approx(-16 * t**4 / U**3, rel=1e-9)
+    assert j_six[4] == pytest.approx(j_eight[4], rel=1e-9)
+    assert abs(j_six[6] - j_eight[6]) > 1e-3 * abs(j_eight[6])
+    assert wrap_warnings(four) == [] and wrap_warnings(eight) == []
+    assert len(wrap_warnings(six)) == 1 and "from order 6 on" in wrap_warnings(six)[0]
+
+
+def test_open_clusters_never_warn():
+    model = hubbard("square", (2, 3), "open")
+    assert wrap_around_warnings(model, 40) == []

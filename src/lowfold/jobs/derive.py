@@ -22,6 +22,7 @@ from lowfold.build.hamiltonian import kernel_threads
 from lowfold.errors import SizeError
 from lowfold.jobs.check import ManifoldBlock, exact_check
 from lowfold.jobs.check_levels import DEFAULT_CHECK_LEVELS, check_levels_value
+from lowfold.jobs.check_winding import wrap_around_warnings
 from lowfold.model.model import Model
 from lowfold.perturbation.diagnostics import (check_divergence, manifold_diagnostics,
                                               merge_diagnostics)
@@ -119,6 +120,7 @@ def derive(model: Model, order: int | None = None, *, compare_exact: bool = True
         warnings += skipped
         if check is not None:
             warnings += check_divergence(check.max_abs_error)
+    warnings += wrap_around_warnings(model, order)
     gap = diagnostics.gap
     summary = ManifoldSummary(dim, float(manifold.energies.min()),
                               float(gap) if np.isfinite(gap) else None, readout["readout"],
