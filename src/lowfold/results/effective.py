@@ -183,13 +183,11 @@ class DeriveCheck:
                 "(all in blocks with fewer), the ground state among them")
 
     def to_dict(self) -> dict:
-        by_order = {}
-        for m, e in self.max_abs_error.items():
-            entry = {"max_abs_error": float(e)}
-            if m in self.ground_state_error:
-                entry["ground_state_error"] = float(self.ground_state_error[m])
-            by_order[str(m)] = entry
-        return {"exact": [float(e) for e in self.exact], "by_order": by_order,
+        return {"exact": [float(e) for e in self.exact],
+                "by_order": {str(m): {"max_abs_error": float(e)}
+                             for m, e in self.max_abs_error.items()},
+                "ground_state_error": {str(m): float(e)
+                                       for m, e in self.ground_state_error.items()},
                 "levels": {"requested": self.requested,
                            "blocks": [b.to_dict() for b in self.blocks]}}
 
@@ -201,8 +199,8 @@ class DeriveCheck:
                    {m: float(v["max_abs_error"]) for m, v in by_order.items()},
                    levels.get("requested", "all"),
                    tuple(CheckedBlock.from_dict(b) for b in levels.get("blocks", ())),
-                   {m: float(v["ground_state_error"]) for m, v in by_order.items()
-                    if "ground_state_error" in v})
+                   {m: float(v) for m, v in
+                    orders_from_json(data.get("ground_state_error") or {}).items()})
 
 
 @dataclass(frozen=True)
