@@ -145,6 +145,17 @@ def spectrum(model: Path = typer.Argument(..., metavar="MODEL", help="model file
     render.print_spectrum(out, m.title, result)
 
 
+def _parse_check_levels(text: Optional[str]):
+    """``--check-levels all|K`` -> ``"all"``, an int, or None (the default)."""
+    if text is None:
+        return None
+    if text.strip().lower() == "all":
+        return "all"
+    if text.strip().isdigit() and int(text) >= 1:
+        return int(text)
+    raise ModelError(f"--check-levels: give all or a positive whole number, got {text!r}")
+
+
 @app.command()
 def derive(model: Path = typer.Argument(..., metavar="MODEL",
                                          help="model file (TOML) with a [perturbation] table"),
@@ -154,15 +165,20 @@ def derive(model: Path = typer.Argument(..., metavar="MODEL",
            no_check: bool = typer.Option(False, "--no-check", help="skip the exact check"),
            check_scaling: bool = typer.Option(False, "--check-scaling",
                                               help="fit the power of the error at smaller couplings"),
+           check_levels: Optional[str] = typer.Option(None, "--check-levels", metavar="all|K",
+                                                      help="lowest levels of each S^z block the check compares (default 8)"),
            export: Optional[Path] = typer.Option(None, "--export",
                                                  help="write the effective spin model as a model file"),
            size: Optional[str] = typer.Option(None, "--size", help=_SIZE_HELP),
            boundary: Optional[str] = typer.Option(None, "--boundary", help=_BOUNDARY_HELP)):
     """Effective low-energy model of MODEL, order by order, checked against exact spectra."""
+    levels = _parse_check_levels(check_levels)
     m = _sized(model, size, boundary)
     if export is not None:
         check_writable(export, "--export")
     options = {"order": order, "check": not no_check, "check_scaling": check_scaling}
+    if levels is not None:
+        options["check_levels"] = levels
     with _progress(not (json_out or latex)) as progress:
         result = run_task("derive", m, options, progress=progress)
     if export is not None:
@@ -288,7 +304,7 @@ def demo(json_out: bool = typer.Option(False, "--json", help="print one JSON obj
             out.print(f"[bold]lowfold demo[/bold]: {render.user_text(file.name)} "
                       "(built-in example)\n")
         derive(file, order=None, json_out=json_out, latex=False, no_check=False,
-               check_scaling=False, export=None, size=None, boundary=None)
+               check_scaling=False, check_levels=None, export=None, size=None, boundary=None)
 
 
 def main() -> None:

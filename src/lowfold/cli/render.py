@@ -130,6 +130,7 @@ def print_derive(out: Console, err: Console, title: str, result: EffectiveModel)
         for n, error in result.check.max_abs_error.items():
             table.add_row(str(n), f"{error:.3e}")
         out.print(table)
+        out.print(f"check: {result.check.describe()}", markup=False)
     if result.scaling:
         powers = ", ".join(f"{n}: {fit.power:.2f}" if fit.power is not None else f"{n}: -"
                            for n, fit in result.scaling.items())
