@@ -72,6 +72,9 @@ def spectrum(model: Path = typer.Argument(..., help="model file (TOML)"),
              json_out: bool = typer.Option(False, "--json", help="print one JSON object")):
     """The lowest energies of MODEL in its sector (Lanczos, or dense for small spaces)."""
     m = load_model(model)
+    if m.lattice.infinite:
+        raise ModelError("the lattice is infinite: an exact spectrum needs a finite cluster; "
+                         "give --size N[,M] or a size in [lattice]")
     with _progress(not json_out) as progress:
         result = run_task("spectrum", m, {"levels": levels}, progress=progress)
     if json_out:
