@@ -43,7 +43,7 @@ def test_square_lattice_order_4_macdonald_girvin_yoshioka(square):
     # members per site: 2 bonds, 2 diagonals, 2 straight pairs at distance 2, 1 plaquette
     assert [c.multiplicity for c in (j1, j2, j3, ring)] == [2, 2, 2, 1]
     assert j1.formula == "4 t^2/U - 24 t^4/U^3"
-    assert (j2.formula, j3.formula, ring.formula) == ("4 t^4/U^3",) * 3
+    assert (j2.formula, j3.formula, ring.formula) == ("4 t^4/U^3", "4 t^4/U^3", "80 t^4/U^3")
     # four-site content is read as ring exchange on the plaquette, nothing is left as strings
     assert not [c for c in square.classes if c.kind == "pauli"]
     side = sorted(np.linalg.norm(np.subtract(ring.positions[k], ring.positions[k - 1]))
