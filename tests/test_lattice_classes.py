@@ -5,6 +5,9 @@
   J1 = 4t^2/U - 24t^4/U^3 on nearest neighbours, J2 = 4t^4/U^3 on the diagonals, J3 =
   4t^4/U^3 at two lattice spacings, and a ring exchange 80 t^4/U^3 on every plaquette
   (the counting of Takahashi, J. Phys. C 10, 1289 (1977), carried to the square lattice).
+- The same values from ``derive`` on the 3x3 open cluster (exact on the cluster, no linked
+  clusters): every order-4 process of the centre bonds, of the diagonal (0,0)-(1,1), of the
+  pair (1,0)-(1,2) through the centre and of each plaquette fits inside the cluster.
 - Pfeuty, Ann. Phys. 57, 79 (1970): energy per site of the transverse-field Ising chain.
 - The CLI words its own messages (a library error never names a flag).
 """
@@ -49,6 +52,22 @@ def test_square_lattice_order_4_macdonald_girvin_yoshioka(square):
     side = sorted(np.linalg.norm(np.subtract(ring.positions[k], ring.positions[k - 1]))
                   for k in range(4))
     assert side == pytest.approx([1.0] * 4)
+
+
+def test_square_lattice_against_the_open_3x3_cluster(square):
+    model = parse(hubbard_text("square", order=4))
+    cluster = lowfold.make_lattice("square", [3, 3], "open")       # site = x + 3 y
+    finite = lowfold.Model(cluster, model.site, model.terms, lowfold.Sector(particles=9),
+                           model.parameters, model.perturbation)
+    own = {(c.kind, tuple(c.sites)): c.orders for c in
+           lowfold.derive(finite, 4, compare_exact=False).couplings}
+    found = {(c.kind, c.name): c.orders for c in square.classes}
+    for key, name in [(("exchange", (1, 4)), "nearest"), (("exchange", (3, 4)), "nearest"),
+                      (("exchange", (0, 4)), "next-nearest"), (("exchange", (1, 7)), "third"),
+                      (("ring", (0, 1, 4, 3)), "4-cycle")]:
+        want = found[(key[0], name)]
+        for m in range(5):
+            assert own[key].get(m, 0.0) == pytest.approx(want.get(m, 0.0), abs=1e-12), (key, m)
 
 
 def test_chain_classes_have_names_and_formulas():
