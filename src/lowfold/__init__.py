@@ -28,6 +28,7 @@ from lowfold.results import (DeriveCheck, EffectiveModel, ManifoldDiagnostics, M
                              PauliTerm, PowerFit, Recognised, Spectrum, StateSeries, Sweep)
 from lowfold.jobs.spectrum import spectrum
 from lowfold.jobs.derive import derive
+from lowfold.jobs.export import export_text, write_export
 from lowfold.jobs.series import state_series
 from lowfold.jobs.tasks import run_task
 
@@ -46,7 +47,8 @@ __all__ = [
     "partial_sums", "pade_table", "pade_estimate", "ratio_test",
     "Coupling", "pauli_coefficients", "spin_couplings", "recognise_rational",
     "coupling_formula", "latex_formula", "class_name",
-    "EffectiveModel", "derive", "StateSeries", "state_series", "run_task",
+    "EffectiveModel", "derive", "export_text", "write_export", "StateSeries", "state_series",
+    "run_task",
     "Spectrum", "Sweep", "DeriveCheck", "PowerFit", "PauliTerm", "Recognised",
     "ManifoldSummary", "ManifoldDiagnostics",
 ]
