@@ -40,6 +40,7 @@ __all__ = ["LinkedClusterRun", "derive_infinite", "energy_per_site", "linked_clu
 
 TOL = 1e-10   # coefficients at or below this (absolute) are left out of the readout
 MAX_ORDER = 40        # as the derive job
+_SHELL_RANK = {"nearest": 0, "next-nearest": 1, "third": 2}    # classes listed by distance
 
 
 @dataclass(frozen=True)
@@ -273,7 +274,8 @@ def derive_infinite(model: Model, order: int | None = None, *, prune: bool = Tru
 def read_classes(run: LinkedClusterRun, order: int, model: Model | None = None
                  ) -> tuple[CouplingClass, ...]:
     """Coupling classes of a per-cell sum: named couplings per support of sites, members
-    with equal kind, class and values grouped, multiplicity = members per site.
+    with equal kind, class and values grouped, multiplicity = members per site; ordered as
+    ``lowfold.jobs.classes`` orders them (by kind, then sites, then distance and name).
 
     Class names are :func:`lowfold.readout.classes.class_name` of a member's positions on
     the patch; ring exchange and scalar chirality are read on the 4-cycles and triangles of
@@ -318,7 +320,10 @@ def read_classes(run: LinkedClusterRun, order: int, model: Model | None = None
         out.append(CouplingClass(kind, name, tuple(tuple(float(x) for x in coords[s])
                                                    for s in sites),
                                  count, orders, formula, operator))
-    return tuple(out)
+    rank = ["constant", "field", "exchange", "dm", "anisotropy", "chirality", "ring", "pauli"]
+    return tuple(sorted(out, key=lambda c: (rank.index(c.kind) if c.kind in rank else len(rank),
+                                            len(c.positions), _SHELL_RANK.get(c.name, 3),
+                                            c.name, c.operator or "", c.positions)))
 
 
 def formula_model(model: Model) -> Model | None:
