@@ -112,3 +112,20 @@ def test_spectrum_cli_on_infinite_lattice_says_give_size(cli):
     assert proc.returncode == 2
     assert "--size" in proc.stderr and "Traceback" not in proc.stderr
     assert len(proc.stderr.strip().splitlines()) == 1
+
+
+def test_bridge_pruning_changes_nothing():
+    # a triangle with one pendant bond (4 bonds, 1 bridge) is pruned at order 4 by the bridge
+    # rule only; the sum must equal the unpruned one (and both derive on the strip itself)
+    from lowfold.jobs.lattice import open_cluster_sum
+    from lowfold.perturbation.linked_clusters import ClusterWeights
+    weights = ClusterWeights(lambda graph: {}, 4, even_trees=True)
+    assert not weights.can_contribute((4, ((0, 1, 0), (0, 2, 0), (1, 2, 0), (2, 3, 0))))
+    assert weights.can_contribute((4, ((0, 1, 0), (0, 3, 0), (1, 2, 0), (2, 3, 0))))
+    model = parse(hubbard_text("triangular"))
+    cluster = lowfold.make_lattice("triangular", [3, 2], "open")
+    pruned = open_cluster_sum(model, cluster, 4, prune=True)
+    full = open_cluster_sum(model, cluster, 4, prune=False)
+    for key in set(pruned) | set(full):
+        np.testing.assert_allclose(pruned.get(key, 0.0), full.get(key, 0.0), atol=1e-10,
+                                   err_msg=str(key))

@@ -127,7 +127,8 @@ def _solver(model: Model, labels: dict, order: int, energy: bool):
 
 
 def _even_trees(model: Model) -> bool:
-    """Tree pruning holds when every V term moves particles across its bond (hopping) and
+    """Bridge pruning (``ClusterWeights``, ``even_trees``) holds when every V term moves
+    particles across its bond (hopping) and
     the H0 manifold fixes each site's particle number (here: H0 of one-site terms that
     commute with the particle number, whose lowest level is checked non-mixed by derive)."""
     v = [model.term(label) for label in model.perturbation_labels]
