@@ -18,44 +18,15 @@ import pytest
 
 import lowfold
 from helpers.exact import pfeuty_per_site
+from helpers.lattice_models import T, U, hubbard_text, ising_chain_text, parse
 from lowfold.jobs.lattice import energy_per_site, open_cluster_sum
 from lowfold.readout.pauli import parse_pauli_string
 
-T, U = 1.0, 10.0
 
 
 def hubbard(shape="chain", *, boundary="infinite", size=None, order=4, extra=""):
     """Hubbard model with a chemical potential -U/2 in H0 (selects one electron per site)."""
-    lattice = f'shape = "{shape}"\nboundary = "{boundary}"\n' + (f"size = {size}\n" if size else "")
-    text = f"""
-[lattice]
-{lattice}
-[site]
-type = "electron"
-[parameters]
-t = {T}
-U = {U}
-mu = {-U / 2}
-[[term]]
-label = "hop"
-type = "hopping"
-strength = "t"
-bonds = "nearest"
-[[term]]
-label = "U"
-type = "hubbard"
-strength = "U"
-[[term]]
-label = "mu"
-type = "potential"
-strength = "mu"
-{extra}
-[perturbation]
-unperturbed = ["U", "mu"]
-order = {order}
-"""
-    import tomllib
-    return lowfold.parse_model(tomllib.loads(text))
+    return parse(hubbard_text(shape, boundary=boundary, size=size, order=order, extra=extra))
 
 
 def classes_of(result):
@@ -132,29 +103,7 @@ def ising(order):
     the coefficient of order m is that of g^m; axes rotated so that H0 is diagonal).  By
     Kramers-Wannier self-duality its energy per site is the same function of g as that of
     the ordered side -sum s^x s^x - g sum s^z (Pfeuty 1970)."""
-    import tomllib
-    text = f"""
-[lattice]
-shape = "chain"
-boundary = "infinite"
-[site]
-type = "spin"
-[[term]]
-label = "field"
-type = "field"
-axis = "z"
-strength = -2.0
-[[term]]
-label = "zz"
-type = "product"
-operators = ["Sx", "Sx"]
-bonds = "nearest"
-strength = -4.0
-[perturbation]
-unperturbed = ["field"]
-order = {order}
-"""
-    return lowfold.parse_model(tomllib.loads(text))
+    return parse(ising_chain_text(order))
 
 
 def test_transverse_field_ising_energy_per_site_pfeuty():

@@ -138,6 +138,9 @@ def spectrum(model: Path = typer.Argument(..., metavar="MODEL", help="model file
              boundary: Optional[str] = typer.Option(None, "--boundary", help=_BOUNDARY_HELP)):
     """The lowest energies of MODEL in its sector (Lanczos, or dense for small spaces)."""
     m = _sized(model, size, boundary)
+    if m.lattice.infinite:
+        raise ModelError("the lattice is infinite: an exact spectrum needs a finite cluster; "
+                         "give --size N[,M] (or a size in [lattice])")
     with _progress(not json_out) as progress:
         result = run_task("spectrum", m, {"levels": levels}, progress=progress)
     if json_out:

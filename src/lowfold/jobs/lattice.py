@@ -19,7 +19,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from lowfold.errors import ModelError
-from lowfold.model.lattice import Lattice, make_lattice
+from lowfold.model.lattice import Lattice, lattice_cycles, make_lattice
 from lowfold.model.model import Model, PerturbationSpec
 from lowfold.model.sector import Sector
 from lowfold.model.terms import ONE_SITE_TYPES, Term
@@ -27,15 +27,20 @@ from lowfold.perturbation.linked_clusters import (ClusterWeights, LatticeSum, ad
                                                   canonical_form, connected_edge_sets,
                                                   lattice_sum)
 from lowfold.perturbation.orders import validate_order
+from lowfold.readout.classes import class_name, lattice_shells
 from lowfold.readout.couplings import spin_couplings
+from lowfold.readout.formulas import coupling_formula
 from lowfold.readout.pauli import parse_pauli_string
-from lowfold.results import CouplingClass, EffectiveModel, ManifoldSummary
+from lowfold.readout.rationals import single_ratio
+from lowfold.results import CouplingClass, EffectiveModel, ManifoldSummary, StateSeries
 
 __all__ = ["LinkedClusterRun", "derive_infinite", "energy_per_site", "linked_cluster_sum",
-           "check_linked_cluster_model", "open_cluster_sum", "read_classes"]
+           "check_linked_cluster_model", "open_cluster_sum", "read_classes", "formula_model",
+           "series_infinite"]
 
 TOL = 1e-10   # coefficients at or below this (absolute) are left out of the readout
 MAX_ORDER = 40        # as the derive job
+_SHELL_RANK = {"nearest": 0, "next-nearest": 1, "third": 2}    # classes listed by distance
 
 
 @dataclass(frozen=True)
@@ -122,7 +127,8 @@ def _solver(model: Model, labels: dict, order: int, energy: bool):
 
 
 def _even_trees(model: Model) -> bool:
-    """Tree pruning holds when every V term moves particles across its bond (hopping) and
+    """Bridge pruning (``ClusterWeights``, ``even_trees``) holds when every V term moves
+    particles across its bond (hopping) and
     the H0 manifold fixes each site's particle number (here: H0 of one-site terms that
     commute with the particle number, whose lowest level is checked non-mixed by derive)."""
     v = [model.term(label) for label in model.perturbation_labels]
@@ -219,6 +225,36 @@ def energy_per_site(model: Model, order: int | None = None, *, prune: bool = Tru
     return run.total.terms.get((), np.zeros(order + 1)) / run.n_basis
 
 
+def series_infinite(model: Model, order: int | None = None, *, state: str | None = None,
+                    sweep=None, progress=None) -> StateSeries:
+    """The series job on an infinite lattice: the ground-state energy **per site**.
+
+    ``energies[m]`` is the order-``m`` coefficient of :func:`energy_per_site` (their sum is
+    ``energy``); the reference is the product ground state of H0.  There is no exact value,
+    Pade table or ratio test (they belong to a finite cluster; ``first_order_norm`` is 0), and
+    no other state or sweep of the coupling (a :class:`~lowfold.errors.ModelError` if one is
+    asked for).  A warning says that the energies are per site.
+    """
+    if state is not None or sweep is not None:
+        raise ModelError("an infinite lattice gives the series of the ground-state energy per "
+                         "site only: no other state and no sweep of the coupling; give the "
+                         "lattice a size for those")
+    if model.perturbation is None:
+        model.unperturbed_labels
+    order = validate_order(model.perturbation.order if order is None else order,
+                           maximum=MAX_ORDER)
+    if progress:
+        progress(f"linked clusters to order {order} (energy per site)")
+    run = linked_cluster_sum(model, order, energy=True)
+    energies = run.total.terms.get((), np.zeros(order + 1)) / run.n_basis
+    note = (f"infinite lattice: energies are per site (linked-cluster expansion, "
+            f"{run.total.clusters} clusters per unit cell, {run.total.distinct} distinct graphs "
+            "computed); the diagnostics of a finite state (exact value, Pade, ratio test, "
+            "first-order state: norm written as 0) are not computed")
+    return StateSeries(np.asarray(energies, dtype=float), "product ground state of H0", None,
+                       None, None, None, 0.0, warnings=(note,))
+
+
 def derive_infinite(model: Model, order: int | None = None, *, prune: bool = True,
                     progress=None) -> EffectiveModel:
     """The effective spin-1/2 model of an infinite lattice as coupling classes."""
@@ -228,7 +264,7 @@ def derive_infinite(model: Model, order: int | None = None, *, prune: bool = Tru
     if progress:
         progress(f"linked clusters to order {order}")
     run = linked_cluster_sum(model, order, prune=prune)
-    classes = read_classes(run, order)
+    classes = read_classes(run, order, model)
     energy = float(run.total.terms.get((), np.zeros(1))[0]) / run.n_basis
     summary = ManifoldSummary(2, energy, None, "spin-1/2")
     note = (f"infinite lattice: linked-cluster expansion, {run.total.clusters} clusters per "
@@ -236,56 +272,86 @@ def derive_infinite(model: Model, order: int | None = None, *, prune: bool = Tru
     return EffectiveModel(order, summary, warnings=(note,), model=model, classes=classes)
 
 
-def read_classes(run: LinkedClusterRun, order: int) -> tuple[CouplingClass, ...]:
+def read_classes(run: LinkedClusterRun, order: int, model: Model | None = None
+                 ) -> tuple[CouplingClass, ...]:
     """Coupling classes of a per-cell sum: named couplings per support of sites, members
-    with equal kind, class and values grouped, multiplicity = members per site."""
+    with equal kind, class and values grouped, multiplicity = members per site; ordered as
+    ``lowfold.jobs.classes`` orders them (by kind, then sites, then distance and name).
+
+    Class names are :func:`lowfold.readout.classes.class_name` of a member's positions on
+    the patch; ring exchange and scalar chirality are read on the 4-cycles and triangles of
+    the patch's nearest-neighbour graph (:func:`lowfold.model.lattice.lattice_cycles`), the
+    cycles of the infinite lattice.  With ``model``, each class gets its formula
+    (:func:`formula_model`, :func:`lowfold.readout.formulas.coupling_formula`).
+    """
     by_support: dict[tuple, dict] = {}
     for key, values in run.total.terms.items():
         if np.max(np.abs(values)) > TOL:
             by_support.setdefault(tuple(s for s, _ in key), {})[key] = values
     coords = run.patch.coordinates
+    shells = lattice_shells(run.patch)
+    rings, triangles = lattice_cycles(run.patch)
+    cycles = {frozenset(c): c for c in (*rings, *triangles)}
     groups: dict[tuple, list] = {}
     for support, terms in sorted(by_support.items()):
         local = {s: k for k, s in enumerate(support)}
         table = {" ".join(f"{p}{local[s]}" for s, p in key) or "I": list(values)
                  for key, values in terms.items()}
+        cycle = cycles.get(frozenset(support))
+        mine = [tuple(local[s] for s in cycle)] if cycle else []
         found, residual = spin_couplings(table, len(support), orders=list(range(order + 1)),
-                                         tol=TOL, ring_cycles=[], triangles=[])
+                                         tol=TOL, ring_cycles=[c for c in mine if len(c) == 4],
+                                         triangles=[c for c in mine if len(c) == 3])
         for c in found:
             sites = [support[k] for k in c.sites] if c.kind != "constant" else []
-            _member(groups, run, c.kind, sites, c.orders, None, coords)
+            _member(groups, c.kind, sites, c.orders, None, coords, run.patch, shells)
         for text, values in residual.items():
             ops = parse_pauli_string(text)
-            _member(groups, run, "pauli", [support[k] for k, _ in ops],
-                    dict(enumerate(values)), " ".join(p for _, p in ops), coords)
+            _member(groups, "pauli", [support[k] for k, _ in ops], dict(enumerate(values)),
+                    " ".join(p for _, p in ops), coords, run.patch, shells)
+    scales = formula_model(model) if model is not None else None
     out = []
     for (kind, name, operator, _), members in groups.items():
         sites, orders = members[0]
         count = 1.0 if kind == "constant" else len(members) / run.n_basis
         if kind == "constant":
             orders = {m: v / run.n_basis for m, v in orders.items()}
-        out.append(CouplingClass(kind, name, tuple(tuple(float(x) for x in coords[s]) for s in sites),
-                                 count, {m: v for m, v in orders.items()
-                                         if np.max(np.abs(v)) > TOL}, None, operator))
-    return tuple(out)
+        orders = {m: v for m, v in orders.items() if np.max(np.abs(v)) > TOL}
+        formula = coupling_formula(scales, orders) if scales is not None and orders else None
+        out.append(CouplingClass(kind, name, tuple(tuple(float(x) for x in coords[s])
+                                                   for s in sites),
+                                 count, orders, formula, operator))
+    rank = ["constant", "field", "exchange", "dm", "anisotropy", "chirality", "ring", "pauli"]
+    return tuple(sorted(out, key=lambda c: (rank.index(c.kind) if c.kind in rank else len(rank),
+                                            len(c.positions), _SHELL_RANK.get(c.name, 3),
+                                            c.name, c.operator or "", c.positions)))
 
 
-def _member(groups, run, kind, sites, orders, operator, coords) -> None:
-    name = _class_name(run.patch, sites, coords)
+def formula_model(model: Model) -> Model | None:
+    """The model whose two named scales the formulas use (``None``: no formula).
+
+    The model itself when V and H0 each have one named strength
+    (:func:`lowfold.readout.rationals.single_ratio`).  On an infinite lattice H0 usually
+    also holds a one-site potential that selects the filling (``mu = -U/2``): then, when V
+    has one named strength and every H0 term a named strength, H0's scale is the parameter
+    of largest magnitude and the others enter at their values (a formula is written only
+    when every order is a rational multiple of ``t^m/U^(m-1)`` at those values; for hopping
+    the potential cancels from every energy denominator, as the particle number is kept).
+    """
+    if model.perturbation is None or single_ratio(model) is not None:
+        return model
+    v = {model.term(label).strength for label in model.perturbation_labels}
+    h0 = {model.term(label).strength for label in model.unperturbed_labels}
+    if len(v) != 1 or not all(isinstance(s, str) for s in v | h0):
+        return None
+    large = max(sorted(h0), key=lambda name: abs(float(model.parameters[name])))
+    terms = tuple(replace(t, strength=large) if t.label in model.unperturbed_labels else t
+                  for t in model.terms)
+    return replace(model, terms=terms)
+
+
+def _member(groups, kind, sites, orders, operator, coords, patch, shells) -> None:
+    name = class_name(patch, [coords[s] for s in sites], shells=shells)
     rounded = tuple(tuple(np.round(np.ravel(np.asarray(v, dtype=float)), 9).tolist())
                     for _, v in sorted(orders.items()))
     groups.setdefault((kind, name, operator, rounded), []).append((sites, dict(orders)))
-
-
-def _class_name(patch: Lattice, sites, coords) -> str:
-    if len(sites) == 0:
-        return "site"
-    if len(sites) == 1:
-        return "site"
-    if len(sites) == 2:
-        i, j = sorted(sites)
-        for name in ("nearest", "next-nearest", "third"):
-            if any(a == i and b == j for a, b in patch.bonds(name)):
-                return name
-        return f"distance {np.linalg.norm(coords[i] - coords[j]):.4g}"
-    return f"{len(sites)}-site"

@@ -74,6 +74,9 @@ def state_series(model: Model, order: int | None = None, *, state: str | None = 
     sweep : array, optional
         Coupling factors lambda at which to follow the lowest exact levels.
     """
+    if model.lattice.infinite:       # energy per site by linked clusters (jobs/lattice.py)
+        from lowfold.jobs.lattice import series_infinite
+        return series_infinite(model, order, state=state, sweep=sweep, progress=progress)
     say = progress or (lambda message: None)
     spec = model.perturbation
     if spec is None:

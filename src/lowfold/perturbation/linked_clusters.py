@@ -93,6 +93,12 @@ def _is_tree(graph: ClusterGraph) -> bool:
     return len(edges) == n - 1
 
 
+def _bridges(graph: ClusterGraph) -> int:
+    """Number of bonds whose removal disconnects the cluster (bonds on no cycle)."""
+    n, edges = graph
+    return len(igraph.Graph(n=n, edges=[(a, b) for a, b, _ in edges]).bridges()) if edges else 0
+
+
 def _subgraphs(graph: ClusterGraph):
     """Connected proper subclusters of a cluster: single sites and connected edge subsets,
     each as ``(sites, edges)`` on the cluster's labels."""
@@ -146,15 +152,18 @@ class ClusterWeights:
     order : int
         Highest order: clusters with more bonds have zero weight.
     even_trees : bool
-        Prune trees with ``2 * bonds > order`` (valid when every V term moves a particle
-        across its bond and every site's manifold fixes its particle number: a closed
-        process crosses each bond of a tree an even number of times).
+        Prune clusters with ``bonds + bridges > order`` (valid when every V term moves a
+        particle across its bond and every site's manifold fixes its particle number: a
+        process of a cluster's weight uses every bond, and it crosses a bridge, a bond on no
+        cycle, an even number of times, as the particle numbers on either side of it return;
+        for a tree, ``2 * bonds > order``).
     """
 
     def __init__(self, solve: Callable[[ClusterGraph], Operator], order: int, *,
                  even_trees: bool = False):
         self._solve, self._order, self._even_trees = solve, order, even_trees
         self._weights: dict[ClusterGraph, Operator] = {}
+        self._contributes: dict[ClusterGraph, bool] = {}
         self.computed = 0          # graphs whose effective Hamiltonian was computed
         self.pruned = 0            # graphs skipped by a pruning rule
 
@@ -162,7 +171,12 @@ class ClusterWeights:
         bonds = len(graph[1])
         if bonds > self._order:
             return False
-        return not (self._even_trees and _is_tree(graph) and 2 * bonds > self._order)
+        if not self._even_trees:
+            return True
+        if graph not in self._contributes:
+            bridges = bonds if _is_tree(graph) else _bridges(graph)
+            self._contributes[graph] = bonds + bridges <= self._order
+        return self._contributes[graph]
 
     def weight(self, graph: ClusterGraph) -> Operator:
         """The weight of a canonical cluster (memoised)."""
