@@ -10,7 +10,8 @@ from __future__ import annotations
 
 import pytest
 
-from lowfold.model.lattice import lattice_cycles, make_lattice
+from lowfold.model.cycles import lattice_cycles
+from lowfold.model.lattice import make_lattice
 
 
 def test_open_2x2_square_has_one_plaquette():

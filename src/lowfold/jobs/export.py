@@ -30,7 +30,8 @@ from pathlib import Path
 import numpy as np
 
 from lowfold.errors import ModelError
-from lowfold.model.lattice import BOND_CLASSES, lattice_cycles
+from lowfold.model.cycles import lattice_cycles
+from lowfold.model.lattice import BOND_CLASSES
 from lowfold.model.patterns import pattern_of
 from lowfold.readout.pauli import parse_pauli_string
 

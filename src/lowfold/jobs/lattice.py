@@ -19,7 +19,8 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from lowfold.errors import ModelError
-from lowfold.model.lattice import Lattice, lattice_cycles, make_lattice
+from lowfold.model.cycles import lattice_cycles
+from lowfold.model.lattice import Lattice, make_lattice
 from lowfold.model.model import Model, PerturbationSpec
 from lowfold.model.sector import Sector
 from lowfold.model.terms import ONE_SITE_TYPES, Term

@@ -80,7 +80,7 @@ from scipy.sparse.csgraph import shortest_path
 
 from lowfold.errors import ModelError, SizeError
 
-__all__ = ["SHAPES", "BOND_CLASSES", "MAX_SITES", "Lattice", "lattice_cycles", "make_lattice",
+__all__ = ["SHAPES", "BOND_CLASSES", "MAX_SITES", "Lattice", "make_lattice",
            "period_vectors"]
 
 SHAPES = ("chain", "ladder", "square", "triangular", "honeycomb", "kagome", "cubic", "graph")
@@ -442,31 +442,3 @@ def _frozen(shape, size, boundary, coords, by_class):
         arr.setflags(write=False)
     return Lattice(shape=shape, size=size, boundary=boundary, coordinates=coords,
                    bonds_by_class=MappingProxyType(by_class))
-
-
-def lattice_cycles(lattice) -> tuple[list[tuple], list[tuple]]:
-    """The 4-cycles (cyclic order) and triangles of the nearest-neighbour bond graph: where
-    ring exchange and scalar chirality are read out.
-
-    Returns
-    -------
-    rings : list of 4-tuples
-        Each 4-cycle once, as the smallest of its rotations and reflections, sorted.
-    triangles : list of 3-tuples
-        Each triangle once, sites ascending, sorted.
-    """
-    neighbours = {i: set() for i in range(lattice.n_sites)}
-    for i, j in lattice.bonds("nearest"):
-        neighbours[int(i)].add(int(j))
-        neighbours[int(j)].add(int(i))
-    triangles = sorted({tuple(sorted((i, j, k))) for i in neighbours for j in neighbours[i]
-                        for k in neighbours[j] & neighbours[i] if len({i, j, k}) == 3})
-    rings = set()
-    for i in neighbours:
-        for j in neighbours[i]:
-            for k in neighbours[j] - {i}:
-                for l in (neighbours[k] & neighbours[i]) - {i, j, k}:
-                    rotations = [(i, j, k, l)[r:] + (i, j, k, l)[:r] for r in range(4)]
-                    rotations += [tuple(reversed(c)) for c in rotations]
-                    rings.add(min(rotations))
-    return sorted(rings), triangles

@@ -28,7 +28,7 @@ import itertools
 import numpy as np
 
 from lowfold.errors import ModelError
-from lowfold.model.lattice import lattice_cycles
+from lowfold.model.cycles import lattice_cycles
 from lowfold.model.patterns import translated_pattern
 
 __all__ = ["SPIN_TERM_TYPES", "SPIN_EXPANDERS", "term_groups"]

@@ -25,7 +25,7 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse as sp
 
-from lowfold.model.lattice import lattice_cycles
+from lowfold.model.cycles import lattice_cycles
 from lowfold.model.model import Model
 from lowfold.readout.couplings import Coupling, spin_couplings
 from lowfold.readout.pauli import pauli_coefficients_by_order
