@@ -431,3 +431,4 @@ def contract_failure(code, stdout: str, stderr: str, *, json_out: bool, allowed=
         except ValueError as exc:
             return f"exit {code}, --json output is not one strict JSON object: {exc}: {stdout[:200]!r}"
     return None
+
