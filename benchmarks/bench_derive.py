@@ -119,7 +119,8 @@ def run_exact(task: dict) -> dict:
     import numpy as np
 
     from lowfold import Sector, build_basis, hamiltonian_matrix
-    from lowfold.perturbation.manifold import find_manifold, split_operators, twice_sz
+    from lowfold.build.labels import twice_sz
+    from lowfold.perturbation.manifold import find_manifold, split_operators
     from lowfold.perturbation.schrieffer_wolff import exact_effective_hamiltonian
 
     model = hubbard(task["shape"], task["size"], task["boundary"], task["order"])

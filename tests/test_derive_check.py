@@ -21,7 +21,7 @@ from helpers.derive_models import anderson_text, hubbard, random_spin_text
 from helpers.modelfiles import model_of
 from lowfold import build_basis, hamiltonian_matrix
 from lowfold.jobs.derive import derive
-from lowfold.perturbation.manifold import find_manifold, reachable_states, split_operators
+from lowfold.perturbation.manifold import find_manifold, reachable_from_states, split_operators
 from lowfold.perturbation.schrieffer_wolff import (
     effective_hamiltonian_orders,
     exact_effective_hamiltonian,
@@ -223,7 +223,7 @@ def test_reachable_space_truncation_matches_full_sector(order):
     v = hamiltonian_matrix(model, basis, model.perturbation_labels)
     h0_op, v_op = split_operators(model)
     states = find_manifold(model, h0_op).states
-    working = reachable_states(states, v_op, order // 2)
+    working = reachable_from_states(v_op, states, order // 2)
     assert working.size < basis.size           # the truncation really drops states
     full = effective_hamiltonian_orders(h0.diagonal(), v, basis.index(states), order)
     result = derive(model, order, compare_exact=False)

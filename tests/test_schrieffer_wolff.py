@@ -18,7 +18,7 @@ from lowfold.perturbation.schrieffer_wolff import (
     effective_hamiltonian_orders,
     exact_effective_hamiltonian,
     generator_coefficients,
-    reachable_states,
+    reachable_indices,
     second_order_matrix_free,
 )
 
@@ -255,7 +255,7 @@ def test_truncated_space_gives_same_result(order):
     # Only states within floor(n/2) applications of V enter H_eff at order n
     # (every entry of an order-m term is a sum over m-step paths; common practice)
     e, v, p = ring_model(11)
-    keep = reachable_states(v, p, order // 2)
+    keep = reachable_indices(v, p, order // 2)
     assert keep.size < e.size
     p_small = np.searchsorted(keep, p)
     small = effective_hamiltonian_orders(e[keep], v[keep][:, keep], p_small, order)
@@ -264,14 +264,14 @@ def test_truncated_space_gives_same_result(order):
         assert np.allclose(small[m], full[m], rtol=0, atol=1e-10), m
 
 
-def test_reachable_states_against_boolean_powers():
+def test_reachable_indices_against_boolean_powers():
     # slow twin: (1 + |V| > 0)^steps applied to the indicator of P, dense
     e, v, p = ring_model(3)
     adj = (np.abs(v.toarray()) > 0) | np.eye(e.size, dtype=bool)
     front = np.zeros(e.size, bool)
     front[p] = True
     for steps in range(5):
-        assert np.array_equal(reachable_states(v, p, steps), np.flatnonzero(front))
+        assert np.array_equal(reachable_indices(v, p, steps), np.flatnonzero(front))
         front = (adj.astype(int) @ front.astype(int)) > 0
 
 

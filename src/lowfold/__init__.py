@@ -13,7 +13,7 @@ from lowfold.build.basis import Basis
 from lowfold.model.terms import Term
 from lowfold.model.model import Model, PerturbationSpec
 from lowfold.model.modelfile import load_model, parse_model
-from lowfold.build.hamiltonian import build_basis, hamiltonian_matrix, hamiltonian_operator
+from lowfold.build.hamiltonian import Hamiltonian, build_basis, hamiltonian_matrix, hamiltonian_operator
 from lowfold.perturbation.schrieffer_wolff import (effective_hamiltonian_orders,
                                             exact_effective_hamiltonian)
 from lowfold.perturbation.series import SeriesResult, rayleigh_schrodinger, rayleigh_schrodinger_general
@@ -36,7 +36,7 @@ __all__ = [
     "SHAPES", "BOND_CLASSES", "Lattice", "make_lattice",
     "Site", "make_site", "Basis", "Sector", "Term", "Model", "PerturbationSpec",
     "load_model", "parse_model",
-    "build_basis", "hamiltonian_matrix", "hamiltonian_operator",
+    "build_basis", "Hamiltonian", "hamiltonian_matrix", "hamiltonian_operator",
     "SpectrumResult", "spectrum",
     "effective_hamiltonian_orders", "exact_effective_hamiltonian",
     "SeriesResult", "rayleigh_schrodinger", "rayleigh_schrodinger_general",

@@ -1,7 +1,7 @@
 """Application of compiled operator strings to basis states (numba).
 
 An operator is a sum of *strings* ``coef[k] * F_1 F_2 ... F_m`` of single-slot factors
-(see ``lowfold.hamiltonian.CompiledOperator``).  Factor ``f`` of string ``k`` lives at
+(see ``lowfold.build.compiled.CompiledOperator``).  Factor ``f`` of string ``k`` lives at
 ``ptr[k] <= f < ptr[k+1]``, acts on slot ``slot[f]`` through table ``table[f]``
 (``table_new[t, digit]`` is the new digit or -1, ``table_amp[t, digit]`` the amplitude), and
 ``odd[f]`` marks a fermionic factor, which picks up ``(-1)**(occupied slots below)``.

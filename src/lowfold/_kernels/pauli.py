@@ -14,7 +14,7 @@ vector ``g_x[r] = H[r, r ^ x]`` gives the coefficients of every string with that
 Cost: O(nnz + 2^N + P 2^N N) for P distinct flip patterns.
 
 This module imports nothing from lowfold; the validating wrapper is
-:func:`lowfold.readout.pauli_coefficients`.
+:func:`lowfold.build.numerics.pauli_strings` (used by ``lowfold.readout.pauli``).
 """
 
 import numpy as np

@@ -1,7 +1,7 @@
 """Numba kernels of the Rayleigh-Schroedinger recursion with a diagonal H0.
 
 Plain arrays in, preallocated arrays filled; nothing of lowfold is imported here.  The
-Python wrapper that validates the arguments lives in :mod:`lowfold.perturbation.series`.
+Python wrapper that validates the arguments is :func:`lowfold.build.numerics.rs_state_update`.
 """
 
 from numba import njit

@@ -16,16 +16,15 @@ from typing import Callable
 import numpy as np
 import scipy.sparse as sp
 
-from lowfold._kernels.operators import images
 from lowfold.build.basis import explicit_basis
-from lowfold.build.hamiltonian import kernel_threads
+from lowfold.build.labels import state_labels, twice_sz
 from lowfold.errors import SizeError
 from lowfold.jobs.check import ManifoldBlock, exact_check
 from lowfold.model.model import Model
 from lowfold.perturbation.diagnostics import manifold_diagnostics, merge_diagnostics
 from lowfold.perturbation.manifold import (Manifold, diagonal_energies, find_manifold,
-                                           reachable_states, restricted_operator,
-                                           split_operators, state_labels, twice_sz)
+                                           reachable_from_states, restricted_operator,
+                                           split_operators)
 from lowfold.perturbation.orders import MAX_SCHRIEFFER_WOLFF_ORDER, validate_order
 from lowfold.perturbation.schrieffer_wolff import (effective_hamiltonian_orders,
                                                    second_order_matrix_free)
@@ -154,7 +153,7 @@ def _blocks(model: Model, manifold: Manifold, by_sz: bool) -> list[ManifoldBlock
 
 def _block_orders(p_states, h0, v, order, n_slots):
     """Orders of the effective Hamiltonian of one block, and its diagnostics."""
-    working = reachable_states(p_states, v, max(1, order // 2))
+    working = reachable_from_states(v, p_states, max(1, order // 2))
     energies = diagonal_energies(h0, working)
     p_index = np.searchsorted(working, p_states)
     if order > 2 and working.size > MAX_WORKING_STATES:
@@ -178,9 +177,7 @@ def _block_orders(p_states, h0, v, order, n_slots):
 def _coupling_rows(v, p_states, working, n_slots) -> sp.csr_matrix:
     """Rows ``<p|V|w>`` for p in P and w in the working space (dimP x dimW)."""
     basis = explicit_basis(working, n_slots, v.radix)
-    strings = np.arange(v.n_strings, dtype=np.int64)
-    with kernel_threads(p_states.size):
-        rows, new, amps = images(np.ascontiguousarray(p_states), strings, *v.arrays(), False)
+    rows, new, amps = v.apply_to_states(p_states)
     cols = basis.index(new)
     keep = cols >= 0
     # <new|V|p> = amp, so <p|V|new> = conj(amp)

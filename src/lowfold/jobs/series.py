@@ -16,12 +16,12 @@ import numpy as np
 import scipy.linalg as la
 
 from lowfold.build.basis import Basis
-from lowfold.build.hamiltonian import build_basis, compile_operator, hamiltonian_matrix
+from lowfold.build.hamiltonian import Hamiltonian, build_basis, hamiltonian_matrix
+from lowfold.build.labels import state_labels
 from lowfold.errors import LowfoldError, ModelError
 from lowfold.jobs.sweep import sector_blocks, sweep_levels
 from lowfold.model.model import Model
 from lowfold.perturbation.convergence import pade_estimate, ratio_test
-from lowfold.perturbation.manifold import diagonal_energies, state_labels
 from lowfold.perturbation.orders import MAX_SERIES_ORDER, validate_order
 from lowfold.perturbation.series import rayleigh_schrodinger, rayleigh_schrodinger_general
 from lowfold.results import Pade, RatioTest, SecondOrderTerm, StateAmplitude, StateSeries
@@ -80,13 +80,14 @@ def state_series(model: Model, order: int | None = None, *, state: str | None = 
     order = validate_order(order, maximum=MAX_ORDER)
     basis = build_basis(model)
     say(f"building H0 and V on {basis.size:,} states")
-    h0_op = compile_operator(model, model.unperturbed_labels)
-    h0 = hamiltonian_matrix(model, basis, model.unperturbed_labels)
+    h0_hamiltonian = Hamiltonian.of(model, model.unperturbed_labels, basis)
+    h0 = h0_hamiltonian.to_csr()
+    h0_hamiltonian.check_hermitian(h0)
     v = hamiltonian_matrix(model, basis, model.perturbation_labels)
     warnings: list[str] = []
     say(f"series to order {order}")
-    if h0_op.is_diagonal:
-        h0_diag = diagonal_energies(h0_op, basis.states)
+    if h0_hamiltonian.operator.is_diagonal:
+        h0_diag = np.real(h0_hamiltonian.diagonal()).astype(float)
         index = _reference_index(model, basis, h0_diag, state)
         result = rayleigh_schrodinger(h0_diag, v, index, order)
         reference = state_labels(model, basis.states[[index]])[0]

@@ -13,10 +13,10 @@ from fractions import Fraction
 import numpy as np
 
 from lowfold.build.basis import Basis
-from lowfold.build.hamiltonian import compile_operator
+from lowfold.build.compiled import compile_operator
+from lowfold.build.labels import twice_sz
 from lowfold.errors import ModelError
 from lowfold.model.model import Model
-from lowfold.perturbation.manifold import twice_sz
 from lowfold.results import AvoidedCrossing, LevelCrossing, Sweep
 from lowfold.solve.exact import lowest_eigenpairs
 

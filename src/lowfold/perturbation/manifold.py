@@ -7,7 +7,9 @@ the lowest energy compatible with the sector, and a pruned site-by-site expansio
 state of P.  Otherwise (bond terms such as Ising couplings in H0) the sector is enumerated.
 
 Only the states reachable from P by at most ``floor(n/2)`` applications of V enter the
-order-``n`` effective Hamiltonian; :func:`reachable_states` finds them breadth first.
+order-``n`` effective Hamiltonian; :func:`reachable_from_states` finds them breadth first.
+The operators are :class:`lowfold.build.compiled.CompiledOperator` objects acting on encoded
+states; nothing here calls a kernel directly.
 """
 
 from __future__ import annotations
@@ -18,14 +20,14 @@ from itertools import product as cartesian
 import numpy as np
 import scipy.sparse as sp
 
-from lowfold._kernels import operators as kernels
 from lowfold.build.basis import explicit_basis
+from lowfold.build.hamiltonian import build_basis
+from lowfold.build.compiled import CompiledOperator, compile_operator
 from lowfold.errors import ManifoldError, ModelError
-from lowfold.build.hamiltonian import CompiledOperator, build_basis, compile_operator, kernel_threads
 from lowfold.model.model import Model
 
-__all__ = ["Manifold", "split_operators", "find_manifold", "reachable_states",
-           "restricted_operator", "diagonal_energies", "twice_sz", "state_labels"]
+__all__ = ["Manifold", "split_operators", "find_manifold", "reachable_from_states",
+           "restricted_operator", "diagonal_energies"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -53,9 +55,7 @@ def split_operators(model: Model) -> tuple[CompiledOperator, CompiledOperator]:
 
 def diagonal_energies(op: CompiledOperator, states: np.ndarray) -> np.ndarray:
     """Diagonal of ``op`` on the given states (real part)."""
-    with kernel_threads(len(states)):
-        values = kernels.diagonal(np.ascontiguousarray(states), op.diagonal_strings, *op.arrays())
-    return np.real(values).astype(float)
+    return np.real(op.diagonal(states)).astype(float)
 
 
 def _local_quantities(model: Model):
@@ -120,8 +120,7 @@ def _manifold_by_sites(model: Model, h0: CompiledOperator, spec):
     for i in range(n_sites):
         strings = np.flatnonzero(site_of_string == i).astype(np.int64)
         if strings.size:
-            with kernel_threads(0):
-                local_energy[i] = np.real(kernels.diagonal(local_states[i], strings, *h0.arrays()))
+            local_energy[i] = np.real(h0.diagonal(local_states[i], strings))
     if spec.window is None and np.all(np.ptp(local_energy, axis=1) == 0):
         raise ManifoldError("H0 is constant on the sector: the manifold would be the whole "
                             "sector, with no gap to expand across (is its strength zero?)")
@@ -175,17 +174,18 @@ def _manifold_by_sites(model: Model, h0: CompiledOperator, spec):
     return states[done], energy[done] + constant
 
 
-def reachable_states(p_states: np.ndarray, v: CompiledOperator, steps: int) -> np.ndarray:
-    """P together with every state reachable from it by at most ``steps`` applications of V
-    (breadth first; the images are computed by a numba kernel)."""
+def reachable_from_states(v: CompiledOperator, p_states: np.ndarray, steps: int) -> np.ndarray:
+    """The encoded states ``p_states`` together with every state reachable from them by at
+    most ``steps`` applications of the compiled ``v``, ascending (breadth first).
+
+    Compare ``lowfold.perturbation.schrieffer_wolff.reachable_indices``, the same search on
+    basis indices with a matrix."""
     visited = np.unique(p_states)
     frontier = visited
     for _ in range(steps):
         if frontier.size == 0 or v.offdiagonal_strings.size == 0:
             break
-        with kernel_threads(frontier.size):
-            _, new, _ = kernels.images(frontier, v.offdiagonal_strings, *v.arrays(), False)
-        new = np.unique(new)
+        new = np.unique(v.apply_to_states(frontier, v.offdiagonal_strings).states)
         frontier = new[~np.isin(new, visited, assume_unique=True)]
         visited = np.union1d(visited, frontier)
     return visited
@@ -194,36 +194,10 @@ def reachable_states(p_states: np.ndarray, v: CompiledOperator, steps: int) -> n
 def restricted_operator(op: CompiledOperator, states: np.ndarray, n_slots: int) -> sp.csr_matrix:
     """Matrix of ``op`` between the given states only (images leaving the set are dropped)."""
     basis = explicit_basis(states, n_slots, op.radix)
-    all_strings = np.arange(op.n_strings, dtype=np.int64)
-    with kernel_threads(basis.size):
-        rows, new, amps = kernels.images(basis.states, all_strings, *op.arrays(), False)
+    rows, new, amps = op.apply_to_states(basis.states)
     cols = basis.index(new)
     inside = cols >= 0
     # <new|O|state_row> = amp: entry (new, row)
     return sp.csr_matrix((amps[inside], (cols[inside], rows[inside])),
                          shape=(basis.size, basis.size))
 
-
-def twice_sz(model: Model, states: np.ndarray) -> np.ndarray:
-    """2 S^z of each state (spins and electrons)."""
-    site, n = model.site, model.n_sites
-    digits = (states[:, None] // (site.radix ** np.arange(n * site.modes, dtype=np.int64))) % site.radix
-    if site.type == "spin":
-        return (int(2 * site.spin) - 2 * digits).sum(axis=1)
-    if site.type == "electron":
-        return digits[:, :n].sum(axis=1) - digits[:, n:].sum(axis=1)
-    raise ModelError(f"{site.type} sites carry no spin")
-
-
-def state_labels(model: Model, states: np.ndarray) -> list[str]:
-    """Readable labels: electrons ``0 u d 2`` per site, spins ``u d`` (S = 1/2) or the digit,
-    fermions and bosons the occupation."""
-    site, n = model.site, model.n_sites
-    digits = (np.asarray(states)[:, None] // (site.radix ** np.arange(n * site.modes, dtype=np.int64))) % site.radix
-    if site.type == "electron":
-        symbols = np.array(["0", "u", "d", "2"])
-        return ["".join(symbols[row[:n] + 2 * row[n:]]) for row in digits]
-    if site.type == "spin" and site.radix == 2:
-        return ["".join("ud"[d] for d in row) for row in digits]
-    return [" ".join(str(d) for d in row) if site.radix > 10 else "".join(str(d) for d in row)
-            for row in digits]

@@ -18,7 +18,7 @@ parts of V). It follows from the off-diagonal condition
 
 Every entry of an order-m term is a sum over paths of m steps of V, so the order-n effective
 Hamiltonian only sees the states reachable from P in at most floor(n/2) steps: the working
-space may be truncated to them (see :func:`reachable_states`) without changing the result.
+space may be truncated to them (see :func:`reachable_indices`) without changing the result.
 """
 
 from fractions import Fraction
@@ -29,7 +29,7 @@ import scipy.linalg
 import scipy.sparse as sp
 import scipy.sparse.linalg
 
-from lowfold._kernels.second_order import second_order_csr
+from lowfold.build.numerics import second_order_product
 from lowfold.perturbation.orders import MAX_SCHRIEFFER_WOLFF_ORDER, validate_order
 from lowfold.errors import LowfoldError, ManifoldError, ModelError
 
@@ -37,7 +37,7 @@ __all__ = [
     "effective_hamiltonian_orders",
     "second_order_matrix_free",
     "exact_effective_hamiltonian",
-    "reachable_states",
+    "reachable_indices",
     "generator_coefficients",
 ]
 
@@ -317,12 +317,7 @@ def second_order_matrix_free(h0_p, h0_q, v_pq, *, gap_tol=1e-9):
         raise ModelError("v_pq contains inf or nan")
     if e_q.size:
         _check_gap(e_p, e_q, gap_tol)
-    v_qp = v_pq.conj().T.tocsr()
-    indptr, indices, data = second_order_csr(
-        e_p, e_q, v_pq.indptr, v_pq.indices, v_pq.data, v_qp.indptr, v_qp.indices, v_qp.data)
-    h2 = sp.csr_matrix((data, indices, indptr), shape=(e_p.size, e_p.size))
-    h2.sort_indices()
-    return h2
+    return second_order_product(e_p, e_q, v_pq)
 
 
 def _real_vector(x, name):
@@ -376,11 +371,14 @@ def exact_effective_hamiltonian(h_dense, p_index, *, degeneracy_tol=1e-10, overl
     return (h_eff + h_eff.conj().T) / 2
 
 
-def reachable_states(v, p_index, steps):
-    """Sorted indices of the states reachable from P by at most ``steps`` applications of V.
+def reachable_indices(v, p_index, steps):
+    """Sorted basis indices of the states reachable from the indices ``p_index`` by at most
+    ``steps`` applications of the matrix ``v`` (compare
+    ``lowfold.perturbation.manifold.reachable_from_states``, the same search on encoded
+    states with a compiled operator).
 
     Pure linear algebra on the sparsity pattern of V (no cancellation is assumed). To use the
-    result as a working space: ``keep = reachable_states(v, p, n // 2)``,
+    result as a working space: ``keep = reachable_indices(v, p, n // 2)``,
     ``p_new = np.searchsorted(keep, p)``, ``v_new = v[keep][:, keep]``.
 
     Parameters

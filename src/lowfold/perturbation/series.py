@@ -32,7 +32,7 @@ import numpy as np
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
-from lowfold._kernels.series import rs_state_update
+from lowfold.build.numerics import rs_state_update as _state_update
 from lowfold.errors import ModelError
 from lowfold.perturbation.orders import MAX_SERIES_ORDER, validate_order
 from lowfold.perturbation.recursion import (
@@ -124,18 +124,6 @@ def _diagonal_of(h0):
 
 
 # -- diagonal H0
-
-
-def _state_update(w, states, energies, k, inv_denominators, out):
-    """Validated wrapper of the numba kernel :func:`rs_state_update`."""
-    n = w.shape[0]
-    if (states.ndim != 2 or states.shape[1] != n or not 1 <= k <= states.shape[0]
-            or energies.dtype != np.float64 or energies.shape[0] < k
-            or inv_denominators.shape != (n,) or inv_denominators.dtype != np.float64
-            or out.shape != (n,) or out.dtype != states.dtype):
-        raise ValueError("rs_state_update: inconsistent shapes or dtypes")
-    rs_state_update(np.ascontiguousarray(w, dtype=states.dtype), states, energies, k,
-                    inv_denominators, out)
 
 
 def _second_order_terms(w0, gaps, usable):

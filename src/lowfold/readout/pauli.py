@@ -20,7 +20,7 @@ import math
 import numpy as np
 import scipy.sparse as sp
 
-from lowfold._kernels.pauli import pauli_transform
+from lowfold.build.numerics import pauli_strings
 from lowfold.errors import ModelError, SizeError
 
 __all__ = [
@@ -122,8 +122,7 @@ def pauli_ops(matrix, n_sites, tol, hermitian_tol, max_terms):
             or max_terms < 1:
         raise ModelError(f"max_terms must be a positive integer, got {max_terms!r}")
     rows, cols, data = _coo_triplets(matrix, n_sites)
-    xs, zs, cs, complete = pauli_transform(rows, cols, data, n_sites, float(tol),
-                                           int(max_terms))
+    xs, zs, cs, complete = pauli_strings(rows, cols, data, n_sites, float(tol), int(max_terms))
     if not complete:
         raise SizeError(f"more than {max_terms} Pauli strings exceed tol = {tol:g}; "
                         "raise tol or max_terms")
@@ -176,7 +175,7 @@ def pauli_coefficients(matrix, n_sites: int, *, tol: float = 1e-12,
     -----
     Elements are grouped by flip pattern ``row ^ col``; for each pattern one Walsh-Hadamard
     transform gives the coefficients of all strings with X/Y exactly on the flipped bits
-    (kernel :func:`lowfold._kernels.pauli.pauli_transform`), in
+    (:func:`lowfold.build.numerics.pauli_strings`), in
     O(nnz + P 2^N N) time for P distinct patterns.
     """
     terms = pauli_ops(matrix, n_sites, tol, hermitian_tol, max_terms)

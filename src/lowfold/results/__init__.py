@@ -12,6 +12,7 @@ states, eigenvectors, the CSR orders of a spin-form result) are ``None`` or empt
 rebuilt by ``from_dict``.  Non-finite numbers appear as ``null`` in JSON and ``None`` here.
 """
 
+from lowfold.results.classes import CouplingClass
 from lowfold.results.common import Spectrum, orders_from_json, orders_to_json
 from lowfold.results.effective import (DeriveCheck, EffectiveModel, ManifoldDiagnostics,
                                        ManifoldSummary, PauliTerm, PowerFit, Recognised)
@@ -19,6 +20,6 @@ from lowfold.results.series import (AvoidedCrossing, LevelCrossing, Pade, RatioT
                                     SecondOrderTerm, StateAmplitude, StateSeries, Sweep)
 
 __all__ = ["Spectrum", "ManifoldSummary", "ManifoldDiagnostics", "PauliTerm", "Recognised",
-           "DeriveCheck", "PowerFit", "EffectiveModel", "Pade", "RatioTest", "StateAmplitude",
+           "DeriveCheck", "PowerFit", "EffectiveModel", "CouplingClass", "Pade", "RatioTest", "StateAmplitude",
            "SecondOrderTerm", "AvoidedCrossing", "LevelCrossing", "Sweep", "StateSeries",
            "orders_to_json", "orders_from_json"]

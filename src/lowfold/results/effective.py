@@ -9,6 +9,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from lowfold.readout.couplings import Coupling
+from lowfold.results.classes import CouplingClass
 from lowfold.results.common import finite, orders_from_json, orders_to_json
 
 __all__ = ["ManifoldSummary", "ManifoldDiagnostics", "PauliTerm", "Recognised", "DeriveCheck",
@@ -237,6 +238,7 @@ class EffectiveModel:
     warnings: tuple[str, ...] = ()
     residual: Mapping = field(default_factory=dict)
     model: Any = None
+    classes: tuple[CouplingClass, ...] = ()
 
     @property
     def spin_form(self) -> bool:
@@ -271,6 +273,8 @@ class EffectiveModel:
                "warnings": list(self.warnings)}
         if self.scaling is not None:
             out["scaling"] = {str(m): fit.to_dict() for m, fit in self.scaling.items()}
+        if self.classes:
+            out["classes"] = [c.to_dict() for c in self.classes]
         if not self.spin_form:
             out["effective"] = {"basis": list(self.labels),
                                 "orders": {str(m): matrix_to_json(h) for m, h in enumerate(self.orders)}}
@@ -293,4 +297,5 @@ class EffectiveModel:
                    {m: PowerFit.from_dict(v) for m, v in orders_from_json(scaling).items()}
                    if scaling is not None else None,
                    ManifoldDiagnostics.from_dict(data["diagnostics"]) if data.get("diagnostics") else None,
-                   tuple(data.get("warnings", ())))
+                   tuple(data.get("warnings", ())),
+                   classes=tuple(CouplingClass.from_dict(c) for c in data.get("classes", ())))

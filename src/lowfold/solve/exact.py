@@ -10,17 +10,14 @@ import scipy.linalg as la
 import scipy.sparse as sp
 from scipy.sparse.linalg import ArpackNoConvergence, LinearOperator, eigsh
 
-from lowfold.build.basis import Basis
-from lowfold.errors import ConvergenceError, ModelError, SizeError
-from lowfold.build.hamiltonian import (available_memory, build_basis, check_model_hermitian, compile_operator,
-                          count_nonzeros, prefers_matrix_free,
-                          operator_linear, operator_matrix)
-from lowfold.solve.lanczos import lanczos_lowest
+from lowfold.build.hamiltonian import Hamiltonian
+from lowfold.build.sparse import available_memory
+from lowfold.errors import ConvergenceError, ModelError
 from lowfold.model.model import Model
+from lowfold.solve.lanczos import lanczos_lowest
+from lowfold.solve.method import DENSE_LIMIT, METHODS, choose_method, lanczos_bytes, operator_for
 
 __all__ = ["SpectrumResult", "lowest_eigenpairs", "spectrum"]
-
-DENSE_LIMIT = 1200          # below this many states, dense diagonalisation is fastest
 
 
 @dataclass(frozen=True, eq=False)
@@ -104,27 +101,22 @@ def spectrum(model: Model, levels: int = 4, *, vectors: bool = False, method: st
     """
     if levels < 1:
         raise ModelError(f"levels must be at least 1, got {levels}")
-    if method not in ("auto", "csr", "matrix-free", "dense"):
+    if method not in METHODS:
         raise ModelError(f"unknown method {method!r}")
     say = progress or (lambda message: None)
     limit = int(0.8 * available_memory()) if memory_limit is None else memory_limit
-    basis = build_basis(model, max_states=max(limit // 96, 1))
-    op = compile_operator(model)
-    vectors_kept = 6 if levels == 1 else max(2 * levels + 1, 20) + 4
-    lanczos_bytes = vectors_kept * basis.size * np.dtype(op.coef.dtype).itemsize
-    chosen = _choose_method(method, op, basis, limit - lanczos_bytes, say)
-    say(f"building the Hamiltonian on {basis.size:,} states ({chosen})")
-    if chosen == "matrix-free":
-        matrix = operator_linear(op, basis)
-    else:
-        matrix = operator_matrix(op, basis, memory_limit=limit - lanczos_bytes)
-    check_model_hermitian(model, basis, matrix)
-    say(f"diagonalising ({basis.size:,} states, {levels} levels)")
-    if chosen == "dense" and basis.size > DENSE_LIMIT:
+    hamiltonian = Hamiltonian.of(model, max_states=max(limit // 96, 1))
+    budget = limit - lanczos_bytes(levels, hamiltonian.size, hamiltonian.dtype)
+    chosen = choose_method(hamiltonian, method, budget, say)
+    say(f"building the Hamiltonian on {hamiltonian.size:,} states ({chosen})")
+    matrix = operator_for(hamiltonian, chosen, budget)
+    hamiltonian.check_hermitian(matrix)
+    say(f"diagonalising ({hamiltonian.size:,} states, {levels} levels)")
+    if chosen == "dense" and hamiltonian.size > DENSE_LIMIT:
         energies, vecs = _dense(matrix, levels, vectors)
     else:
         energies, vecs = lowest_eigenpairs(matrix, levels, vectors=vectors)
-    return SpectrumResult(basis.size, energies, vecs, chosen)
+    return SpectrumResult(hamiltonian.size, energies, vecs, chosen)
 
 
 def _dense(matrix, levels, vectors):
@@ -132,24 +124,3 @@ def _dense(matrix, levels, vectors):
     values, vecs = la.eigh(matrix.toarray(), subset_by_index=[0, k - 1])
     return values, (vecs if vectors else None)
 
-
-def _choose_method(method, op, basis: Basis, limit: int, say) -> str:
-    if method == "dense":
-        need = basis.size**2 * np.dtype(op.coef.dtype).itemsize * 3
-        if need > limit:
-            raise SizeError(f"a dense matrix of {basis.size:,} states needs {need / 2**30:.1f} GiB")
-        return "dense"
-    if method != "auto":
-        return method
-    if basis.size <= DENSE_LIMIT:
-        return "csr"
-    if prefers_matrix_free(op, basis):
-        return "matrix-free"          # electrons at fixed N_up, N_dn: species-split product
-    say(f"counting non-zeros on {basis.size:,} states")
-    nnz = count_nonzeros(op, basis)
-    csr_bytes = nnz * (np.dtype(op.coef.dtype).itemsize + 4) + 8 * basis.size
-    if csr_bytes <= limit:
-        return "csr"
-    if 3 * 8 * basis.size <= limit:
-        return "matrix-free"
-    raise SizeError(f"{basis.size:,} states do not fit in {limit / 2**30:.1f} GiB")
