@@ -5,6 +5,9 @@ A fuzz failure is ``(argv, description of the input, why it broke the contract)`
 
 from __future__ import annotations
 
+import json
+import os
+
 
 # Open defects the fuzz finds, each owned by a module another helper is fixing this wave.
 # A fuzz failure that matches one is reported (printed), not failed; each has a minimal
@@ -66,10 +69,19 @@ def known_defect(argv, failure: str) -> str | None:
 
 
 def split_known(failures):
-    """``(new failures, {known defect: count})`` of ``[(argv, notes, failure), ...]``."""
+    """``(new failures, {known defect: count})`` of ``[(argv, notes, failure), ...]``.
+
+    With ``LOWFOLD_FUZZ_REPORT=FILE`` in the environment, every failure (known or new) is
+    also appended to FILE, one JSON object a line.
+    """
     new, known = [], {}
+    log = os.environ.get("LOWFOLD_FUZZ_REPORT")
     for argv, notes, failure in failures:
         name = known_defect(argv, failure)
+        if log:
+            with open(log, "a") as fh:
+                fh.write(json.dumps({"argv": [str(a) for a in argv], "input": str(notes),
+                                     "failure": failure, "known": name}) + "\n")
         if name is None:
             new.append((argv, notes, failure))
         else:
