@@ -17,6 +17,7 @@ import pytest
 from helpers.cli import run_all
 from helpers.fuzz import contract_failure, dumps, small_model
 from helpers.fuzz_report import KNOWN_DEFECTS
+from lowfold.errors import ModelError
 
 
 def defect(name):
@@ -64,6 +65,11 @@ def runs(store, tmp_path_factory):
             record["result"] = None
         (broken / "points" / path.name).write_text(json.dumps(record))
     (broken / "scan.json").write_text((results / "scan.json").read_text())
+    markup = root / "markup.toml"
+    markup.write_text(dumps({**spin_pair(), "title": "a [/bold] b"}))
+    nul_scan = root / "nul.toml"
+    nul_scan.write_text(dumps({"model": "pair\x00.toml", "task": {"name": "spectrum"},
+                               "grid": {"h": [0.5]}}))
     jobs = {
         "series-plot-unwritable": ["series", model, "--plot", root / "missing" / "sweep.png"],
         "sweep-overflow-warning": ["series", model, "--sweep", "lambda=0:1e300:3", "--json"],
@@ -79,6 +85,10 @@ def runs(store, tmp_path_factory):
                                      "energy:0", "--unit", "U", "--output", root / "fit3.png"],
         "scan-out-not-a-directory": ["scan", store / "scan.toml", "--out", model, "--json"],
         "spectrum-levels-beyond-dimension": ["spectrum", model, "--levels", "1000000000", "--json"],
+        "scan-model-path-nul": ["scan", nul_scan, "--out", root / "nul-results", "--json"],
+        "text-markup": ["spectrum", markup],
+        "plot-title-control-glyph": ["plot", results, "--kind", "levels", "--x", "h", "--where",
+                                     "size=3", "--title", "bell\x07", "--output", root / "t.png"],
     }
     return run_all(jobs)
 
@@ -95,7 +105,9 @@ def check(proc):
                                                "plot-output-unwritable", "finite-size-json-nan",
                                                "plot-legend-warning", "null-result-record",
                                                "finite-size-unknown-unit",
-                                               "scan-out-not-a-directory")])
+                                               "scan-out-not-a-directory",
+                                               "scan-model-path-nul", "text-markup",
+                                               "plot-title-control-glyph")])
 def test_known_defect_keeps_the_contract(runs, name):
     check(runs[name])
 
@@ -108,3 +120,15 @@ def test_more_levels_than_states_gives_every_level(runs):
     check(proc)
     assert proc.returncode == 0, proc.stderr
     assert len(json.loads(proc.stdout)["energies"]) == 4
+
+
+@pytest.mark.parametrize("levels", ["level:0", "2", 2.5, True])
+def test_scan_task_levels_must_be_an_integer(levels):
+    # found by the scan fuzz: a scan file's [task] levels = "level:0" raised ValueError
+    # inside a worker (a crash, retried and logged) instead of a ModelError stored as a
+    # deterministic failure of the point
+    from lowfold.jobs.tasks import run_task
+    from lowfold.model.modelfile import parse_model
+
+    with pytest.raises(ModelError, match="levels must be an integer"):
+        run_task("spectrum", parse_model(spin_pair()), {"levels": levels})

@@ -57,6 +57,28 @@ KNOWN_DEFECTS = {
          "allowed' (solve/exact.py sizes the Lanczos vectors by the levels asked, not by the "
          "dimension)"),
         lambda argv, failure: False),       # one clear line and exit 2: the contract holds
+    "text-markup": (
+        "rich markup in a title ('a [/bold] b'): the text report of spectrum, derive and series "
+        "crashes with MarkupError (cli/render.py: user text must be escaped)",
+        lambda argv, failure: _traceback_of(failure, "MarkupError")),
+    "series-follow-degenerate-hang": (
+        "series on a reference inside a degenerate H0 level that V couples only beyond the "
+        "requested order (examples/hubbard_chain.toml with order = 1): the exact following "
+        "(jobs/series.py _follow_dense) shrinks its lambda step to 1e-5 and runs for minutes",
+        lambda argv, failure: argv[0] == "series" and failure.startswith("hang")),
+    "scan-grid-unbounded": (
+        "a scan grid range of 10**9 points (grid.U = {start = 1, stop = 2, num = 1000000000}) "
+        "is planned point by point with no bound: lowfold scan runs past any time limit "
+        "(scans/scanfile.py, scans/plan.py)",
+        lambda argv, failure: argv[0] == "scan" and failure.startswith("hang")),
+    "scan-model-path-nul": (
+        "a scan file whose model path holds a NUL character: ValueError 'embedded null byte' "
+        "traceback (scans/scanfile.py)",
+        lambda argv, failure: argv[0] == "scan" and _traceback_of(failure, "null byte")),
+    "plot-title-control-glyph": (
+        "plot --title with a control character (tab, bell): matplotlib's 'Glyph missing from "
+        "font' UserWarning leaks to stderr (plots/style.py)",
+        lambda argv, failure: argv[0] == "plot" and "missing from font" in failure),
 }
 
 
