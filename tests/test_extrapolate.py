@@ -63,7 +63,8 @@ def test_fit_in_one_over_n_and_grouping():
     for U in (8.0, 16.0):
         for L in (4, 6, 8, 10):
             value = -1.0 / U + 0.5 / L
-            records.append({"key": f"{U}-{L}", "status": "ok", "parameters": {"U": U, "t": 1.0},
+            records.append({"key": f"{U}-{L}", "status": "ok", "task": "spectrum",
+                            "parameters": {"U": U, "t": 1.0},
                             "values": {"U": U, "size": [L]}, "size": [L], "n_sites": 2 * L,
                             "result": {"dimension": 1, "energies": [value * 2 * L]}})
     records.append({"key": "bad", "status": "error", "parameters": {"U": 8.0, "t": 1.0},

@@ -7,7 +7,8 @@ Hubbard dimer with a fixed S^z (spin form, recognised rationals, the widened sec
 Ising pair in a field on one site (no spin form: the ``effective`` matrices; errors at
 round-off: the ``note`` of the power fit), a one-spin avoided crossing and a Zeeman pair
 with a true crossing between S^z sectors (the sweep's lists), a transverse-field Ising pair
-(Pade, ratio test, first- and second-order lists).  The physics of these numbers is checked
+(Pade, ratio test, first- and second-order lists), a periodic Hubbard ring of four sites
+(coupling classes).  The physics of these numbers is checked
 elsewhere; here only the schema is.
 """
 
@@ -51,6 +52,10 @@ strength = "U"
 unperturbed = ["hubbard"]
 order = 4
 """
+
+# a periodic ring: translation invariant, so derive writes coupling classes
+HUBBARD_RING = (HUBBARD_DIMER.replace("size = [2]", "size = [4]").replace('"open"', '"periodic"')
+                .replace("particles = 2", "particles = 4").replace("order = 4", "order = 2"))
 
 SPIN_PAIR = """
 title = "two spins"
@@ -117,6 +122,7 @@ RUNS = {
     "derive-spin": ("derive", HUBBARD_DIMER, {"check_scaling": True}, EffectiveModel),
     "derive-matrix": ("derive", ISING_FIELD, {"check_scaling": True}, EffectiveModel),
     "derive-unchecked": ("derive", HUBBARD_DIMER, {"check": False}, EffectiveModel),
+    "derive-classes": ("derive", HUBBARD_RING, {"check": False}, EffectiveModel),
     "series-avoided": ("series", ONE_SPIN, {"sweep": "lambda=0:4:41"}, StateSeries),
     "series-crossing": ("series", ZEEMAN, {"sweep": "lambda=0:2:41"}, StateSeries),
     "series-plain": ("series", TRANSVERSE, {}, StateSeries),

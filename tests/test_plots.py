@@ -15,8 +15,22 @@ import numpy as np
 import pytest
 
 from lowfold.errors import ModelError
-from lowfold.plots.scan_figures import exact_gap, plot_couplings, plot_errors, plot_finite_size, plot_levels
+from lowfold.plots.scan_figures import (
+    exact_gap,
+    plot_couplings,
+    plot_errors,
+    plot_finite_size,
+    plot_levels,
+)
 from lowfold.plots.style import DPI, FIGSIZE
+from lowfold.readout.couplings import Coupling
+from lowfold.results import (
+    DeriveCheck,
+    EffectiveModel,
+    ManifoldSummary,
+    Spectrum,
+    StateSeries,
+)
 
 PIXELS = (round(FIGSIZE[1] * DPI), round(FIGSIZE[0] * DPI))
 
@@ -29,28 +43,32 @@ def _base(key, U, *, task, size=2, result):
 
 
 def dimer_derive(U):
+    # the derive result of the dimer with U as H0 (t = 1), written as a derive job writes it
     root = math.sqrt(U * U + 16.0)
-    orders = {"2": 4.0 / U, "4": -16.0 / U**3, "6": 128.0 / U**5}
-    exact = [(U - root) / 2, 0.0]
+    orders = {2: 4.0 / U, 4: -16.0 / U**3, 6: 128.0 / U**5}
+    exact = ((U - root) / 2, 0.0)
     partial = np.cumsum(list(orders.values()))
     exact_j = exact[1] - exact[0]
-    by_order = {k: {"max_abs_error": abs(p - exact_j)} for k, p in zip(orders, partial)}
-    result = {"order": 6, "couplings": [{"kind": "exchange", "sites": [0, 1],
-                                         "value": float(partial[-1]), "orders": orders}],
-              "check": {"exact": exact, "by_order": by_order}, "warnings": []}
-    return _base(f"d{U}", U, task="derive", result=result)
+    errors = {m: abs(p - exact_j) for m, p in zip(orders, partial)}
+    result = EffectiveModel(
+        order=6, manifold=ManifoldSummary(dimension=4, energy=0.0, gap=U, readout="spin-1/2"),
+        couplings=(Coupling("exchange", (0, 1), float(partial[-1]), orders),),
+        check=DeriveCheck(exact, errors))
+    return _base(f"d{U}", U, task="derive", result=result.to_dict())
 
 
 def dimer_spectrum(U):
     root = math.sqrt(U * U + 16.0)
-    return _base(f"s{U}", U, task="spectrum", result={"dimension": 4, "energies": [(U - root) / 2, 0.0]})
+    return _base(f"s{U}", U, task="spectrum",
+                 result=Spectrum(4, np.array([(U - root) / 2, 0.0])).to_dict())
 
 
 def dimer_series(U):
-    # ground-state energy E0 = -J: series -(4/U) + 16/U^3 - 128/U^5
-    orders = {"0": 0.0, "2": -4.0 / U, "4": 16.0 / U**3, "6": -128.0 / U**5}
-    return _base(f"r{U}", U, task="series",
-                 result={"orders": orders, "energy": sum(orders.values()), "diagnostics": {}})
+    # ground-state energy E0 = -J: series -(4/U) + 16/U^3 - 128/U^5 (odd orders vanish)
+    energies = np.array([0.0, 0.0, -4.0 / U, 0.0, 16.0 / U**3, 0.0, -128.0 / U**5])
+    result = StateSeries(energies, reference="ud", exact=None, pade=None, ratio_test=None,
+                         validity_ratio=None, first_order_norm=0.0)
+    return _base(f"r{U}", U, task="series", result=result.to_dict())
 
 
 U_VALUES = [8.0, 11.0, 16.0, 22.0, 32.0, 45.0, 64.0]
@@ -80,7 +98,9 @@ def test_couplings_plot_png_and_exact_points(tmp_path):
     assert ax.get_xlabel() == "$t / U$" and ax.get_ylabel() == "$J_{0-1} / t$"
     assert ax.get_title() == "Hubbard dimer"
     labels = [t.get_text() for t in ax.get_legend().get_texts()]
-    assert labels == ["through order 2", "through order 4", "through order 6", "exact"]
+    # the reference is labelled for what it is: the gap E_1 - E_0 (here the dimer's J)
+    assert labels == ["through order 2", "through order 4", "through order 6",
+                      "exact $(E_{1} - E_{0})$"]
     exact_line = ax.get_lines()[-1]
     x, y = exact_line.get_data()
     assert np.allclose(y, [(math.sqrt(1 / xi**2 + 16) - 1 / xi) / 2 for xi in x])
@@ -113,7 +133,8 @@ def test_finite_size_plot_shows_extrapolation(tmp_path):
     for U in (10.0, 20.0):
         for L in (4, 6, 8, 10):
             energy = L * (-4 * math.log(2) / U + 0.3 / L**2)
-            rec = _base(f"{U}-{L}", U, task="spectrum", size=L, result={"dimension": 1, "energies": [energy]})
+            rec = _base(f"{U}-{L}", U, task="spectrum", size=L,
+                        result=Spectrum(1, np.array([energy])).to_dict())
             records.append(rec)
     out = tmp_path / "fss.png"
     fig = plot_finite_size(records, quantity="energy", per_site=True, unit="t", degree=1, power=2,
@@ -175,7 +196,8 @@ def test_plot_results_dispatch(tmp_path):
     for U in U_VALUES:
         store.put(dimer_spectrum(U))
     summary = plot_results(tmp_path / "res", kind="levels", x="t/U", output=tmp_path / "l.png")
-    assert summary == {"kind": "levels", "output": str(tmp_path / "l.png"), "points": len(U_VALUES)}
+    assert summary == {"kind": "levels", "output": str(tmp_path / "l.png"), "points": len(U_VALUES),
+                       "warnings": []}
     _check_png(tmp_path / "l.png")
     with pytest.raises(ModelError, match="unknown plot kind"):
         plot_results(tmp_path / "res", kind="heatmap", x="U", output=tmp_path / "h.png")

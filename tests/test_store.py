@@ -1,41 +1,43 @@
-"""Result store: stable keys, atomic writes, tidy table, selectors."""
+"""Result store: stable keys, atomic writes, tidy table, selectors.
+
+The records hold the results of real jobs on tiny models (:mod:`helpers.scan_records`, which
+names the known values checked here and their sources).
+"""
 
 import csv
 import json
+import math
 import os
 
 import pytest
+from helpers.exact import ring_coefficients
+from helpers.scan_records import (
+    DERIVE_T,
+    DERIVE_U,
+    FIELD_H,
+    SERIES_G,
+    SERIES_L,
+    SPECTRUM_T,
+    SPECTRUM_U,
+    dimer_exchange,
+    dimer_levels,
+    key_of,
+    real_result,
+    record,
+)
 
-from lowfold.errors import LowfoldError, ModelError
+from lowfold.errors import ModelError
 from lowfold.scans.select import axis_value, scalar
-from lowfold.scans.store import ResultStore, load_results, point_key, write_json_atomic
+from lowfold.scans.store import (
+    ResultStore,
+    load_results,
+    open_results,
+    point_key,
+    write_json_atomic,
+)
 from lowfold.scans.table import table_rows, to_dataframe, write_csv
 
-
-def _record(key, *, task="spectrum", status="ok", result=None, error=None, U=8.0, size=(4,)):
-    return {
-        "format": 1, "key": key, "status": status, "task": task, "options": {},
-        "parameters": {"t": 1.0, "U": U}, "scanned": ["U"], "values": {"U": U, "size": list(size)},
-        "size": list(size), "boundary": "open", "sector": {"particles": 4, "sz": 0.0},
-        "n_sites": size[0], "model": {"path": "m.toml", "sha256": "0" * 64, "title": "dots"},
-        "lowfold_version": "0.1.0", "timing": None, "result": result, "error": error,
-    }
-
-
-DERIVE = {
-    "order": 4,
-    "manifold": {"dimension": 4, "energy": 0.0, "gap": 8.0, "readout": "spin-1/2"},
-    "terms": [{"operator": "Z0 Z1", "coefficient": 0.12, "orders": {"2": 0.125, "4": -0.005}}],
-    "couplings": [
-        {"kind": "exchange", "sites": [0, 1], "value": 0.49, "orders": {"2": 0.5, "4": -0.01}},
-        {"kind": "field", "sites": [1], "value": [0.0, 0.0, 0.2], "orders": {"2": [0.0, 0.0, 0.2]}},
-    ],
-    "check": {"exact": [-1.0, -0.5], "by_order": {"2": {"max_abs_error": 1e-2},
-                                                   "4": {"max_abs_error": 1e-4}}},
-    "warnings": [],
-}
-SERIES = {"orders": {"0": 0.0, "1": 0.0, "2": -0.5, "3": 0.0, "4": 0.01}, "energy": -0.49,
-          "diagnostics": {"ratio": 0.1, "note": "text"}}
+K1, K2, K3, K4, K5 = (key_of(n) for n in range(1, 6))
 
 
 def test_point_key_is_stable_and_normalises_numbers():
@@ -68,49 +70,71 @@ def test_atomic_write_leaves_old_file_on_failure(tmp_path):
 
 def test_store_round_trip_and_corrupt_file(tmp_path):
     store = ResultStore(tmp_path / "out")
-    store.put(_record("b1", result={"dimension": 36, "energies": [-2.0, -1.5]}))
-    store.put(_record("a2", status="error", error={"type": "ModelError", "message": "no", "deterministic": True}))
-    assert store.keys() == ["a2", "b1"]
-    assert [r["key"] for r in load_results(tmp_path / "out")] == ["a2", "b1"]
-    assert store.get("missing") is None
-    store.path_for("c3").write_text("{truncated")
-    assert store.get("c3") is None
-    with pytest.raises(LowfoldError, match="c3.json"):
-        store.records()
+    store.put(record(K2, result=real_result("spectrum")))
+    store.put(record(K1, status="error", error={"type": "ModelError", "message": "no", "deterministic": True}))
+    assert store.keys() == [K1, K2]
+    assert [r["key"] for r in load_results(tmp_path / "out")] == [K1, K2]
+    assert store.get(K3) is None and store.warnings == []
+    store.path_for(K3).write_text("{truncated")
+    assert store.get(K3) is None
+    # an unreadable record is skipped with a warning, not an error that blocks every reader
+    reader = open_results(tmp_path / "out")
+    assert [r["key"] for r in reader.records()] == [K1, K2]
+    assert len(reader.warnings) == 1 and K3 + ".json" in reader.warnings[0]
     with pytest.raises(ModelError, match="not a results directory"):
         load_results(tmp_path)
 
 
 def test_tidy_rows_for_each_task_and_errors():
     records = [
-        _record("k1", result={"dimension": 36, "energies": [-2.0, -1.5]}),
-        _record("k2", task="derive", result=DERIVE),
-        _record("k3", task="series", result=SERIES),
-        _record("k4", status="error", error={"type": "ManifoldError", "message": "no gap"}),
+        record(K1, result=real_result("spectrum")),
+        record(K2, task="derive", result=real_result("derive")),
+        record(K3, task="series", result=real_result("series")),
+        record(K4, status="error", error={"type": "ManifoldError", "message": "no gap"}),
+        record(K5, task="derive", result=real_result("field")),
     ]
     rows = table_rows(records)
-    by = lambda **kw: [r for r in rows if all(r[k] == v for k, v in kw.items())]   # noqa: E731
-    assert [r["value"] for r in by(key="k1", quantity="energy")] == [-2.0, -1.5]
-    assert by(key="k1", quantity="dimension")[0]["value"] == 36
-    exch = by(key="k2", quantity="coupling", kind="exchange")
-    assert {(r["order"], r["value"]) for r in exch} == {("total", 0.49), ("2", 0.5), ("4", -0.01)}
-    assert all(r["sites"] == "0-1" for r in exch)
-    field = by(key="k2", quantity="coupling", kind="field", order="total")
-    assert [(r["component"], r["value"]) for r in field] == [("x", 0.0), ("y", 0.0), ("z", 0.2)]
-    assert [r["value"] for r in by(key="k2", quantity="max_abs_error")] == [1e-2, 1e-4]
-    assert by(key="k2", quantity="manifold_gap")[0]["value"] == 8.0
-    series = by(key="k3", quantity="series")
-    assert series[-1]["order"] == "total" and series[-1]["value"] == -0.49
-    assert [r["kind"] for r in by(key="k3", quantity="diagnostic")] == ["ratio"]
-    failed = by(key="k4")
+    by = lambda **kw: [r for r in rows if all(r[k] == v for k, v in kw.items())]
+    energies = [r["value"] for r in by(key=K1, quantity="energy")]
+    assert energies == pytest.approx(dimer_levels(SPECTRUM_T, SPECTRUM_U)[:3], abs=1e-12)
+    assert by(key=K1, quantity="dimension")[0]["value"] == 4          # the S^z = 0 block
+    exchange = dimer_exchange(DERIVE_T, DERIVE_U)
+    exch = {r["order"]: r["value"] for r in by(key=K2, quantity="coupling", kind="exchange")}
+    assert set(exch) == {"total", "2", "4"}
+    assert exch["2"] == pytest.approx(exchange[2], rel=1e-10)
+    assert exch["4"] == pytest.approx(exchange[4], rel=1e-8)
+    assert exch["total"] == pytest.approx(exchange[2] + exchange[4], rel=1e-8)
+    assert all(r["sites"] == "0-1" for r in by(key=K2, quantity="coupling", kind="exchange"))
+    field = by(key=K5, quantity="coupling", kind="field", sites="1", order="1")
+    assert [r["component"] for r in field] == ["x", "y", "z"]
+    assert [r["value"] for r in field] == pytest.approx([0.0, 0.0, FIELD_H], abs=1e-14)
+    errors = [r["value"] for r in by(key=K2, quantity="max_abs_error")]
+    assert len(errors) == 5 and errors[4] < errors[2] < errors[0]    # the check improves with order
+    assert by(key=K2, quantity="manifold_dimension")[0]["value"] == 4  # two spins 1/2
+    assert by(key=K2, quantity="manifold_energy")[0]["value"] == 0.0
+    series = by(key=K3, quantity="series")
+    coefficients = ring_coefficients(SERIES_L, 4)
+    assert [r["order"] for r in series] == ["0", "1", "2", "3", "4", "total"]
+    assert [r["value"] for r in series[:-1]] == pytest.approx(
+        [float(c) * SERIES_G**n for n, c in enumerate(coefficients)], rel=1e-10, abs=1e-14)
+    assert series[-1]["value"] == pytest.approx(sum(r["value"] for r in series[:-1]), rel=1e-14)
+    diagnostics = {r["kind"] for r in by(key=K3, quantity="diagnostic")}
+    assert diagnostics == {"exact", "validity_ratio", "first_order_norm", "smallest_denominator"}
+    failed = by(key=K4)
     assert len(failed) == 1 and failed[0]["error"] == "ManifoldError: no gap"
-    assert all(r["U"] == 8.0 and r["size"] == "4" for r in rows)
+    assert all(r["U"] == 8.0 and r["size"] == "2" for r in rows)
+
+
+def test_a_record_that_does_not_parse_is_one_error_row():
+    broken = record(K1, result={"dimension": 4})          # no energies: not a spectrum
+    rows = table_rows([broken])
+    assert len(rows) == 1 and rows[0]["error"].startswith("ModelError: point " + K1)
 
 
 def test_csv_export(tmp_path):
     store = ResultStore(tmp_path)
-    store.put(_record("k1", result={"dimension": 36, "energies": [-2.0, -1.5]}))
-    store.put(_record("k2", task="derive", result=DERIVE, U=16.0))
+    store.put(record(K1, result=real_result("spectrum")))
+    store.put(record(K2, task="derive", result=real_result("derive"), U=16.0))
     n = write_csv(tmp_path, tmp_path / "table.csv")
     with open(tmp_path / "table.csv", newline="") as handle:
         rows = list(csv.DictReader(handle))
@@ -121,43 +145,51 @@ def test_csv_export(tmp_path):
 
 def test_dataframe_matches_table(tmp_path):
     store = ResultStore(tmp_path)
-    store.put(_record("k1", result={"dimension": 36, "energies": [-2.0, -1.5]}))
+    store.put(record(K1, result=real_result("spectrum")))
     try:
-        import pandas  # noqa: F401  (optional dependency)
+        import pandas
     except ImportError:
         with pytest.raises(ModelError, match="pandas"):
             to_dataframe(tmp_path)
         return
     frame = to_dataframe(tmp_path)
     assert frame.shape[0] == len(table_rows(load_results(tmp_path)))
-    assert list(frame["value"]) == [36, -2.0, -1.5]
+    assert list(frame["value"]) == pytest.approx([4, *dimer_levels(SPECTRUM_T, SPECTRUM_U)[:3]])
 
 
 def test_selectors():
-    spec = _record("k1", result={"dimension": 36, "energies": [-2.0, -1.5, -1.0]}, U=8.0, size=(6,))
-    assert scalar(spec, "energy") == -2.0
-    assert scalar(spec, "energy:2") == -1.0
-    assert scalar(spec, "gap:0:1") == pytest.approx(0.5)
-    derive = _record("k2", task="derive", result=DERIVE)
-    assert scalar(derive, "coupling:exchange:0-1") == 0.49
-    assert scalar(derive, "coupling:exchange", order=2) == 0.5
-    assert scalar(derive, "coupling:field:1:z") == 0.2
-    assert scalar(derive, "error") == 1e-4
-    assert scalar(derive, "error", order=2) == 1e-2
-    assert scalar(derive, "gap") == pytest.approx(0.5)          # from the check's exact levels
-    series = _record("k3", task="series", result=SERIES)
-    assert scalar(series, "series") == -0.49
-    assert scalar(series, "series", order=2) == -0.5
+    levels = dimer_levels(SPECTRUM_T, SPECTRUM_U)
+    spec = record(K1, result=real_result("spectrum"), U=8.0, size=(2,))
+    assert scalar(spec, "energy") == pytest.approx(levels[0], abs=1e-12)
+    assert scalar(spec, "energy:2") == pytest.approx(levels[2], abs=1e-12)
+    assert scalar(spec, "gap:0:1") == pytest.approx(levels[1] - levels[0], abs=1e-12)
+    derive = record(K2, task="derive", result=real_result("derive"))
+    exchange = dimer_exchange(DERIVE_T, DERIVE_U)
+    assert scalar(derive, "coupling:exchange:0-1") == pytest.approx(exchange[2] + exchange[4], rel=1e-8)
+    assert scalar(derive, "coupling:exchange", order=2) == pytest.approx(exchange[2], rel=1e-10)
+    field = record(K5, task="derive", result=real_result("field"))
+    assert scalar(field, "coupling:field:1:z", order=1) == pytest.approx(FIELD_H, rel=1e-12)
+    # the exact check: levels of the dimer (t = 0.1, U = 1), errors falling with the order
+    exact = dimer_levels(DERIVE_T, DERIVE_U)
+    assert scalar(derive, "gap") == pytest.approx(exact[1] - exact[0], abs=1e-12)
+    assert scalar(derive, "error") == scalar(derive, "error", order=4)
+    assert scalar(derive, "error", order=4) < scalar(derive, "error", order=2) < DERIVE_T
+    series = record(K3, task="series", result=real_result("series"))
+    coefficients = [float(c) * SERIES_G**n for n, c in enumerate(ring_coefficients(SERIES_L, 4))]
+    assert scalar(series, "series") == pytest.approx(math.fsum(coefficients), rel=1e-12)
+    assert scalar(series, "series", order=2) == pytest.approx(math.fsum(coefficients[:3]), rel=1e-12)
     assert axis_value(spec, "U") == 8.0
     assert axis_value(spec, "t/U") == 0.125
-    assert axis_value(spec, "1/L") == pytest.approx(1 / 6)
-    assert axis_value(spec, "N") == 6
-    with pytest.raises(ModelError, match="available: exchange:0-1, field:1"):
+    assert axis_value(spec, "1/L") == pytest.approx(1 / 2)
+    assert axis_value(spec, "N") == 2
+    with pytest.raises(ModelError, match="available: constant:, exchange:0-1"):
         scalar(derive, "coupling:dm")
     with pytest.raises(ModelError, match="component"):
-        scalar(derive, "coupling:field:1")
+        scalar(field, "coupling:field:1")
     with pytest.raises(ModelError, match="only 3 levels"):
         scalar(spec, "energy:5")
+    with pytest.raises(ModelError, match="holds no series"):
+        scalar(derive, "series")
     with pytest.raises(ModelError, match="not a parameter"):
         axis_value(spec, "V")
     with pytest.raises(ModelError, match="unknown quantity"):

@@ -5,7 +5,8 @@ builtin, so ``except ValueError`` keeps working in scripts.  The command line tu
 ``LowfoldError`` into one line on stderr and exit status 2.
 """
 
-__all__ = ["LowfoldError", "ModelError", "ManifoldError", "SizeError", "ConvergenceError"]
+__all__ = ["LowfoldError", "ModelError", "ManifoldError", "SizeError", "ConvergenceError",
+           "StoreError"]
 
 
 class LowfoldError(Exception):
@@ -30,3 +31,7 @@ class ConvergenceError(LowfoldError, RuntimeError):
     def __init__(self, message, partial=None):
         super().__init__(message)
         self.partial = partial
+
+
+class StoreError(LowfoldError, OSError):
+    """A results directory cannot be written (read-only, full, or in use by another scan)."""

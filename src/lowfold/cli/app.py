@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import contextlib
 import json
+from fractions import Fraction
 import sys
 from importlib import resources
 from pathlib import Path
@@ -22,6 +23,7 @@ from rich.console import Console
 from lowfold import __version__
 from lowfold.errors import LowfoldError, ModelError
 from lowfold.model.modelfile import load_model
+from lowfold.model.sector import Sector
 from lowfold.cli import render
 from lowfold.jobs.tasks import parse_lambda_range, run_task
 
@@ -58,6 +60,39 @@ def _emit_json(data: dict) -> None:
     sys.stdout.write(json.dumps(data) + "\n")
 
 
+def _sized(path: Path, size: Optional[str], boundary: Optional[str]):
+    """Load a model file, on a lattice of ``--size N[,M]`` / ``--boundary`` when given
+    (an infinite lattice given a size becomes periodic unless ``--boundary`` says otherwise;
+    a sector that fixes the particle number keeps its filling, particles per site)."""
+    m = load_model(path)
+    if size is None and boundary is None:
+        return m
+    cells = None
+    if size is not None:
+        try:
+            cells = [int(n) for n in size.split(",")]
+        except ValueError:
+            raise ModelError(f"--size: give N or N,M (integers), got {size!r}") from None
+    if boundary is not None and boundary not in ("open", "periodic"):
+        raise ModelError(f"--boundary: must be open or periodic, got {boundary!r}")
+    if boundary is None and "infinite" in m.lattice.boundary:
+        boundary = "periodic"
+    try:
+        resized = m.with_lattice(size=cells, boundary=boundary)
+        if m.sector.particles is not None and resized.n_sites != m.n_sites:
+            filling = Fraction(m.sector.particles, m.n_sites)
+            resized = resized.with_sector(Sector.from_filling(filling, resized.n_sites,
+                                                              sz=m.sector.sz))
+        return resized
+    except LowfoldError as exc:
+        flag = "--size" if size is not None else "--boundary"
+        raise type(exc)(f"{flag}: {exc}") from None
+
+
+_SIZE_HELP = "lattice size N or N,M (overrides the model file's)"
+_BOUNDARY_HELP = "open or periodic (overrides the model file's)"
+
+
 def parse_sweep(text: str):
     """``--sweep lambda=START:STOP:COUNT`` -> the coupling factors (errors name the flag)."""
     try:
@@ -69,9 +104,11 @@ def parse_sweep(text: str):
 @app.command()
 def spectrum(model: Path = typer.Argument(..., help="model file (TOML)"),
              levels: int = typer.Option(4, "--levels", "-k", help="number of lowest levels"),
-             json_out: bool = typer.Option(False, "--json", help="print one JSON object")):
+             json_out: bool = typer.Option(False, "--json", help="print one JSON object"),
+             size: Optional[str] = typer.Option(None, "--size", help=_SIZE_HELP),
+             boundary: Optional[str] = typer.Option(None, "--boundary", help=_BOUNDARY_HELP)):
     """The lowest energies of MODEL in its sector (Lanczos, or dense for small spaces)."""
-    m = load_model(model)
+    m = _sized(model, size, boundary)
     with _progress(not json_out) as progress:
         result = run_task("spectrum", m, {"levels": levels}, progress=progress)
     if json_out:
@@ -86,12 +123,24 @@ def derive(model: Path = typer.Argument(..., help="model file (TOML) with a [per
            latex: bool = typer.Option(False, "--latex", help="print the coupling table as LaTeX"),
            no_check: bool = typer.Option(False, "--no-check", help="skip the exact check"),
            check_scaling: bool = typer.Option(False, "--check-scaling",
-                                              help="fit the power of the error at smaller couplings")):
+                                              help="fit the power of the error at smaller couplings"),
+           export: Optional[Path] = typer.Option(None, "--export",
+                                                 help="write the effective spin model as a model file"),
+           size: Optional[str] = typer.Option(None, "--size", help=_SIZE_HELP),
+           boundary: Optional[str] = typer.Option(None, "--boundary", help=_BOUNDARY_HELP)):
     """Effective low-energy model of MODEL, order by order, checked against exact spectra."""
-    m = load_model(model)
+    m = _sized(model, size, boundary)
     options = {"order": order, "check": not no_check, "check_scaling": check_scaling}
     with _progress(not (json_out or latex)) as progress:
         result = run_task("derive", m, options, progress=progress)
+    if export is not None:
+        from lowfold.jobs.export import write_export
+        try:
+            write_export(result, export)
+        except ModelError as exc:
+            raise ModelError(f"--export: {exc}") from None
+        if not (json_out or latex):
+            err.print(f"effective model written to {export}", markup=False)
     if json_out:
         return _emit_json(result.to_dict())
     if latex:
@@ -106,9 +155,11 @@ def series(model: Path = typer.Argument(..., help="model file (TOML) with a [per
            state: Optional[str] = typer.Option(None, "--state",
                                                help="basis-state label (e.g. uudd) or level:K"),
            sweep: Optional[str] = typer.Option(None, "--sweep", help="lambda=START:STOP:COUNT"),
-           plot: Optional[Path] = typer.Option(None, "--plot", help="figure of the sweep (.png/.svg/.pdf)")):
+           plot: Optional[Path] = typer.Option(None, "--plot", help="figure of the sweep (.png/.svg/.pdf)"),
+           size: Optional[str] = typer.Option(None, "--size", help=_SIZE_HELP),
+           boundary: Optional[str] = typer.Option(None, "--boundary", help=_BOUNDARY_HELP)):
     """Perturbation series of one state of H0: energies by order, convergence, validity."""
-    m = load_model(model)
+    m = _sized(model, size, boundary)
     if plot is not None and sweep is None:
         sweep = "lambda=0:1:41"
     if plot is not None and plot.suffix.lower() not in (".png", ".svg", ".pdf"):
@@ -140,9 +191,14 @@ def scan(scan_file: Path = typer.Argument(..., metavar="SCAN", help="scan file (
          retry_failed: bool = typer.Option(False, "--retry-failed", help="recompute points stored as errors"),
          json_out: bool = typer.Option(False, "--json", help="print one JSON summary")):
     """Run a parameter / size scan on Dask, storing every finished point as it completes."""
-    from lowfold.scans.run import format_summary, run_scan
-    summary = run_scan(scan_file, out=out, scheduler=scheduler, workers=workers,
-                       retry_failed=retry_failed, progress=False if json_out else None)
+    from lowfold.scans.run import ScanInterrupted, format_summary, run_scan
+    try:
+        summary = run_scan(scan_file, out=out, scheduler=scheduler, workers=workers,
+                           retry_failed=retry_failed, progress=False if json_out else None)
+    except ScanInterrupted as exc:      # typer turns Ctrl-C into a silent exit 130
+        err.print(f"lowfold: interrupted: {exc.stored} of {exc.total} points are stored in "
+                  f"{exc.out}; run the same command again to resume", markup=False, soft_wrap=True)
+        raise typer.Exit(130) from None
     if json_out:
         _emit_json(summary.to_dict())
     else:
@@ -177,6 +233,8 @@ def plot(results: Path = typer.Argument(..., help="results directory of a scan")
                         exact_levels=exact_gap, series=series_dir, levels=levels,
                         variable=variable, degree=degree, power=power, per_site=per_site,
                         title=title)
+    for note in info.get("warnings", []):
+        err.print(f"lowfold: warning: {note}", markup=False, soft_wrap=True)
     if json_out:
         return _emit_json(info)
     print(f"figure written to {output}")
@@ -190,7 +248,7 @@ def demo(json_out: bool = typer.Option(False, "--json", help="print one JSON obj
         if not json_out:
             out.print(f"[bold]lowfold demo[/bold]: {file.name} (built-in example)\n")
         derive(file, order=None, json_out=json_out, latex=False, no_check=False,
-               check_scaling=False)
+               check_scaling=False, export=None, size=None, boundary=None)
 
 
 def main() -> None:

@@ -10,6 +10,7 @@ import numpy as np
 from rich.console import Console
 from rich.table import Table
 
+from lowfold.readout.formulas import latex_hamiltonian
 from lowfold.results import EffectiveModel, Spectrum, StateSeries
 from lowfold.results.effective import COUPLING_TOL
 
@@ -64,6 +65,7 @@ def print_derive(out: Console, err: Console, title: str, result: EffectiveModel)
         for kind, sites, cells, total, hint in rows:
             table.add_row(kind, sites, *cells, total, *([hint] if recognised else []))
         out.print(table)
+        _print_classes(out, result)
     elif not result.spin_form:
         out.print(f"effective matrix on {man.dimension} basis states (use --json for its entries)")
     if result.check is not None:
@@ -86,8 +88,28 @@ def print_derive(out: Console, err: Console, title: str, result: EffectiveModel)
     _warn(err, result.warnings)
 
 
+def _print_classes(out: Console, result: EffectiveModel) -> None:
+    """The coupling classes of a translation-invariant cluster (none: nothing printed), then
+    their formulas one per line (a formula column would not fit a narrow terminal)."""
+    if not result.classes:
+        return
+    orders = sorted({m for c in result.classes for m in c.orders})
+    table = Table(title="coupling classes (value of one member; members per site)")
+    for name in ("kind", "class", "per site", "value", *[f"order {n}" for n in orders]):
+        table.add_column(name, justify="left" if name in ("kind", "class") else "right", no_wrap=True)
+    for c in result.classes:
+        kind = f"{c.kind} {c.operator}" if c.operator else c.kind
+        table.add_row(kind, c.name, f"{c.multiplicity:.4g}", _fmt(c.value),
+                      *[_fmt(c.orders[n]) if n in c.orders else "" for n in orders])
+    out.print(table)
+    for c in result.classes:
+        if c.formula:
+            out.print(f"{c.kind} {c.name}: {c.formula}", markup=False, soft_wrap=True)
+
+
 def latex_couplings(result: EffectiveModel) -> str:
-    """The coupling table as a LaTeX ``tabular``."""
+    """The coupling table as a LaTeX ``tabular``; with coupling classes, then the effective
+    Hamiltonian in equations (:func:`lowfold.readout.formulas.latex_hamiltonian`)."""
     orders, rows = _coupling_rows(result)
     head = " & ".join(["kind", "sites", *[f"order {n}" for n in orders], "total"])
     lines = [r"\begin{tabular}{ll" + "r" * (len(orders) + 1) + "}", r"\hline", head + r" \\", r"\hline"]
@@ -95,6 +117,8 @@ def latex_couplings(result: EffectiveModel) -> str:
         lines.append(" & ".join([kind, f"${sites}$", *[f"${c}$" if c else "" for c in cells],
                                  f"${total}$"]) + r" \\")
     lines += [r"\hline", r"\end{tabular}"]
+    if result.classes:
+        lines += ["", latex_hamiltonian(result.model, result.classes)]
     return "\n".join(lines)
 
 

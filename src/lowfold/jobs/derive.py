@@ -20,6 +20,7 @@ from lowfold.build.basis import explicit_basis
 from lowfold.build.labels import state_labels, twice_sz
 from lowfold.errors import SizeError
 from lowfold.jobs.check import ManifoldBlock, exact_check
+from lowfold.jobs.classes import group_into_classes
 from lowfold.model.model import Model
 from lowfold.perturbation.diagnostics import manifold_diagnostics, merge_diagnostics
 from lowfold.perturbation.manifold import (Manifold, diagonal_energies, find_manifold,
@@ -66,6 +67,9 @@ def derive(model: Model, order: int | None = None, *, compare_exact: bool = True
     EffectiveModel
         ``model`` is the model derived (with the widened sector, if any).
     """
+    if model.lattice.infinite:       # linked-cluster expansion (jobs/lattice.py)
+        from lowfold.jobs.lattice import derive_infinite
+        return derive_infinite(model, order, progress=progress)
     say = progress or (lambda message: None)
     spec = model.perturbation
     if spec is None:
@@ -102,6 +106,7 @@ def derive(model: Model, order: int | None = None, *, compare_exact: bool = True
     warnings += list(diagnostics.warnings)
     labels = state_labels(model, manifold.states) if dim <= 4096 else []
     readout = _read_out(model, manifold.states, orders)
+    classes = group_into_classes(model, readout["couplings"], readout["residual"], warnings=warnings)
     check = scaling = None
     if compare_exact:
         say("exact check")
@@ -115,7 +120,7 @@ def derive(model: Model, order: int | None = None, *, compare_exact: bool = True
     return EffectiveModel(order, summary, tuple(orders), tuple(labels), readout["terms"],
                           readout["couplings"], readout["recognised"], check, scaling,
                           ManifoldDiagnostics.from_diagnostics(diagnostics, label_of),
-                          tuple(warnings), readout["residual"], model)
+                          tuple(warnings), readout["residual"], model, classes)
 
 
 def _whole_manifold(model: Model) -> tuple[Model, list[str]]:

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from typing import Callable
 
+from lowfold.errors import ModelError
 from lowfold.model.model import Model
 from lowfold.results import Spectrum
 from lowfold.solve import exact
@@ -21,6 +22,9 @@ def spectrum(model: Model, levels: int = 4, *, vectors: bool = False, method: st
     ``SizeError`` before building anything that would not fit in ``memory_limit`` bytes
     (default: 80 % of the available memory).  See :func:`lowfold.solve.exact.spectrum`.
     """
+    if model.lattice.infinite:
+        raise ModelError("the lattice is infinite: an exact spectrum needs a finite cluster; "
+                         "give the lattice a size (boundary open or periodic)")
     found = exact.spectrum(model, levels, vectors=vectors, method=method,
                            memory_limit=memory_limit, progress=progress)
     return Spectrum(found.dimension, found.energies, found.vectors, found.method)

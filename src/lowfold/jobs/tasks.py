@@ -21,7 +21,7 @@ from lowfold.jobs.series import state_series
 from lowfold.jobs.spectrum import spectrum
 from lowfold.jobs.sweep import lambda_grid
 from lowfold.model.model import Model
-from lowfold.results import EffectiveModel, Spectrum, StateSeries
+from lowfold.results import RESULT_TYPES, EffectiveModel, Spectrum, StateSeries
 
 __all__ = ["TASKS", "RESULT_TYPES", "run_task", "parse_lambda_range"]
 
@@ -66,8 +66,6 @@ def _series_task(model: Model, options: dict, progress) -> StateSeries:
 
 TASKS: dict[str, Callable] = {"spectrum": _spectrum_task, "derive": _derive_task,
                               "series": _series_task}
-RESULT_TYPES: dict[str, type] = {"spectrum": Spectrum, "derive": EffectiveModel,
-                                 "series": StateSeries}
 
 
 def run_task(task: str, model: Model, options: dict | None = None, *,

@@ -30,6 +30,11 @@ graph          (none) or [n]   -      ``sites = n``, ``bonds = [[i, j], ...]``; 
 ``boundary`` is one string for all directions or one per direction; the ladder has a single
 direction (along the legs), its rung direction is always open. A graph is always open.
 
+``boundary = "infinite"`` (one string, no size) is the whole lattice of the shape (not for a
+graph). It has no sites of its own (``n_sites == 0``): :meth:`Lattice.patch` gives finite
+open clusters of it (same coordinates and bond classes), and :attr:`Lattice.translations` /
+:attr:`Lattice.unit_cell` its primitive vectors and basis positions for embedding.
+
 Bond classes
 ------------
 The classes ``nearest``, ``next-nearest`` and ``third`` are the three smallest distinct
@@ -80,6 +85,7 @@ __all__ = ["SHAPES", "BOND_CLASSES", "MAX_SITES", "Lattice", "lattice_cycles", "
 SHAPES = ("chain", "ladder", "square", "triangular", "honeycomb", "kagome", "cubic", "graph")
 BOND_CLASSES = ("nearest", "next-nearest", "third")
 BOUNDARIES = ("open", "periodic")
+INFINITE = "infinite"
 MAX_SITES = 4096  # see "Size limit" in the module docstring
 
 _S3 = np.sqrt(3.0)
@@ -191,6 +197,29 @@ class Lattice:
             out.append(int(k))
         return np.array(out, dtype=np.int64).reshape(-1)
 
+    @property
+    def infinite(self) -> bool:
+        """True for ``boundary = "infinite"`` (the whole lattice, no sites of its own)."""
+        return INFINITE in self.boundary
+
+    @property
+    def translations(self) -> np.ndarray:
+        """Primitive translation vectors, one per row (Cartesian; not for a graph)."""
+        return np.array(_GEOMETRY[self.shape][0], dtype=float)
+
+    @property
+    def unit_cell(self) -> np.ndarray:
+        """Basis positions of the unit cell, one per row (Cartesian; not for a graph)."""
+        return np.array(_GEOMETRY[self.shape][1], dtype=float)
+
+    def patch(self, cells: int) -> "Lattice":
+        """An open cluster of ``cells`` unit cells along every direction of the shape
+        (coordinates and bond classes those of the infinite lattice; numbering as any
+        open cluster)."""
+        if self.shape == "graph":
+            raise ModelError("a graph has no unit cell to repeat into a patch")
+        return make_lattice(self.shape, [cells] * len(self.translations), "open")
+
 
 def make_lattice(shape: str, size=None, boundary="open", *, sites: int | None = None,
                  bonds=None) -> Lattice:
@@ -224,10 +253,15 @@ def make_lattice(shape: str, size=None, boundary="open", *, sites: int | None = 
     if not isinstance(shape, str) or shape not in SHAPES:
         raise ModelError(f"unknown lattice shape {shape!r}; use one of {', '.join(SHAPES)}")
     if shape == "graph":
+        if boundary == INFINITE:
+            raise ModelError("a graph cannot be infinite: give its sites and bonds, or use a "
+                             f"lattice shape ({', '.join(SHAPES[:-1])})")
         return _make_graph(size, boundary, sites, bonds)
     if sites is not None or bonds is not None:
         raise ModelError(f"sites and bonds are given only for shape \"graph\", not {shape!r}")
     vectors, basis = (np.array(a, dtype=float) for a in _GEOMETRY[shape])
+    if boundary == INFINITE or (_is_sequence(boundary) and INFINITE in boundary):
+        return _make_infinite(shape, size, boundary, vectors.shape[0], basis.shape[1])
     size = _check_size(shape, size, len(vectors))
     _check_site_count(shape, math.prod(size) * len(basis))
     boundary = _check_boundary(boundary, len(vectors))
@@ -376,6 +410,17 @@ def _make_graph(size, boundary, sites, bonds):
     distance = hops[pairs[:, 0], pairs[:, 1]]
     by_class = {name: pairs[distance == k] for k, name in enumerate(BOND_CLASSES, start=1)}
     return _frozen("graph", (n,), boundary, coords, by_class)
+
+
+def _make_infinite(shape, size, boundary, ndim, dim):
+    if boundary != INFINITE:
+        raise ModelError(f"boundary \"infinite\" applies to every direction: give it as one "
+                         f"string, not {boundary!r}")
+    if size is not None:
+        raise ModelError(f"an infinite {shape} lattice has no size: leave size out, or give a "
+                         "size with boundary \"open\" or \"periodic\"")
+    empty = {name: np.zeros((0, 2), dtype=np.int64) for name in BOND_CLASSES}
+    return _frozen(shape, (), (INFINITE,) * ndim, np.zeros((0, dim)), empty)
 
 
 def _frozen(shape, size, boundary, coords, by_class):

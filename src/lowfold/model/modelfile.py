@@ -20,6 +20,7 @@ from lowfold.errors import ModelError, SizeError
 from lowfold.model.lattice import make_lattice
 from lowfold.model.model import Model, PerturbationSpec
 from lowfold.model.sites import check_state_space, make_site
+from lowfold.model.spin_terms import SPIN_TERM_TYPES
 from lowfold.model.terms import TERM_TYPES, TWO_SITE_TYPES, Term, check_label, check_strength
 
 __all__ = ["load_model", "parse_model", "read_toml"]
@@ -28,7 +29,8 @@ _TOP_KEYS = {"title", "lattice", "site", "sector", "parameters", "term", "pertur
 _LATTICE_KEYS = {"shape", "size", "boundary", "sites", "bonds"}
 _SITE_KEYS = {"type", "spin", "max_occupation"}
 _SECTOR_KEYS = {"particles", "sz"}
-_TERM_KEYS = {"type", "strength", "bonds", "sites", "label", "axis", "operators", "conjugate"}
+_TERM_KEYS = {"type", "strength", "bonds", "sites", "label", "axis", "operators", "conjugate",
+              "cycles", "pattern", "vector", "tensor"}
 _PERTURBATION_KEYS = {"unperturbed", "order", "manifold", "window", "tolerance"}
 
 
@@ -150,6 +152,9 @@ def _parse_lattice(table: dict):
     if not isinstance(shape, str):
         raise ModelError("lattice.shape: missing or not a string")
     if shape == "graph":
+        if table.get("boundary") == "infinite":
+            raise ModelError("lattice.boundary: a graph cannot be infinite; use a lattice shape "
+                             "(chain, ladder, square, ...) or open graph bonds")
         for key in ("size", "boundary"):
             if key in table:
                 raise ModelError(f"lattice.{key}: not used with shape = \"graph\" (give sites and bonds)")
@@ -162,6 +167,11 @@ def _parse_lattice(table: dict):
     for key in ("sites", "bonds"):
         if key in table:
             raise ModelError(f"lattice.{key}: only used with shape = \"graph\"")
+    if table.get("boundary") == "infinite":
+        if "size" in table:
+            raise ModelError("lattice.size: not used with boundary = \"infinite\" (leave it out, "
+                             "or give boundary \"open\" or \"periodic\")")
+        return make_lattice(shape, None, "infinite")
     size = table.get("size")
     if isinstance(size, int) and not isinstance(size, bool):
         size = [size]
@@ -240,12 +250,12 @@ def _parse_terms(entries, parameters: dict) -> tuple[Term, ...]:
         bonds, sites = table.get("bonds"), table.get("sites")
         if kind in TWO_SITE_TYPES and sites is not None:
             raise ModelError(f"{where}.sites: a {kind} term acts on bonds; use 'bonds'")
-        if kind not in TWO_SITE_TYPES and kind != "product" and bonds is not None:
+        if kind not in TWO_SITE_TYPES + ("product", "dm", "anisotropy", "pauli") and bonds is not None:
             raise ModelError(f"{where}.bonds: a {kind} term acts on sites; use 'sites'")
         operators = table.get("operators")
         if operators is not None:
-            if kind != "product":
-                raise ModelError(f"{where}.operators: only used by product terms")
+            if kind not in ("product", "pauli"):
+                raise ModelError(f"{where}.operators: only used by product and pauli terms")
             if not isinstance(operators, list) or not all(isinstance(o, str) for o in operators):
                 raise ModelError(f"{where}.operators: must be a list of operator names")
             operators = tuple(operators)
@@ -253,8 +263,8 @@ def _parse_terms(entries, parameters: dict) -> tuple[Term, ...]:
             bonds = "nearest" if operators is not None and len(operators) == 2 else None
             sites = None if bonds else "all"
         axis = table.get("axis")
-        if axis is not None and kind != "field":
-            raise ModelError(f"{where}.axis: only used by field terms")
+        if axis is not None and kind not in ("field", "dm"):
+            raise ModelError(f"{where}.axis: only used by field and dm terms")
         if kind == "field" and axis is None:
             raise ModelError(f"{where}.axis: a field term needs axis = \"x\", \"y\" or \"z\"")
         conjugate = table.get("conjugate", False)
@@ -262,8 +272,11 @@ def _parse_terms(entries, parameters: dict) -> tuple[Term, ...]:
             raise ModelError(f"{where}.conjugate: must be true or false")
         if conjugate and kind != "product":
             raise ModelError(f"{where}.conjugate: only used by product terms")
+        extra = _spin_keys(table, kind, where)
+        sites = (_groups(sites, f"{where}.sites") if kind in SPIN_TERM_TYPES
+                 else _selector(sites, f"{where}.sites", 1))
         terms.append(Term(label, kind, strength, _selector(bonds, f"{where}.bonds", 2),
-                          _selector(sites, f"{where}.sites", 1), axis, operators, conjugate))
+                          sites, axis, operators, conjugate, **extra))
     return tuple(terms)
 
 
@@ -279,6 +292,48 @@ def _selector(value, where: str, width: int):
     if not all(isinstance(b, list) and len(b) == 2 and all(isinstance(i, int) for i in b) for b in value):
         raise ModelError(f"{where}: must be a list of [i, j] pairs")
     return tuple(tuple(b) for b in value)
+
+
+def _spin_keys(table: dict, kind: str, where: str) -> dict:
+    """``cycles``, ``pattern``, ``vector`` and ``tensor`` of the multi-spin term types."""
+    users = {"cycles": ("ring", "chirality", "pauli"), "pattern": ("ring", "chirality", "dm",
+             "anisotropy", "pauli"), "vector": ("dm",), "tensor": ("anisotropy",)}
+    out = {}
+    for key, kinds in users.items():
+        value = table.get(key)
+        if value is None:
+            continue
+        if kind not in kinds:
+            raise ModelError(f"{where}.{key}: only used by {', '.join(kinds)} terms")
+        if key == "cycles":
+            if value not in (3, 4) or isinstance(value, bool):
+                raise ModelError(f"{where}.cycles: must be 3 (triangles) or 4 (4-cycles), got {value!r}")
+        elif key == "pattern":
+            if not isinstance(value, list) or not all(isinstance(v, list) for v in value):
+                raise ModelError(f"{where}.pattern: must be a list of cell offsets, e.g. [[0, 0], [1, 0]]")
+            value = tuple(tuple(v) for v in value)
+        elif key == "vector":
+            if not isinstance(value, list) or len(value) != 3:
+                raise ModelError(f"{where}.vector: must be [Dx, Dy, Dz]")
+            value = tuple(_number(v, f"{where}.vector") for v in value)
+        else:
+            if not isinstance(value, list) or len(value) != 3 or not all(
+                    isinstance(r, list) and len(r) == 3 for r in value):
+                raise ModelError(f"{where}.tensor: must be a 3x3 list of rows")
+            value = tuple(tuple(_number(v, f"{where}.tensor") for v in r) for r in value)
+        out[key] = value
+    return out
+
+
+def _groups(value, where: str):
+    """``sites`` of a multi-spin term: "all", site indices, or a list of site groups."""
+    if value is None or isinstance(value, str):
+        return value
+    if isinstance(value, list) and value and all(isinstance(g, list) for g in value):
+        if not all(all(isinstance(i, int) and not isinstance(i, bool) for i in g) for g in value):
+            raise ModelError(f"{where}: site groups must list integer site indices")
+        return tuple(tuple(g) for g in value)
+    return _selector(value, where, 1)
 
 
 def _parse_perturbation(table: dict, terms) -> PerturbationSpec:

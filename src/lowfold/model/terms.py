@@ -10,6 +10,8 @@ already applied, the leftmost operator first, following docs/model-files.md (``[
 - ``exchange``:     ``s sum_bonds S_i . S_j`` (spin sites or electron spins)
 - ``field``:        ``s sum_sites S^a_i`` along ``axis``
 - ``product``:      ``s sum_(bonds or sites) O_1 O_2 ...`` (+ h.c. with ``conjugate``)
+- ``ring``, ``chirality``, ``dm``, ``anisotropy``, ``pauli``, ``constant``: the readout kinds
+  of an effective spin-1/2 model, see :mod:`lowfold.model.spin_terms`
 
 Strengths (numbers or the parameters they name) must be finite and either 0 or of size
 between ``1 / STRENGTH_LIMIT`` and :data:`STRENGTH_LIMIT` = 1e100 (:func:`check_strength`):
@@ -28,12 +30,14 @@ from dataclasses import dataclass
 from lowfold.errors import ModelError
 from lowfold.model.lattice import Lattice
 from lowfold.model.sites import Site
+from lowfold.model.spin_terms import SPIN_EXPANDERS, SPIN_TERM_TYPES
 
 __all__ = ["Term", "TERM_TYPES", "STRENGTH_LIMIT", "check_label", "check_strength", "expand_term"]
 
 STRENGTH_LIMIT = 1e100      # see the module docstring
 
-TERM_TYPES = ("hopping", "hubbard", "interaction", "potential", "exchange", "field", "product")
+TERM_TYPES = ("hopping", "hubbard", "interaction", "potential", "exchange", "field",
+              "product") + SPIN_TERM_TYPES
 TWO_SITE_TYPES = ("hopping", "interaction", "exchange")
 ONE_SITE_TYPES = ("hubbard", "potential", "field")
 
@@ -46,8 +50,11 @@ class Term:
 
     ``strength`` is a number or the name of a parameter; ``bonds`` is a bond class name or a
     tuple of pairs (two-site terms and two-operator products on bonds); ``sites`` is
-    ``"all"`` or a tuple of site indices (one-site terms and on-site products).  The label
-    is one printable line (:func:`check_label`): it is shown in messages and tables.
+    ``"all"`` or a tuple of site indices (one-site terms and on-site products), or for the
+    multi-spin types a tuple of site groups.  ``cycles`` (3 or 4), ``pattern`` (cell
+    offsets), ``vector`` (dm) and ``tensor`` (anisotropy) serve the multi-spin types
+    (:mod:`lowfold.model.spin_terms`).  The label is one printable line
+    (:func:`check_label`): it is shown in messages and tables.
     """
 
     label: str
@@ -58,6 +65,10 @@ class Term:
     axis: str | None = None
     operators: tuple[str, ...] | None = None
     conjugate: bool = False
+    cycles: int | None = None
+    pattern: tuple[tuple[int, ...], ...] | None = None
+    vector: tuple[float, ...] | None = None
+    tensor: tuple[tuple[float, ...], ...] | None = None
 
     def __post_init__(self):
         check_label(self.label, "term label")
@@ -199,4 +210,5 @@ _EXPANDERS = {
     "exchange": _exchange,
     "field": _field,
     "product": _product,
+    **SPIN_EXPANDERS,
 }

@@ -12,9 +12,9 @@ from typing import Any, Mapping, Sequence
 
 from lowfold.errors import ModelError
 from lowfold.plots.scan_figures import (exact_gap, plot_couplings, plot_errors, plot_finite_size,
-                                        plot_levels, successful_records)
+                                        plot_levels, select_where)
 from lowfold.scans.extrapolate import extrapolate_records
-from lowfold.scans.store import load_results
+from lowfold.scans.store import load_results, open_results
 
 __all__ = ["KINDS", "plot_results"]
 
@@ -59,21 +59,23 @@ def plot_results(
     series : path, optional
         Results directory of a series scan to overlay on a levels plot.
     where : dict, optional
-        Slice of a scan with several grid axes (not for finite-size, which fits each
-        combination of the other axes separately).
+        Slice of a scan with several grid axes; for finite-size, the points kept before
+        fitting (each remaining combination of the other axes is fitted separately).
     Other parameters are those of the plot functions.
 
     Returns
     -------
     dict
-        ``{"kind", "output", "points"}`` plus, for finite-size, ``"extrapolations"``: a list
+        ``{"kind", "output", "points", "warnings"}`` (``warnings``: files of the results
+        directory that were skipped) plus, for finite-size, ``"extrapolations"``: a list
         of ``{"group", "value", "error", "form", "warnings"}``.
     """
     if kind not in KINDS:
         raise ModelError(f"unknown plot kind {kind!r} (known: {', '.join(KINDS)})")
     if kind != "finite-size" and not x:
         raise ModelError(f"a {kind} plot needs an x axis (a parameter, e.g. 'U' or 't/U')")
-    records = load_results(results)
+    store = open_results(results)
+    records = store.records()
     if isinstance(exact_levels, str):
         try:
             first, second = (int(v) for v in exact_levels.split(","))
@@ -81,7 +83,8 @@ def plot_results(
             raise ModelError(f"--exact-gap: expected two level indices I,J, got {exact_levels!r}") from None
         exact_levels = (first, second)
     exact = exact_gap(*exact_levels) if exact_levels is not None else None
-    summary: dict[str, Any] = {"kind": kind, "output": os.fspath(output), "points": len(records)}
+    summary: dict[str, Any] = {"kind": kind, "output": os.fspath(output), "points": len(records),
+                               "warnings": store.warnings}
     if kind == "couplings":
         plot_couplings(records, x=x, quantity=quantity or "coupling:exchange", orders=orders,
                        exact=exact, unit=unit, where=where, title=title, output=output)
@@ -94,9 +97,9 @@ def plot_results(
     else:
         quantity = quantity or "energy"
         plot_finite_size(records, quantity=quantity, variable=variable, degree=degree, power=power,
-                         per_site=per_site, unit=unit, title=title, output=output)
-        fits = extrapolate_records(successful_records(records), quantity, variable=variable, degree=degree,
-                                   power=power, per_site=per_site, unit=unit)
+                         per_site=per_site, unit=unit, title=title, where=where, output=output)
+        fits = extrapolate_records(select_where(records, where), quantity, variable=variable,
+                                   degree=degree, power=power, per_site=per_site, unit=unit)
         summary["extrapolations"] = [
             {"group": e["group"], "value": None if e["fit"] is None else e["fit"].value,
              "error": None if e["fit"] is None else e["fit"].error,

@@ -22,18 +22,29 @@ from __future__ import annotations
 import itertools
 import math
 import os
+from dataclasses import dataclass
 from typing import Any, Callable, Iterable, Mapping, Sequence
 
 import numpy as np
 from matplotlib.figure import Figure
 
 from lowfold.errors import ModelError
-from lowfold.plots.style import axis_label, finish, new_figure, quantity_symbol, styled, styles, value_label
+from lowfold.plots.style import (
+    axis_label,
+    finish,
+    new_figure,
+    quantity_symbol,
+    styled,
+    styles,
+    value_label,
+)
+from lowfold.results import EffectiveModel, StateSeries
 from lowfold.scans.extrapolate import extrapolate_records
-from lowfold.scans.select import axis_value, scalar
+from lowfold.scans.select import axis_value, energy_levels, scalar
+from lowfold.scans.store import point_result
 
 __all__ = ["plot_couplings", "plot_errors", "plot_finite_size", "plot_levels", "exact_gap",
-           "successful_records"]
+           "ExactGap", "successful_records", "select_where"]
 
 
 def _title(records: Sequence[Mapping[str, Any]], title: str | None) -> str:
@@ -75,13 +86,19 @@ def _matches(record: Mapping[str, Any], name: str, wanted: Any) -> bool:
     return have == wanted
 
 
-def _slice(records: Iterable[Mapping[str, Any]], x: str, where: Mapping[str, Any] | None):
-    """Successful records matching ``where``, which must leave one point per x value."""
+def select_where(records: Iterable[Mapping[str, Any]], where: Mapping[str, Any] | None):
+    """The successful records whose grid values match ``where`` (all of them without it)."""
     good = successful_records(records)
     if where:
         good = [r for r in good if all(_matches(r, k, v) for k, v in where.items())]
         if not good:
             raise ModelError(f"no successful point matches where={dict(where)}")
+    return good
+
+
+def _slice(records: Iterable[Mapping[str, Any]], x: str, where: Mapping[str, Any] | None):
+    """Successful records matching ``where``, which must leave one point per x value."""
+    good = select_where(records, where)
     seen: dict[float, Mapping[str, Any]] = {}
     for r in good:
         value = axis_value(r, x)
@@ -99,30 +116,51 @@ def _orders_present(records, quantity: str) -> list[int]:
     head, *rest = quantity.split(":")
     orders: set[int] = set()
     for r in records:
-        result = r["result"]
-        if head == "series":
-            orders.update(int(k) for k in result.get("orders", {}))
-        elif head == "coupling":
-            for c in result.get("couplings", []):
-                if c.get("kind") == rest[0]:
-                    orders.update(int(k) for k in c.get("orders", {}))
-        elif head == "error":
-            by_order = (result.get("check") or {}).get("by_order", {})
+        result = point_result(r)
+        if head == "series" and isinstance(result, StateSeries):
+            orders.update(range(len(result.energies)))
+        elif head == "coupling" and isinstance(result, EffectiveModel):
+            for c in result.couplings:
+                if c.kind == rest[0]:
+                    orders.update(c.orders)
+        elif head == "error" and isinstance(result, EffectiveModel) and result.check is not None:
             previous = None
-            for k in sorted(by_order, key=int):   # orders that change the error
-                error = by_order[k]["max_abs_error"]
+            for k, error in sorted(result.check.max_abs_error.items()):   # orders that change it
                 if previous is None or error != previous:
-                    orders.add(int(k))
+                    orders.add(k)
                 previous = error
     return sorted(orders)
 
 
-def exact_gap(i: int, j: int, *, factor: float = 1.0) -> Callable[[Mapping[str, Any]], float]:
+@dataclass(frozen=True)
+class ExactGap:
+    """An ``exact=`` reference: ``factor * (E_j - E_i)`` of a record's exact levels.
+
+    Its legend label names the gap (``exact E_1 - E_0``), not the quantity it is drawn
+    beside: the gap equals the exchange only where the physics makes it so (the Hubbard
+    dimer's singlet-triplet gap is its J; on a ring of four sites it is not).
+    """
+
+    i: int
+    j: int
+    factor: float = 1.0
+
+    @property
+    def label(self) -> str:
+        scale = "" if self.factor == 1 else f"{self.factor:g} "
+        return f"exact {scale}$(E_{{{self.j}}} - E_{{{self.i}}})$"
+
+    def __call__(self, record: Mapping[str, Any]) -> float:
+        return self.factor * scalar(record, f"gap:{self.i}:{self.j}")
+
+
+def exact_gap(i: int, j: int, *, factor: float = 1.0) -> ExactGap:
     """An ``exact=`` callable: ``factor * (E_j - E_i)`` of the record's exact levels.
 
-    For the Hubbard dimer the exchange is the singlet-triplet gap, ``exact_gap(0, 1)``.
+    For the Hubbard dimer the exchange is the singlet-triplet gap, ``exact_gap(0, 1)``; the
+    legend says "exact (E_1 - E_0)", for that is what is drawn.
     """
-    return lambda record: factor * scalar(record, f"gap:{i}:{j}")
+    return ExactGap(i, j, factor)
 
 
 def _series_by_x(records, x, quantity, *, order=None, unit=None):
@@ -176,7 +214,7 @@ def plot_couplings(
     if exact is not None:
         pts = sorted((axis_value(r, x), exact(r) / _unit_value(r, unit)) for r in good)
         ax.plot([p[0] for p in pts], [p[1] for p in pts], linestyle="none", marker="*",
-                markersize=11, color="black", label="exact")
+                markersize=11, color="black", label=getattr(exact, "label", "exact"))
     ax.set_xlabel(axis_label(x))
     ax.set_ylabel(value_label(symbol, unit))
     ax.set_title(_title(good, title))
@@ -257,15 +295,18 @@ def plot_finite_size(
     unit: str | None = None,
     order: int | None = None,
     title: str | None = None,
+    where: Mapping[str, Any] | None = None,
     output: str | os.PathLike | None = None,
 ) -> Figure:
     """A quantity against ``(1/L)^power`` with its polynomial fit and extrapolated value.
 
     One curve per parameter point (scanned parameters other than the size, and the
     boundary); the extrapolated value with its uncertainty is drawn at x = 0 and quoted
-    in the legend.  See :func:`lowfold.scans.extrapolate.extrapolate_records`.
+    in the legend.  ``where`` keeps only the points of some grid values (e.g.
+    ``{"boundary": "periodic"}`` or ``{"U": 8}``) before fitting.  See
+    :func:`lowfold.scans.extrapolate.extrapolate_records`.
     """
-    good = successful_records(records)
+    good = select_where(records, where)
     fits = extrapolate_records(good, quantity, variable=variable, degree=degree, power=power,
                                per_site=per_site, unit=unit, order=order)
     fig = new_figure()
@@ -334,8 +375,7 @@ def plot_levels(
     good = _slice(records, x, where)
     fig = new_figure()
     ax = fig.axes[0]
-    n_stored = min(len(r["result"].get("energies") or (r["result"].get("check") or {}).get("exact") or [])
-                   for r in good)
+    n_stored = min(len(energy_levels(point_result(r)) or []) for r in good)
     n_levels = n_stored if levels is None else min(levels, n_stored)
     for k in range(n_levels):
         xs, ys = _series_by_x(good, x, f"energy:{k}", unit=unit)

@@ -1,6 +1,6 @@
 """The figure of a series sweep: exact levels against lambda, with the series of one state.
 
-:func:`plot_sweep` draws the ``"sweep"`` object of ``lowfold series --json`` (``lowfold
+:func:`plot_sweep` draws the :class:`~lowfold.results.Sweep` of a series result (``lowfold
 series --sweep ... --plot FILE``), in the style of :mod:`lowfold.plots.style`.
 """
 
@@ -14,6 +14,7 @@ import numpy as np
 from matplotlib.figure import Figure
 
 from lowfold.plots.style import finish, new_figure, styled, styles
+from lowfold.results import Sweep
 
 __all__ = ["plot_sweep"]
 
@@ -29,7 +30,7 @@ def _pick_orders(orders: Sequence[int], most: int) -> list[int]:
 
 @styled
 def plot_sweep(
-    sweep: Mapping[str, Any],
+    sweep: Sweep | Mapping[str, Any],
     *,
     title: str = "",
     orders: Sequence[int] | None = None,
@@ -40,10 +41,11 @@ def plot_sweep(
 
     Parameters
     ----------
-    sweep : dict
-        The ``"sweep"`` object of ``lowfold series --json``: ``lambda``, ``levels``
+    sweep : Sweep or dict
+        The sweep of a series result (``result.sweep``): ``lambdas``, ``levels``
         (n_lambda x k), ``followed`` (the exact level grown from the reference state),
-        ``series`` (order -> partial sums), ``avoided_crossings``, ``crossings``.
+        ``series`` (order -> partial sums), ``avoided``, ``crossings``; or its JSON
+        (the ``"sweep"`` object of ``lowfold series --json``), read by ``Sweep.from_dict``.
     title : str
         Figure title (the model's title).
     orders : sequence of int, optional
@@ -51,15 +53,17 @@ def plot_sweep(
     output : path, optional
         Image file (.png, .svg, .pdf).
     """
-    lam = np.asarray(sweep["lambda"], dtype=float)
-    levels = np.asarray(sweep["levels"], dtype=float).reshape(len(lam), -1)
+    if not isinstance(sweep, Sweep):
+        sweep = Sweep.from_dict(sweep)
+    lam = np.asarray(sweep.lambdas, dtype=float)
+    levels = np.asarray(sweep.levels, dtype=float).reshape(len(lam), -1)
     fig = new_figure()
     ax = fig.axes[0]
     for k in range(levels.shape[1]):
         ax.plot(lam, levels[:, k], color="0.6", linewidth=1.0, label="exact levels" if k == 0 else None)
-    followed = np.asarray(sweep["followed"], dtype=float)
-    ax.plot(lam, followed, color="black", linewidth=2.2, label="followed level")
-    series = {int(k): np.asarray(v, dtype=float) for k, v in sweep.get("series", {}).items()}
+    ax.plot(lam, np.asarray(sweep.followed, dtype=float), color="black", linewidth=2.2,
+            label="followed level")
+    series = {int(k): np.asarray(v, dtype=float) for k, v in sweep.series.items()}
     if orders is None:       # orders >= 1 that change the partial sum, at most `most` of them
         useful = [n for n in sorted(series) if n >= 1
                   and not np.array_equal(series[n], series.get(n - 1, np.full_like(lam, np.nan)))]
@@ -70,10 +74,10 @@ def plot_sweep(
         ax.plot(lam, series[order], color=colour, linestyle=ls, marker=marker,
                 markevery=max(1, len(lam) // 8), markerfacecolor="none",
                 label=f"series through order {order}")
-    for crossing in sweep.get("avoided_crossings", []):
-        ax.axvline(crossing["lambda"], color="0.3", linestyle=":", linewidth=1.0)
-    for crossing in sweep.get("crossings", []):
-        ax.axvline(crossing["lambda"], color="0.3", linestyle="-.", linewidth=1.0)
+    for crossing in sweep.avoided:
+        ax.axvline(crossing.lambda_, color="0.3", linestyle=":", linewidth=1.0)
+    for crossing in sweep.crossings:
+        ax.axvline(crossing.lambda_, color="0.3", linestyle="-.", linewidth=1.0)
     low, high = float(np.min(levels)), float(np.max(levels))
     margin = 0.1 * (high - low or 1.0)
     ax.set_ylim(low - margin, high + margin)      # divergent partial sums leave the frame

@@ -22,4 +22,12 @@ from lowfold.results.series import (AvoidedCrossing, LevelCrossing, Pade, RatioT
 __all__ = ["Spectrum", "ManifoldSummary", "ManifoldDiagnostics", "PauliTerm", "Recognised",
            "DeriveCheck", "PowerFit", "EffectiveModel", "CouplingClass", "Pade", "RatioTest", "StateAmplitude",
            "SecondOrderTerm", "AvoidedCrossing", "LevelCrossing", "Sweep", "StateSeries",
-           "orders_to_json", "orders_from_json"]
+           "orders_to_json", "orders_from_json", "RESULT_TYPES", "result_from_dict"]
+
+RESULT_TYPES = {"spectrum": Spectrum, "derive": EffectiveModel, "series": StateSeries}
+
+
+def result_from_dict(task: str, data):
+    """The result object of ``task`` (``spectrum | derive | series``) from its JSON, e.g. the
+    ``result`` of a stored scan point; ``KeyError`` for an unknown task."""
+    return RESULT_TYPES[task].from_dict(data)

@@ -236,6 +236,13 @@ class StateSeries:
             return None
         return {n: float(abs(s - self.exact)) for n, s in enumerate(self.partial_sums)}
 
+    def scalar_diagnostics(self) -> dict[str, float]:
+        """The diagnostics that are single numbers, by their JSON names (absent when None)."""
+        values = {"exact": self.exact, "validity_ratio": self.validity_ratio,
+                  "first_order_norm": self.first_order_norm,
+                  "smallest_denominator": self.smallest_denominator}
+        return {name: float(v) for name, v in values.items() if v is not None}
+
     def to_dict(self) -> dict:
         errors = self.error_by_order
         out = {

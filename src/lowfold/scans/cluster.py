@@ -2,7 +2,8 @@
 
 Every worker runs one thread: :data:`WORKER_ENV` pins the thread pools of numba, OpenMP,
 MKL and OpenBLAS to one, and :data:`WORKER_MALLOC` restores glibc's dynamic allocation
-thresholds (see there).  :func:`quiet_worker_plugin` makes local workers ignore Ctrl-C.
+thresholds (see there).  :func:`quiet_worker_plugin` makes local workers ignore Ctrl-C, and
+a killed scan leaves no "leaked semaphore" warning (:func:`_start_quiet_resource_tracker`).
 """
 
 from __future__ import annotations
@@ -63,6 +64,7 @@ def start_local_cluster(workers: int | None = None, **kwargs):
     # ":0": any free port for the scheduler's web server; the default (8787) makes a second
     # scan on the same machine fail to start ("Port 8787 is already in use").
     options.update(kwargs)
+    _start_quiet_resource_tracker()
     # The nanny sets its pre-spawn variables before starting a worker process (and again
     # when it restarts one), taking a value from os.environ before the dask config: set
     # both while the nannies are made, then restore the environment of this process.
@@ -78,6 +80,34 @@ def start_local_cluster(workers: int | None = None, **kwargs):
                 os.environ.pop(name, None)
             else:
                 os.environ[name] = value
+
+
+def _start_quiet_resource_tracker() -> None:
+    """Start multiprocessing's resource tracker of this process, told not to warn.
+
+    Each nanny of a LocalCluster makes two ``multiprocessing`` queues (three named
+    semaphores each) in this process, registered with the resource tracker, a helper
+    process that unlinks what a dying process leaves behind.  When the scan process is
+    killed (SIGKILL, out-of-memory killer) the tracker does unlink them, but first warns
+    "There appear to be 6 leaked semaphore objects" on the terminal, about a cleanup that
+    has in fact been done.  The tracker takes its warning filters from ``PYTHONWARNINGS``
+    when it starts (it is started once per process, on the first semaphore), so it is
+    started here with that one warning ignored; the environment of this process is
+    restored at once.  A tracker already running (started earlier by other code) is
+    left as it is.
+    """
+    from multiprocessing import resource_tracker
+
+    saved = os.environ.get("PYTHONWARNINGS")
+    quiet = "ignore:resource_tracker:UserWarning"
+    os.environ["PYTHONWARNINGS"] = quiet if not saved else f"{saved},{quiet}"
+    try:
+        resource_tracker.ensure_running()
+    finally:
+        if saved is None:
+            os.environ.pop("PYTHONWARNINGS", None)
+        else:
+            os.environ["PYTHONWARNINGS"] = saved
 
 
 def start_batch_cluster(system: str, *, jobs: int, cores: int, memory: str, walltime: str, **options):

@@ -15,7 +15,7 @@ from fractions import Fraction
 from typing import Any, Iterable, Mapping
 
 from lowfold.build.basis import sector_size
-from lowfold.errors import LowfoldError, ModelError
+from lowfold.errors import LowfoldError, ModelError, SizeError
 from lowfold.model.sector import Sector
 from lowfold.scans.scanfile import SECTOR_AXES, ScanSpec, scan_error
 from lowfold.scans.store import point_key
@@ -58,17 +58,29 @@ def _combinations(spec: ScanSpec):
 def _point_sector(base: Sector, fixed: Mapping[str, Any], values: Mapping[str, Any], n_sites: int):
     """The sector of a point, or an error message when it cannot be formed."""
     wanted = {**fixed, **{k: v for k, v in values.items() if k in SECTOR_AXES}}
-    particles, sz = base.particles, base.sz
-    if "particles" in wanted:
-        particles = int(wanted["particles"])
+    sz = Fraction(wanted["sz"]).limit_denominator(2) if "sz" in wanted else base.sz
     if "filling" in wanted:
-        count = wanted["filling"] * n_sites
-        if abs(count - round(count)) > 1e-9:
-            return None, f"filling {wanted['filling']:g} on {n_sites} sites gives {count:g} particles, not an integer"
-        particles = int(round(count))
-    if "sz" in wanted:
-        sz = Fraction(wanted["sz"]).limit_denominator(2)
+        try:
+            return Sector.from_filling(wanted["filling"], n_sites, sz=sz), None
+        except ModelError as exc:
+            return None, str(exc)
+    particles = int(wanted["particles"]) if "particles" in wanted else base.particles
     return Sector(particles, sz), None
+
+
+def _with_grid_parameters(spec: ScanSpec, model, params: Mapping[str, float]):
+    """``model`` with the point's parameter values; a value the model refuses is an error of
+    the scan file naming its grid key (``grid.U``)."""
+    try:
+        return model.with_parameters(params)
+    except ModelError as exc:
+        for name, value in params.items():          # which value: try them one by one
+            try:
+                model.with_parameters({name: value})
+            except ModelError as one:
+                text = str(one).removeprefix(f"parameters.{name}: ")
+                raise scan_error(spec.source, f"grid.{name}", text) from None
+        raise scan_error(spec.source, "grid", str(exc)) from None
 
 
 def _cost(model) -> float:
@@ -96,8 +108,9 @@ def plan_scan(spec: ScanSpec, model=None) -> list[ScanPoint]:
     Raises
     ------
     ModelError
-        A grid parameter the model does not define, or a lattice size / boundary the
-        model's lattice cannot take (naming the scan file and the key).
+        A grid parameter the model does not define or a value it refuses (``grid.U``), or
+        a lattice size / boundary the model's lattice cannot take, too large ones included
+        (``grid.size``); the message names the scan file and the key.
     """
     model = spec.base_model() if model is None else model
     for name, _ in spec.axes:
@@ -113,12 +126,13 @@ def plan_scan(spec: ScanSpec, model=None) -> list[ScanPoint]:
             try:
                 lattices[size, boundary] = (model if size is None and boundary is None
                                             else model.with_lattice(size=size, boundary=boundary))
-            except ModelError as exc:
+            except (ModelError, SizeError) as exc:
                 key = "grid.size" if size is not None else "grid.boundary"
-                raise scan_error(spec.source, key, f"{size or ''} {boundary or ''}: {exc}") from None
+                where = " ".join(str(v) for v in (size, boundary) if v is not None)
+                raise scan_error(spec.source, key, f"{where}: {exc}") from None
         point_model = lattices[size, boundary]
         params = {k: v for k, v in values.items() if k in model.parameters}
-        point_model = point_model.with_parameters(params)
+        point_model = _with_grid_parameters(spec, point_model, params)
         sector, problem = _point_sector(model.sector, spec.sector, values, point_model.n_sites)
         parameters = {k: float(v) for k, v in point_model.parameters.items()}
         sector_dict = _sector_dict(sector) if sector is not None else {"error": problem}

@@ -33,10 +33,11 @@ from lowfold.scans.cluster import available_cores, limit_threads, quiet_worker_p
 from lowfold.scans.plan import ScanPoint, order_by_cost, plan_scan
 from lowfold.scans.progress import ScanDisplay
 from lowfold.scans.scanfile import ScanSpec, load_scan
-from lowfold.scans.store import RECORD_FORMAT, ResultStore
+from lowfold.scans.store import RECORD_FORMAT, ResultStore, canonical_json
 from lowfold.scans.table import write_csv
 
-__all__ = ["ScanSummary", "run_scan", "evaluate_point", "format_summary", "model_fingerprint"]
+__all__ = ["ScanSummary", "ScanInterrupted", "run_scan", "evaluate_point", "format_summary",
+           "model_fingerprint"]
 
 
 def _now() -> str:
@@ -93,6 +94,7 @@ class ScanSummary:
     lost: int = 0
     elapsed: float = 0.0
     failures: list = field(default_factory=list)
+    warnings: list = field(default_factory=list)
 
     @property
     def ok(self) -> bool:
@@ -102,7 +104,22 @@ class ScanSummary:
         """The JSON object printed by ``lowfold scan --json``."""
         return {"scan": self.scan, "out": self.out, "points": self.total, "computed": self.computed,
                 "skipped": self.skipped, "failed": self.failed, "lost": self.lost,
-                "elapsed": self.elapsed, "ok": self.ok, "failures": self.failures}
+                "elapsed": self.elapsed, "ok": self.ok, "failures": self.failures,
+                "warnings": list(self.warnings)}
+
+
+class ScanInterrupted(KeyboardInterrupt):
+    """Ctrl-C during a scan: ``stored`` of ``total`` points are in the store ``out``.
+
+    A :class:`KeyboardInterrupt`, so ``except KeyboardInterrupt`` keeps working; the
+    message says how many points are stored and how to resume.
+    """
+
+    def __init__(self, stored: int, total: int, out: str):
+        super().__init__(f"interrupted: {stored} of {total} points are stored in {out}; run "
+                         "the scan again with the same results directory to compute the other "
+                         f"{total - stored} (stored points are not recomputed)")
+        self.stored, self.total, self.out = stored, total, out
 
 
 def _sha256(path: Path) -> str:
@@ -263,8 +280,13 @@ def run_scan(
     ------
     ModelError
         Invalid scan file, model file or grid (nothing runs).
-    KeyboardInterrupt
-        On Ctrl-C, after cancelling the outstanding points; finished points are stored.
+    StoreError
+        ``out`` cannot be written (read-only, full, below a file), or another scan is
+        writing to it (the store is locked while a scan writes; a scan with nothing to
+        compute writes nothing and needs no lock).
+    ScanInterrupted
+        On Ctrl-C (a KeyboardInterrupt), after cancelling the outstanding points; finished
+        points are stored, and the message says how many and how to resume.
     """
     clock = time.perf_counter()
     spec = load_scan(scan) if not isinstance(scan, ScanSpec) else scan
@@ -276,43 +298,82 @@ def run_scan(
     model = spec.base_model()
     points = plan_scan(spec, model)
     meta = {"model": _model_meta(spec, model), "version": _lowfold_version()}
-    model_sha = meta["model"]["sha256"]
+    manifest = {"scan": spec.source, "task": spec.task, "options": dict(spec.options),
+                "axes": {n: [list(v) if isinstance(v, tuple) else v for v in vals]
+                         for n, vals in spec.axes},
+                "combine": spec.combine, "sector": dict(spec.sector), **meta,
+                "points": [p.key for p in points]}
     store = ResultStore(out)
-    store.write_manifest({"scan": spec.source, "task": spec.task, "options": dict(spec.options),
-                          "axes": {n: [list(v) if isinstance(v, tuple) else v for v in vals]
-                                   for n, vals in spec.axes},
-                          "combine": spec.combine, "sector": dict(spec.sector), **meta,
-                          "points": [p.key for p in points], "written": _now()})
-    summary = ScanSummary(scan=spec.source, out=str(out), total=len(points))
+    summary, todo = _sort_points(points, spec, store, meta, retry_failed)
+    csv_path = Path(out) / "results.csv"
+    if todo or summary.computed or not csv_path.exists() or not _same_manifest(store, manifest):
+        with store.lock():      # another scan may have stored points meanwhile: sort again
+            summary, todo = _sort_points(points, spec, store, meta, retry_failed, write=True)
+            if not _same_manifest(store, manifest):
+                store.write_manifest({**manifest, "written": _now()})
+            try:
+                _run_todo(todo, points, spec, meta, store, summary, model, progress, compute,
+                          retries, client=client, scheduler=scheduler, workers=workers)
+            finally:
+                write_csv(store.records(), csv_path)
+    summary.warnings = list(store.warnings)
+    summary.elapsed = time.perf_counter() - clock
+    return summary
+
+
+def _same_manifest(store: ResultStore, manifest: Mapping[str, Any]) -> bool:
+    """Whether ``scan.json`` already describes this scan (its time stamp aside)."""
+    stored = store.manifest()
+    return stored is not None and {k: v for k, v in stored.items() if k != "written"} == _jsonable(manifest)
+
+
+def _jsonable(obj: Any) -> Any:
+    import json
+
+    return json.loads(canonical_json(obj))
+
+
+def _sort_points(points, spec, store, meta, retry_failed, *, write=False):
+    """A fresh summary counting the stored points, and the points still to compute.
+
+    Impossible points (``point.error``) are counted as computed; with ``write`` their
+    records are stored.
+    """
+    summary = ScanSummary(scan=spec.source, out=str(store.directory), total=len(points))
     todo = []
     for point in points:
         stored = store.get(point.key)
-        if not _needs_run(stored, model_sha, retry_failed):
+        if not _needs_run(stored, meta["model"]["sha256"], retry_failed):
             summary.skipped += 1
             if stored["status"] != "ok":
                 summary.failed += 1
                 summary.failures.append(_failure(stored))
         elif point.error is not None:
             record = _record(point, spec, meta, {"status": "error", "error": dict(point.error)})
-            store.put(record)
+            if write:
+                store.put(record)
             summary.computed += 1
             summary.failed += 1
             summary.failures.append(_failure(record))
         else:
             todo.append(point)
+    return summary, todo
+
+
+def _run_todo(todo, points, spec, meta, store, summary, model, progress, compute, retries, **where):
+    """Compute ``todo`` with a progress display; Ctrl-C becomes :class:`ScanInterrupted`."""
     show = sys.stderr.isatty() if progress is None else progress
     display = ScanDisplay(show and bool(todo), len(points), len(points) - len(todo),
                           spec.title or model.title or spec.task)
     display.update(failed=summary.failed)
     try:
         if todo:
-            _execute(todo, spec, meta, store, summary, display, compute, retries,
-                     client=client, scheduler=scheduler, workers=workers)
+            _execute(todo, spec, meta, store, summary, display, compute, retries, **where)
+    except KeyboardInterrupt:
+        raise ScanInterrupted(summary.skipped + summary.computed, len(points),
+                              str(store.directory)) from None
     finally:
         display.close()
-        write_csv(store.records(), Path(out) / "results.csv")
-        summary.elapsed = time.perf_counter() - clock
-    return summary
 
 
 def _execute(todo, spec, meta, store, summary, display, compute, retries, *, client, scheduler, workers):
@@ -347,4 +408,5 @@ def format_summary(summary: ScanSummary) -> str:
         lines.append(f"  failed: {values}: {error.get('type')}: {error.get('message')}")
     if len(summary.failures) > 10:
         lines.append(f"  ... and {len(summary.failures) - 10} more (see {summary.out}/results.csv)")
+    lines.extend(f"  warning: {note}" for note in summary.warnings)
     return "\n".join(lines)

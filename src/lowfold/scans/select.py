@@ -8,7 +8,10 @@ The plots and the finite-size fits read records through these selectors:
   derive check's exact spectrum), ``"gap:i:j"`` (``E_j - E_i``), ``"series"`` (the summed
   series energy), ``"coupling:KIND[:SITES[:COMPONENT]]"`` (e.g. ``"coupling:exchange:0-1"``,
   ``"coupling:field:2:z"``) and ``"error"`` (a derive check's max_abs_error); ``order=n``
-  sums a series or a coupling through order n (:func:`cumulative_orders`).
+  sums a series or a coupling through order n.
+
+A record's ``result`` is read through its typed result object (:func:`lowfold.scans.store.point_result`,
+:mod:`lowfold.results`), never by its JSON keys.
 """
 
 from __future__ import annotations
@@ -17,9 +20,12 @@ import math
 from typing import Any, Mapping
 
 from lowfold.errors import ModelError
+from lowfold.readout.couplings import Coupling
+from lowfold.results import EffectiveModel, Spectrum, StateSeries
+from lowfold.scans.store import point_result
 from lowfold.scans.table import flatten_components, sites_label
 
-__all__ = ["axis_value", "scalar", "cumulative_orders"]
+__all__ = ["axis_value", "scalar", "energy_levels"]
 
 
 def axis_value(record: Mapping[str, Any], spec: str) -> float:
@@ -45,11 +51,6 @@ def axis_value(record: Mapping[str, Any], spec: str) -> float:
         f"of point {record.get('key', '?')}")
 
 
-def cumulative_orders(orders: Mapping[str, Any], through: int | None = None) -> float:
-    """Sum of the per-order contributions ``{"2": c2, "4": c4}`` through order ``through``."""
-    return math.fsum(float(v) for k, v in orders.items() if through is None or int(k) <= through)
-
-
 def _component(value: Any, component: str | None, what: str) -> float:
     if component is None or component == "":
         if isinstance(value, (list, tuple)):
@@ -61,16 +62,24 @@ def _component(value: Any, component: str | None, what: str) -> float:
     raise ModelError(f"{what}: no component {component!r}")
 
 
-def _coupling(result: Mapping[str, Any], kind: str, sites: str | None) -> Mapping[str, Any]:
-    matches = [c for c in result.get("couplings", []) if c.get("kind") == kind
-               and (sites is None or sites_label(c.get("sites", [])) == sites)]
+def _coupling(result: EffectiveModel, kind: str, sites: str | None) -> Coupling:
+    matches = [c for c in result.couplings if c.kind == kind
+               and (sites is None or sites_label(c.sites) == sites)]
     if len(matches) == 1:
         return matches[0]
-    available = sorted({f"{c.get('kind')}:{sites_label(c.get('sites', []))}"
-                        for c in result.get("couplings", [])})
+    available = sorted({f"{c.kind}:{sites_label(c.sites)}" for c in result.couplings})
     reason = "no" if not matches else "more than one"
     raise ModelError(f"{reason} coupling {kind}{':' + sites if sites else ''}; "
                      f"available: {', '.join(available) or 'none'}")
+
+
+def energy_levels(result) -> list[float] | None:
+    """The energy levels a result holds: a spectrum's, or a derive's exact check (else None)."""
+    if isinstance(result, Spectrum):
+        return [float(e) for e in result.energies]
+    if isinstance(result, EffectiveModel) and result.check is not None:
+        return list(result.check.exact)
+    return None
 
 
 def scalar(record: Mapping[str, Any], quantity: str, *, order: int | None = None) -> float:
@@ -89,41 +98,44 @@ def scalar(record: Mapping[str, Any], quantity: str, *, order: int | None = None
     """
     if record.get("status") != "ok":
         raise ModelError(f"point {record.get('key', '?')} failed; it has no {quantity}")
-    result = record.get("result") or {}
+    task = record.get("task", "")
+    result = point_result(record)
     head, *rest = quantity.split(":")
     if head in ("energy", "gap"):
-        levels = result.get("energies")
+        levels = energy_levels(result)
         if levels is None:
-            levels = (result.get("check") or {}).get("exact")
-        if levels is None:
-            raise ModelError(f"{quantity}: the {record.get('task')} result holds no energy levels")
+            raise ModelError(f"{quantity}: the {task} result holds no energy levels")
         idx = [int(i) for i in rest] or ([0] if head == "energy" else [0, 1])
         if max(idx) >= len(levels):
             raise ModelError(f"{quantity}: only {len(levels)} levels stored (raise 'levels')")
         return float(levels[idx[0]]) if head == "energy" else float(levels[idx[1]]) - float(levels[idx[0]])
     if head == "series":
+        if not isinstance(result, StateSeries):
+            raise ModelError(f"{quantity}: the {task} result holds no series")
         if order is None:
-            return float(result["energy"])
-        return cumulative_orders(result["orders"], order)
+            return result.energy
+        return math.fsum(float(e) for m, e in enumerate(result.energies) if m <= order)
     if head == "coupling":
         if not rest:
             raise ModelError("coupling selector needs a kind: coupling:KIND[:SITES[:COMPONENT]]")
+        if not isinstance(result, EffectiveModel):
+            raise ModelError(f"{quantity}: the {task} result holds no couplings")
         kind = rest[0]
         sites = rest[1] if len(rest) > 1 and rest[1] else None
         component = rest[2] if len(rest) > 2 else None
         coupling = _coupling(result, kind, sites)
         what = f"coupling {kind}"
         if order is None:
-            return _component(coupling["value"], component, what)
+            return _component(coupling.value, component, what)
         return math.fsum(_component(v, component, what)
-                         for k, v in coupling.get("orders", {}).items() if int(k) <= order)
+                         for k, v in coupling.orders.items() if k <= order)
     if head == "error":
-        by_order = (result.get("check") or {}).get("by_order") or {}
-        if not by_order:
+        check = result.check if isinstance(result, EffectiveModel) else None
+        if check is None or not check.max_abs_error:
             raise ModelError(f"{quantity}: the result holds no check (run derive with check)")
-        key = str(order) if order is not None else max(by_order, key=int)
-        if key not in by_order:
+        key = order if order is not None else max(check.max_abs_error)
+        if key not in check.max_abs_error:
             raise ModelError(f"{quantity}: no check at order {key}")
-        return float(by_order[key]["max_abs_error"])
+        return float(check.max_abs_error[key])
     raise ModelError(f"unknown quantity {quantity!r}: use energy[:k], gap:i:j, series, "
                      "coupling:KIND[:SITES[:COMPONENT]] or error")

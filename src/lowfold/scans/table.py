@@ -13,7 +13,8 @@ import os
 from typing import Any, Iterable, Mapping
 
 from lowfold.errors import ModelError
-from lowfold.scans.store import atomic_text_file, load_results
+from lowfold.results import EffectiveModel, Spectrum, StateSeries
+from lowfold.scans.store import atomic_text_file, load_results, point_result
 
 __all__ = ["TABLE_COLUMNS", "table_rows", "write_csv", "to_dataframe", "flatten_components",
            "sites_label"]
@@ -48,41 +49,41 @@ def flatten_components(value: Any) -> list[tuple[str, float]]:
     return [("", value)]
 
 
-def _result_rows(task: str, result: Mapping[str, Any]) -> list[dict]:
+def _result_rows(result: Spectrum | EffectiveModel | StateSeries) -> list[dict]:
+    """The scalars of one result object, as table rows."""
     rows: list[dict] = []
 
     def add(quantity, value, **extra):
         for component, number in flatten_components(value):
             rows.append({"quantity": quantity, "component": component, "value": number, **extra})
 
-    if task == "spectrum":
-        add("dimension", result.get("dimension"))
-        for k, energy in enumerate(result.get("energies", [])):
-            add("energy", energy, index=k)
-    elif task == "series":
-        for order, value in sorted(result.get("orders", {}).items(), key=lambda kv: int(kv[0])):
-            add("series", value, order=order)
-        add("series", result.get("energy"), order="total")
-        for name, value in sorted(result.get("diagnostics", {}).items()):
-            if isinstance(value, (int, float)) and not isinstance(value, bool):
-                add("diagnostic", value, kind=name)
-    elif task == "derive":
-        for coupling in result.get("couplings", []):
-            label = {"kind": coupling.get("kind", ""), "sites": sites_label(coupling.get("sites", []))}
-            add("coupling", coupling.get("value"), order="total", **label)
-            for order, value in sorted(coupling.get("orders", {}).items(), key=lambda kv: int(kv[0])):
-                add("coupling", value, order=order, **label)
-        for term in result.get("terms", []):
-            add("term", term.get("coefficient"), kind=term.get("operator", ""), order="total")
-        check = result.get("check") or {}
-        for k, energy in enumerate(check.get("exact", [])):
-            add("exact", energy, index=k)
-        for order, entry in sorted(check.get("by_order", {}).items(), key=lambda kv: int(kv[0])):
-            add("max_abs_error", entry.get("max_abs_error"), order=order)
-        manifold = result.get("manifold") or {}
-        for name in ("dimension", "energy", "gap"):
-            if name in manifold:
-                add("manifold_" + name, manifold[name])
+    if isinstance(result, Spectrum):
+        add("dimension", result.dimension)
+        for k, energy in enumerate(result.energies):
+            add("energy", float(energy), index=k)
+    elif isinstance(result, StateSeries):
+        for order, value in enumerate(result.energies):
+            add("series", float(value), order=str(order))
+        add("series", result.energy, order="total")
+        for name, value in sorted(result.scalar_diagnostics().items()):
+            add("diagnostic", value, kind=name)
+    elif isinstance(result, EffectiveModel):
+        for coupling in result.couplings:
+            label = {"kind": coupling.kind, "sites": sites_label(coupling.sites)}
+            add("coupling", coupling.value, order="total", **label)
+            for order, value in coupling.orders.items():
+                add("coupling", value, order=str(order), **label)
+        for term in result.terms:
+            add("term", term.coefficient, kind=term.operator, order="total")
+        if result.check is not None:
+            for k, energy in enumerate(result.check.exact):
+                add("exact", energy, index=k)
+            for order, error in result.check.max_abs_error.items():
+                add("max_abs_error", error, order=str(order))
+        manifold = result.manifold
+        for name, value in (("dimension", manifold.dimension), ("energy", manifold.energy),
+                            ("gap", manifold.gap)):
+            add("manifold_" + name, value)
     return rows
 
 
@@ -122,7 +123,12 @@ def table_rows(records: Iterable[Mapping[str, Any]]) -> list[dict]:
         for name, column in columns.items():
             base[column] = record.get("parameters", {}).get(name, "")
         if record.get("status") == "ok":
-            for row in _result_rows(record.get("task", ""), record.get("result") or {}):
+            try:
+                result = point_result(record)
+            except ModelError as exc:
+                rows.append({**base, "error": f"ModelError: {exc}"})
+                continue
+            for row in _result_rows(result):
                 rows.append({**base, **row})
         else:
             error = record.get("error") or {}

@@ -1,0 +1,291 @@
+"""Effective models and ground-state energies of infinite lattices (linked clusters).
+
+:func:`derive_infinite` and :func:`energy_per_site` run the linked-cluster expansion of
+:mod:`lowfold.perturbation.linked_clusters` with one Schrieffer–Wolff calculation per
+distinct cluster graph: the derive job on a ``graph`` model with the same site type, the
+V terms restricted to the cluster's bonds and the one-site H0 terms on its sites.  The sum
+per unit cell is read out as coupling classes (:class:`lowfold.results.CouplingClass`).
+
+Requirements (a :class:`~lowfold.errors.ModelError` otherwise): H0 is a sum of one-site
+terms, the manifold is the lowest level of H0 (a product of one-site manifolds), the sector
+fixes no total, and V terms act on bond classes or on all sites.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from lowfold.errors import ModelError
+from lowfold.model.lattice import Lattice, make_lattice
+from lowfold.model.model import Model, PerturbationSpec
+from lowfold.model.sector import Sector
+from lowfold.model.terms import ONE_SITE_TYPES, Term
+from lowfold.perturbation.linked_clusters import (ClusterWeights, LatticeSum, add_embedded,
+                                                  canonical_form, connected_edge_sets,
+                                                  lattice_sum)
+from lowfold.perturbation.orders import validate_order
+from lowfold.readout.couplings import spin_couplings
+from lowfold.readout.pauli import parse_pauli_string
+from lowfold.results import CouplingClass, EffectiveModel, ManifoldSummary
+
+__all__ = ["LinkedClusterRun", "derive_infinite", "energy_per_site", "linked_cluster_sum",
+           "check_linked_cluster_model", "open_cluster_sum", "read_classes"]
+
+TOL = 1e-10   # coefficients at or below this (absolute) are left out of the readout
+MAX_ORDER = 40        # as the derive job
+
+
+@dataclass(frozen=True)
+class LinkedClusterRun:
+    """One linked-cluster sum: the per-cell operator and what it took."""
+
+    total: LatticeSum
+    patch: Lattice
+    reference: int
+    n_basis: int
+    seconds: float
+
+
+def check_linked_cluster_model(model: Model) -> None:
+    """Raise a ModelError saying what is wrong when the linked-cluster route cannot take
+    ``model``."""
+    spec = model.perturbation
+    if spec is None:
+        model.unperturbed_labels          # raises the ModelError that explains it
+    if spec.window is not None or spec.manifold != "lowest":
+        raise ModelError("an infinite lattice needs manifold = \"lowest\" (a product of one-site "
+                         "manifolds), not an energy window; remove perturbation.window")
+    if not model.sector.is_full:
+        raise ModelError("an infinite lattice has no fixed totals: remove particles/sz from "
+                         "[sector] and select the filling with one-site H0 terms (e.g. a "
+                         "potential of -U/2 for the half-filled Hubbard model)")
+    for term in model.terms:
+        one_site = term.type in ONE_SITE_TYPES or (term.type == "product" and term.sites is not None)
+        if term.label in spec.unperturbed and not one_site:
+            raise ModelError(f"H0 term {term.label!r} ({term.type}) acts on bonds; the "
+                             "linked-cluster expansion needs H0 to be a sum of one-site terms: "
+                             "move it to the perturbation, or give the lattice a size")
+        if term.bonds is not None and not isinstance(term.bonds, str):
+            raise ModelError(f"term {term.label!r}: explicit bonds on an infinite lattice; use a "
+                             "bond class (nearest, next-nearest, third)")
+        if term.sites is not None and term.sites != "all":
+            raise ModelError(f"term {term.label!r}: explicit sites on an infinite lattice; use "
+                             "sites = \"all\"")
+        if (term.type == "product" and term.bonds is not None and term.operators is not None
+                and len(set(term.operators)) > 1 and not term.conjugate):
+            raise ModelError(f"term {term.label!r}: a product of different operators on bonds "
+                             "has a direction, which the cluster graphs do not keep")
+
+
+def _cluster_model(model: Model, labels: dict, graph, order: int) -> Model:
+    """The ``graph`` model of one cluster: V terms on its bonds, one-site terms on its sites."""
+    n, edges = graph
+    lattice = make_lattice("graph", sites=n, bonds=[(a, b) for a, b, _ in edges])
+    terms = []
+    for term in model.terms:
+        if term.bonds is None:
+            terms.append(replace(term, sites="all"))
+            continue
+        mine = tuple((a, b) for a, b, c in edges if term.label in labels[c])
+        if mine:
+            terms.append(replace(term, bonds=mine))
+    spec = PerturbationSpec(model.perturbation.unperturbed, order, "lowest", None,
+                            model.perturbation.tolerance)
+    return Model(lattice, model.site, tuple(terms), Sector(), model.parameters, spec,
+                 model.title, model.source)
+
+
+def _solver(model: Model, labels: dict, order: int, energy: bool):
+    from lowfold.jobs.derive import derive
+
+    def solve(graph):
+        result = derive(_cluster_model(model, labels, graph, order), order, compare_exact=False)
+        if energy:
+            if result.manifold.dimension != 1:
+                raise ModelError(f"the ground state of H0 is {result.manifold.dimension}-fold "
+                                 "degenerate on a cluster; the energy series needs a "
+                                 "non-degenerate reference state")
+            return {(): np.array([float(np.real(h.toarray()[0, 0])) for h in result.orders])}
+        if not result.manifold.spin_form:
+            raise ModelError(f"the manifold is not one spin-1/2 per site "
+                             f"({result.manifold.readout}); the infinite-lattice readout needs "
+                             "a one-site manifold of two states")
+        out = {}
+        for term in result.terms:
+            key = tuple(sorted(parse_pauli_string(term.operator)))
+            out[key] = np.array([term.orders.get(m, 0.0) for m in range(order + 1)])
+        return out
+    return solve
+
+
+def _even_trees(model: Model) -> bool:
+    """Tree pruning holds when every V term moves particles across its bond (hopping) and
+    the H0 manifold fixes each site's particle number (here: H0 of one-site terms that
+    commute with the particle number, whose lowest level is checked non-mixed by derive)."""
+    v = [model.term(label) for label in model.perturbation_labels]
+    return bool(v) and all(t.type == "hopping" for t in v)
+
+
+def linked_cluster_sum(model: Model, order: int, *, energy: bool = False,
+                       prune: bool = True) -> LinkedClusterRun:
+    """The linked-cluster sum per unit cell of ``model`` (an infinite lattice) to ``order``."""
+    start = time.perf_counter()
+    check_linked_cluster_model(model)
+    lat = model.lattice
+    bonded = [model.term(label) for label in model.perturbation_labels if model.term(label).bonds]
+    classes = sorted({t.bonds for t in bonded})
+    probe = lat.patch(5)
+    reach = max([1] + [_cell_reach(probe, c) for c in classes])
+    cells = 2 * max(order, 1) * reach + 3
+    patch = lat.patch(cells)
+    n_basis, ndim = len(lat.unit_cell), len(lat.translations)
+    centre = cells // 2
+    reference = sum(centre * cells**k for k in range(ndim))
+    bond_list, colours, labels = _coloured_bonds(model, patch)
+    weights = ClusterWeights(_solver(model, labels, order, energy), order,
+                             even_trees=prune and _even_trees(model))
+    cell_of = np.arange(patch.n_sites) // n_basis
+    total = lattice_sum(patch.n_sites, np.array(bond_list, dtype=np.int64).reshape(-1, 2),
+                        colours, cell_of, reference, n_basis, weights, order)
+    return LinkedClusterRun(total, patch, reference, n_basis, time.perf_counter() - start)
+
+
+def _coloured_bonds(model: Model, cluster: Lattice):
+    """V-bonds of a cluster of the model's shape, each with the colour of its set of terms."""
+    on_bond: dict[tuple, list[str]] = {}
+    for label in model.perturbation_labels:
+        term = model.term(label)
+        if term.bonds is not None:
+            for i, j in cluster.bonds(term.bonds):
+                on_bond.setdefault((int(i), int(j)), []).append(label)
+    colour_of, labels, bond_list, colours = {}, {}, [], []
+    for bond, names in sorted(on_bond.items()):
+        key = tuple(sorted(names))
+        if key not in colour_of:
+            colour_of[key] = len(colour_of)
+            labels[colour_of[key]] = key
+        bond_list.append(bond)
+        colours.append(colour_of[key])
+    return bond_list, colours, labels
+
+
+def open_cluster_sum(model: Model, cluster: Lattice, order: int, *, energy: bool = False,
+                     prune: bool = True) -> dict:
+    """Sum of the weights of every connected subcluster of a finite open ``cluster`` of the
+    model's shape, on the cluster's sites (the linked-cluster identity: this equals the
+    effective Hamiltonian of the cluster itself, order by order)."""
+    check_linked_cluster_model(model)
+    bonds, colours, labels = _coloured_bonds(model, cluster)
+    weights = ClusterWeights(_solver(model, labels, order, energy), order,
+                             even_trees=prune and _even_trees(model))
+    at: dict[int, list[int]] = {}
+    for k, (i, j) in enumerate(bonds):
+        at.setdefault(i, []).append(k)
+        at.setdefault(j, []).append(k)
+    adjacent = [sorted({f for s in bonds[k] for f in at[s] if f != k}) for k in range(len(bonds))]
+    sets = connected_edge_sets(adjacent, range(len(bonds)), min(order, len(bonds)))
+    total: dict = {}
+    clusters = [((s,), ()) for s in range(cluster.n_sites)]
+    clusters += [(tuple(sorted({s for n in es for s in bonds[n]})),
+                  tuple((*bonds[n], colours[n]) for n in es)) for es in sets]
+    for sites, edges in clusters:
+        index = {s: k for k, s in enumerate(sites)}
+        canon, label = canonical_form(len(sites), [(index[a], index[b], c) for a, b, c in edges])
+        inverse = {label[k]: sites[k] for k in range(len(sites))}
+        add_embedded(total, weights.weight(canon), inverse)
+    return total
+
+
+def _cell_reach(patch: Lattice, bond_class: str) -> int:
+    """Largest difference of cell coordinates along one direction across a bond."""
+    n_basis = len(patch.unit_cell)
+    cells = np.array(patch.size)
+    bonds = patch.bonds(bond_class)
+    if not len(bonds):
+        return 1
+    c = bonds // n_basis
+    coords = [np.stack([(c // int(np.prod(cells[:k]))) % cells[k] for k in range(len(cells))], -1)]
+    return int(np.abs(coords[0][:, 0] - coords[0][:, 1]).max())
+
+
+def energy_per_site(model: Model, order: int | None = None, *, prune: bool = True) -> np.ndarray:
+    """Ground-state energy per site of an infinite lattice, coefficient of each order
+    ``0..order`` (non-degenerate product reference state of H0)."""
+    order = validate_order(model.perturbation.order if order is None else order, maximum=MAX_ORDER)
+    run = linked_cluster_sum(model, order, energy=True, prune=prune)
+    return run.total.terms.get((), np.zeros(order + 1)) / run.n_basis
+
+
+def derive_infinite(model: Model, order: int | None = None, *, prune: bool = True,
+                    progress=None) -> EffectiveModel:
+    """The effective spin-1/2 model of an infinite lattice as coupling classes."""
+    if model.perturbation is None:
+        model.unperturbed_labels
+    order = validate_order(model.perturbation.order if order is None else order, maximum=MAX_ORDER)
+    if progress:
+        progress(f"linked clusters to order {order}")
+    run = linked_cluster_sum(model, order, prune=prune)
+    classes = read_classes(run, order)
+    energy = float(run.total.terms.get((), np.zeros(1))[0]) / run.n_basis
+    summary = ManifoldSummary(2, energy, None, "spin-1/2")
+    note = (f"infinite lattice: linked-cluster expansion, {run.total.clusters} clusters per "
+            f"unit cell, {run.total.distinct} distinct graphs computed")
+    return EffectiveModel(order, summary, warnings=(note,), model=model, classes=classes)
+
+
+def read_classes(run: LinkedClusterRun, order: int) -> tuple[CouplingClass, ...]:
+    """Coupling classes of a per-cell sum: named couplings per support of sites, members
+    with equal kind, class and values grouped, multiplicity = members per site."""
+    by_support: dict[tuple, dict] = {}
+    for key, values in run.total.terms.items():
+        if np.max(np.abs(values)) > TOL:
+            by_support.setdefault(tuple(s for s, _ in key), {})[key] = values
+    coords = run.patch.coordinates
+    groups: dict[tuple, list] = {}
+    for support, terms in sorted(by_support.items()):
+        local = {s: k for k, s in enumerate(support)}
+        table = {" ".join(f"{p}{local[s]}" for s, p in key) or "I": list(values)
+                 for key, values in terms.items()}
+        found, residual = spin_couplings(table, len(support), orders=list(range(order + 1)),
+                                         tol=TOL, ring_cycles=[], triangles=[])
+        for c in found:
+            sites = [support[k] for k in c.sites] if c.kind != "constant" else []
+            _member(groups, run, c.kind, sites, c.orders, None, coords)
+        for text, values in residual.items():
+            ops = parse_pauli_string(text)
+            _member(groups, run, "pauli", [support[k] for k, _ in ops],
+                    dict(enumerate(values)), " ".join(p for _, p in ops), coords)
+    out = []
+    for (kind, name, operator, _), members in groups.items():
+        sites, orders = members[0]
+        count = 1.0 if kind == "constant" else len(members) / run.n_basis
+        if kind == "constant":
+            orders = {m: v / run.n_basis for m, v in orders.items()}
+        out.append(CouplingClass(kind, name, tuple(tuple(float(x) for x in coords[s]) for s in sites),
+                                 count, {m: v for m, v in orders.items()
+                                         if np.max(np.abs(v)) > TOL}, None, operator))
+    return tuple(out)
+
+
+def _member(groups, run, kind, sites, orders, operator, coords) -> None:
+    name = _class_name(run.patch, sites, coords)
+    rounded = tuple(tuple(np.round(np.ravel(np.asarray(v, dtype=float)), 9).tolist())
+                    for _, v in sorted(orders.items()))
+    groups.setdefault((kind, name, operator, rounded), []).append((sites, dict(orders)))
+
+
+def _class_name(patch: Lattice, sites, coords) -> str:
+    if len(sites) == 0:
+        return "site"
+    if len(sites) == 1:
+        return "site"
+    if len(sites) == 2:
+        i, j = sorted(sites)
+        for name in ("nearest", "next-nearest", "third"):
+            if any(a == i and b == j for a, b in patch.bonds(name)):
+                return name
+        return f"distance {np.linalg.norm(coords[i] - coords[j]):.4g}"
+    return f"{len(sites)}-site"

@@ -1,0 +1,253 @@
+"""Linked-cluster expansion on an infinite lattice (Gelfand, Singh & Huse, J. Stat. Phys. 59,
+1093 (1990)).
+
+The perturbation V is a sum of bond terms (and one-site terms); H0 is a sum of one-site
+terms.  A *cluster* is a connected set of V-bonds (or a single site); a process of order n
+of the infinite lattice uses at most n bonds, so at order n every cluster with at most n
+bonds contributes.  The *weight* of a cluster is its own effective Hamiltonian minus the
+weights of its connected proper subclusters (embedded on its sites); the effective
+Hamiltonian of the lattice is the sum of the weights of every cluster of the lattice.
+
+Conventions
+-----------
+- An operator is a dict ``key -> ndarray`` of coefficients per order ``0..n``; a key is a
+  tuple of ``(site, letter)`` pairs sorted by site (``letter`` one of ``X Y Z``; ``()`` is
+  the identity).  Weights of a cluster are stored on its *canonical* site labels.
+- A cluster graph is ``(n_sites, edges)`` with ``edges`` a tuple of ``(a, b, colour)``,
+  ``a < b``, ``colour`` an integer naming the set of V terms on the bond.  Two clusters
+  are the same graph when a relabelling of sites maps edges and colours onto each other;
+  the canonical form comes from igraph's ``canonical_permutation`` (the BLISS algorithm) on
+  the graph with every edge subdivided by a vertex of the edge's colour.
+- The sum over the lattice is taken per unit cell: every cluster whose smallest cell index
+  (cells numbered as in :mod:`lowfold.model.lattice`) is the reference cell, once; each
+  Pauli string of the sum is then translated so that its own smallest cell is the
+  reference cell.  The result, :class:`LatticeSum`, holds one coefficient per translation
+  class of strings.
+"""
+
+from __future__ import annotations
+
+import itertools
+from dataclasses import dataclass
+from typing import Callable
+
+import igraph
+import numpy as np
+
+__all__ = ["ClusterGraph", "LatticeSum", "canonical_form", "connected_edge_sets",
+           "ClusterWeights", "lattice_sum", "add_embedded"]
+
+ClusterGraph = tuple[int, tuple[tuple[int, int, int], ...]]
+Operator = dict[tuple, np.ndarray]
+
+
+def canonical_form(n_sites: int, edges) -> tuple[ClusterGraph, list[int]]:
+    """Canonical graph of a coloured cluster and the map from its sites to canonical labels.
+
+    Returns
+    -------
+    graph : ClusterGraph
+        ``(n_sites, edges)`` on canonical labels, edges sorted: equal for isomorphic clusters.
+    label : list of int
+        ``label[a]`` is the canonical label of site ``a``.
+    """
+    edges = list(edges)
+    if not edges:
+        return (n_sites, ()), list(range(n_sites))
+    g = igraph.Graph(n=n_sites + len(edges))
+    g.add_edges([(a, n_sites + k) for k, (a, _, _) in enumerate(edges)]
+                + [(b, n_sites + k) for k, (_, b, _) in enumerate(edges)])
+    colours = [0] * n_sites + [1 + c for _, _, c in edges]
+    perm = g.canonical_permutation(color=colours)
+    order = sorted(range(n_sites), key=lambda a: perm[a])
+    label = [0] * n_sites
+    for rank, a in enumerate(order):
+        label[a] = rank
+    canon = tuple(sorted((min(label[a], label[b]), max(label[a], label[b]), c)
+                         for a, b, c in edges))
+    return (n_sites, canon), label
+
+
+def connected_edge_sets(adjacent: list[list[int]], seeds, max_edges: int) -> list[frozenset]:
+    """Every connected set of at most ``max_edges`` edges that contains a seed edge.
+
+    ``adjacent[e]`` lists the edges that share a site with edge ``e``.  Sets grow one
+    adjacent edge at a time; each set is returned once.
+    """
+    level = {frozenset([e]) for e in seeds}
+    found = list(level)
+    for _ in range(max_edges - 1):
+        grown = set()
+        for edges in level:
+            for e in edges:
+                for f in adjacent[e]:
+                    if f not in edges:
+                        grown.add(edges | {f})
+        level = grown
+        found.extend(level)
+    return found
+
+
+def _is_tree(graph: ClusterGraph) -> bool:
+    n, edges = graph
+    return len(edges) == n - 1
+
+
+def _subgraphs(graph: ClusterGraph):
+    """Connected proper subclusters of a cluster: single sites and connected edge subsets,
+    each as ``(sites, edges)`` on the cluster's labels."""
+    n, edges = graph
+    if not edges:
+        return
+    for a in range(n):
+        yield (a,), ()
+    for size in range(1, len(edges)):
+        for subset in itertools.combinations(edges, size):
+            sites = sorted({s for a, b, _ in subset for s in (a, b)})
+            if _connected(sites, subset):
+                yield tuple(sites), subset
+
+
+def _connected(sites, edges) -> bool:
+    reach, todo = {sites[0]}, [sites[0]]
+    while todo:
+        s = todo.pop()
+        for a, b, _ in edges:
+            for x, y in ((a, b), (b, a)):
+                if x == s and y not in reach:
+                    reach.add(y)
+                    todo.append(y)
+    return len(reach) == len(sites)
+
+
+def _local(sites, edges) -> tuple[int, list]:
+    index = {s: k for k, s in enumerate(sites)}
+    return len(sites), [(index[a], index[b], c) for a, b, c in edges]
+
+
+def add_embedded(target: Operator, source: Operator, site_of, scale: float = 1.0) -> None:
+    """``target += scale * source`` with the sites of ``source`` renamed by ``site_of``."""
+    for key, values in source.items():
+        new = tuple(sorted((site_of[s], p) for s, p in key))
+        if new in target:
+            target[new] = target[new] + scale * values
+        else:
+            target[new] = scale * values
+
+
+class ClusterWeights:
+    """Weights of clusters, computed once per canonical graph.
+
+    Parameters
+    ----------
+    solve : callable
+        ``solve(graph) -> Operator``: the effective Hamiltonian of the canonical cluster
+        ``graph`` (its own terms only), coefficients per order.
+    order : int
+        Highest order: clusters with more bonds have zero weight.
+    even_trees : bool
+        Prune trees with ``2 * bonds > order`` (valid when every V term moves a particle
+        across its bond and every site's manifold fixes its particle number: a closed
+        process crosses each bond of a tree an even number of times).
+    """
+
+    def __init__(self, solve: Callable[[ClusterGraph], Operator], order: int, *,
+                 even_trees: bool = False):
+        self._solve, self._order, self._even_trees = solve, order, even_trees
+        self._weights: dict[ClusterGraph, Operator] = {}
+        self.computed = 0          # graphs whose effective Hamiltonian was computed
+        self.pruned = 0            # graphs skipped by a pruning rule
+
+    def can_contribute(self, graph: ClusterGraph) -> bool:
+        bonds = len(graph[1])
+        if bonds > self._order:
+            return False
+        return not (self._even_trees and _is_tree(graph) and 2 * bonds > self._order)
+
+    def weight(self, graph: ClusterGraph) -> Operator:
+        """The weight of a canonical cluster (memoised)."""
+        if graph in self._weights:
+            return self._weights[graph]
+        if not self.can_contribute(graph):
+            self.pruned += 1
+            self._weights[graph] = {}
+            return {}
+        self.computed += 1
+        total = {k: np.array(v, dtype=float) for k, v in self._solve(graph).items()}
+        for sites, edges in _subgraphs(graph):
+            canon, label = canonical_form(*_local(sites, edges))
+            inverse = {label[k]: sites[k] for k in range(len(sites))}
+            add_embedded(total, self.weight(canon), inverse, -1.0)
+        self._weights[graph] = total
+        return total
+
+
+@dataclass(frozen=True)
+class LatticeSum:
+    """The effective Hamiltonian of the infinite lattice per unit cell.
+
+    Attributes
+    ----------
+    terms : dict
+        Pauli key on patch sites (a representative with its smallest cell the reference
+        cell) -> coefficients per order.
+    clusters : int
+        Clusters of the lattice summed (per unit cell, pruned ones included).
+    distinct : int
+        Distinct graphs whose effective Hamiltonian was computed.
+    """
+
+    terms: Operator
+    clusters: int
+    distinct: int
+
+
+def lattice_sum(n_sites: int, bonds, colours, cell_of, reference: int, n_basis: int,
+                weights: ClusterWeights, max_bonds: int) -> LatticeSum:
+    """Sum of the weights of every cluster whose smallest cell is the reference cell.
+
+    Parameters
+    ----------
+    n_sites : int
+        Sites of the patch; ``cell_of[s]`` is the cell index of site ``s`` and site
+        ``s = n_basis * cell + basis index`` (numbering of :mod:`lowfold.model.lattice`).
+    bonds : (m, 2) int array
+        V-bonds of the patch; ``colours[k]`` the colour of bond ``k``.
+    reference : int
+        Cell index of the reference cell (far enough from the edges of the patch).
+    """
+    keep = [k for k, (i, j) in enumerate(bonds) if min(cell_of[i], cell_of[j]) >= reference]
+    at = {}
+    for k in keep:
+        for s in bonds[k]:
+            at.setdefault(int(s), []).append(k)
+    adjacent = {k: sorted({f for s in bonds[k] for f in at[int(s)] if f != k}) for k in keep}
+    seeds = [k for k in keep if reference in (cell_of[bonds[k][0]], cell_of[bonds[k][1]])]
+    index = {k: n for n, k in enumerate(keep)}
+    sets = connected_edge_sets([[index[f] for f in adjacent[k]] for k in keep],
+                               [index[k] for k in seeds], max_bonds) if max_bonds else []
+    total: Operator = {}
+    clusters = [((s,), ()) for s in range(reference * n_basis, (reference + 1) * n_basis)]
+    clusters += [(tuple(sorted({int(s) for n in es for s in bonds[keep[n]]})),
+                  tuple((int(bonds[keep[n]][0]), int(bonds[keep[n]][1]), colours[keep[n]])
+                        for n in es)) for es in sets]
+    for sites, edges in clusters:
+        canon, label = canonical_form(*_local(sites, edges))
+        if not weights.can_contribute(canon):
+            weights.pruned += 1
+            continue
+        inverse = {label[k]: sites[k] for k in range(len(sites))}
+        add_embedded(total, weights.weight(canon), inverse)
+    return LatticeSum(_translate(total, cell_of, reference, n_basis), len(clusters),
+                      weights.computed)
+
+
+def _translate(terms: Operator, cell_of, reference: int, n_basis: int) -> Operator:
+    """Each string moved so that its smallest cell is the reference cell (patch numbering:
+    a shift of the cell index by d moves site s to s + n_basis * d, inside the patch)."""
+    out: Operator = {}
+    for key, values in terms.items():
+        shift = (min((cell_of[s] for s, _ in key), default=reference) - reference) * n_basis
+        new = tuple((s - shift, p) for s, p in key)
+        out[new] = out[new] + values if new in out else values
+    return out
