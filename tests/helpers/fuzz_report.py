@@ -31,10 +31,6 @@ KNOWN_DEFECTS = {
         "plot --output into a missing directory: a traceback (plots/from_directory.py)",
         lambda argv, failure: argv[0] == "plot"
         and _traceback_of(failure, "FileNotFoundError", "NotADirectoryError")),
-    "scan-out-not-a-directory": (
-        "scan --out naming an existing file: NotADirectoryError traceback (scans/store.py)",
-        lambda argv, failure: argv[0] == "scan"
-        and _traceback_of(failure, "NotADirectoryError", "FileExistsError")),
     "finite-size-json-nan": (
         ("plot --kind finite-size --json prints NaN for the error of an exact fit "
          "(plots/, scans/extrapolate.py): not strict JSON"),
@@ -43,10 +39,6 @@ KNOWN_DEFECTS = {
         ("plot: matplotlib's 'No artists with labels found to put in legend' UserWarning "
          "leaks to stderr (plots/scan_figures.py)"),
         lambda argv, failure: argv[0] == "plot" and "No artists with labels" in failure),
-    "null-result-record": (
-        ("a store record edited to status = \"ok\", result = null: plot crashes with an "
-         "AttributeError (scans/store.py accepts the record; plots/scan_figures.py reads it)"),
-        lambda argv, failure: argv[0] == "plot" and _traceback_of(failure, "'NoneType' object")),
     "finite-size-unknown-unit": (
         ("plot --kind finite-size --unit NAME with NAME not a parameter of the scan: KeyError "
          "traceback (scans/extrapolate.py)"),
