@@ -11,8 +11,9 @@ from __future__ import annotations
 
 import contextlib
 import json
-from fractions import Fraction
+import os
 import sys
+from fractions import Fraction
 from importlib import resources
 from pathlib import Path
 from typing import Optional
@@ -26,12 +27,18 @@ from lowfold.model.modelfile import load_model
 from lowfold.model.sector import Sector
 from lowfold.cli import render
 from lowfold.jobs.tasks import parse_lambda_range, run_task
+from lowfold.results.common import null_non_finite
 
+# help texts are plain text (rich_markup_mode=None): "[perturbation]" is a table name, not
+# markup, and on/off flags show no value type
 app = typer.Typer(add_completion=False, no_args_is_help=True, pretty_exceptions_enable=False,
+                  rich_markup_mode=None,
                   help="Effective low-energy models of lattice Hamiltonians, checked against "
                        "exact spectra.")
-out = Console(highlight=False)
-err = Console(stderr=True, highlight=False)
+# user text reaches these consoles (titles, file names, labels): no emoji codes, no
+# highlighting; markup only in the fixed wording, with user text escaped (render.user_text)
+out = Console(highlight=False, emoji=False)
+err = Console(stderr=True, highlight=False, emoji=False)
 
 
 def _version(value: bool):
@@ -57,7 +64,15 @@ def _progress(enabled: bool):
 
 
 def _emit_json(data: dict) -> None:
-    sys.stdout.write(json.dumps(data) + "\n")
+    """Print ``data`` as one line of strict JSON: a number that is not finite (an overflow)
+    is written as null, and a warning in ``warnings`` says where."""
+    data, where = null_non_finite(data)
+    if where:
+        shown = ", ".join(where[:4]) + (f" and {len(where) - 4} more" if len(where) > 4 else "")
+        data["warnings"] = [*data.get("warnings", []),
+                            f"{len(where)} number(s) not finite (overflow, or undefined) are "
+                            f"written as null: {shown}"]
+    sys.stdout.write(json.dumps(data, allow_nan=False) + "\n")
 
 
 def _sized(path: Path, size: Optional[str], boundary: Optional[str]):
@@ -101,8 +116,22 @@ def parse_sweep(text: str):
         raise ModelError(f"--sweep: {exc}") from None
 
 
+def check_writable(path: Path, flag: str) -> None:
+    """Refuse, before any computation, an output file that cannot be written: its directory
+    missing or not writable, or the path a directory or a read-only file."""
+    parent = path.parent
+    if path.is_dir():
+        raise ModelError(f"{flag}: {str(path)!r} is a directory, not a file name")
+    if not parent.is_dir():
+        raise ModelError(f"{flag}: the directory {str(parent)!r} does not exist")
+    target = path if path.exists() else parent
+    if not os.access(target, os.W_OK):
+        raise ModelError(f"{flag}: cannot write {str(path)!r} (permission denied or a "
+                         "read-only file system)")
+
+
 @app.command()
-def spectrum(model: Path = typer.Argument(..., help="model file (TOML)"),
+def spectrum(model: Path = typer.Argument(..., metavar="MODEL", help="model file (TOML)"),
              levels: int = typer.Option(4, "--levels", "-k", help="number of lowest levels"),
              json_out: bool = typer.Option(False, "--json", help="print one JSON object"),
              size: Optional[str] = typer.Option(None, "--size", help=_SIZE_HELP),
@@ -116,21 +145,40 @@ def spectrum(model: Path = typer.Argument(..., help="model file (TOML)"),
     render.print_spectrum(out, m.title, result)
 
 
+def _parse_check_levels(text: Optional[str]):
+    """``--check-levels all|K`` -> ``"all"``, an int, or None (the default)."""
+    if text is None:
+        return None
+    if text.strip().lower() == "all":
+        return "all"
+    if text.strip().isdigit() and int(text) >= 1:
+        return int(text)
+    raise ModelError(f"--check-levels: give all or a positive whole number, got {text!r}")
+
+
 @app.command()
-def derive(model: Path = typer.Argument(..., help="model file (TOML) with a [perturbation] table"),
+def derive(model: Path = typer.Argument(..., metavar="MODEL",
+                                         help="model file (TOML) with a [perturbation] table"),
            order: Optional[int] = typer.Option(None, "--order", "-n", help="highest order (default: the file's)"),
            json_out: bool = typer.Option(False, "--json", help="print one JSON object"),
            latex: bool = typer.Option(False, "--latex", help="print the coupling table as LaTeX"),
            no_check: bool = typer.Option(False, "--no-check", help="skip the exact check"),
            check_scaling: bool = typer.Option(False, "--check-scaling",
                                               help="fit the power of the error at smaller couplings"),
+           check_levels: Optional[str] = typer.Option(None, "--check-levels", metavar="all|K",
+                                                      help="lowest levels of each S^z block the check compares (default 8)"),
            export: Optional[Path] = typer.Option(None, "--export",
                                                  help="write the effective spin model as a model file"),
            size: Optional[str] = typer.Option(None, "--size", help=_SIZE_HELP),
            boundary: Optional[str] = typer.Option(None, "--boundary", help=_BOUNDARY_HELP)):
     """Effective low-energy model of MODEL, order by order, checked against exact spectra."""
+    levels = _parse_check_levels(check_levels)
     m = _sized(model, size, boundary)
+    if export is not None:
+        check_writable(export, "--export")
     options = {"order": order, "check": not no_check, "check_scaling": check_scaling}
+    if levels is not None:
+        options["check_levels"] = levels
     with _progress(not (json_out or latex)) as progress:
         result = run_task("derive", m, options, progress=progress)
     if export is not None:
@@ -140,7 +188,7 @@ def derive(model: Path = typer.Argument(..., help="model file (TOML) with a [per
         except ModelError as exc:
             raise ModelError(f"--export: {exc}") from None
         if not (json_out or latex):
-            err.print(f"effective model written to {export}", markup=False)
+            err.print(f"effective model written to {render.one_line(export)}", markup=False)
     if json_out:
         return _emit_json(result.to_dict())
     if latex:
@@ -149,7 +197,8 @@ def derive(model: Path = typer.Argument(..., help="model file (TOML) with a [per
 
 
 @app.command()
-def series(model: Path = typer.Argument(..., help="model file (TOML) with a [perturbation] table"),
+def series(model: Path = typer.Argument(..., metavar="MODEL",
+                                         help="model file (TOML) with a [perturbation] table"),
            order: Optional[int] = typer.Option(None, "--order", "-n", help="highest order (default: the file's)"),
            json_out: bool = typer.Option(False, "--json", help="print one JSON object"),
            state: Optional[str] = typer.Option(None, "--state",
@@ -164,6 +213,8 @@ def series(model: Path = typer.Argument(..., help="model file (TOML) with a [per
         sweep = "lambda=0:1:41"
     if plot is not None and plot.suffix.lower() not in (".png", ".svg", ".pdf"):
         raise ModelError(f"--plot: use a .png, .svg or .pdf file name, got {plot.name!r}")
+    if plot is not None:
+        check_writable(plot, "--plot")
     options = {"order": order, "state": state, "sweep": parse_sweep(sweep) if sweep else None}
     try:
         with _progress(not json_out) as progress:
@@ -174,12 +225,15 @@ def series(model: Path = typer.Argument(..., help="model file (TOML) with a [per
         raise
     if plot is not None:
         from lowfold.plots.sweep_figure import plot_sweep
-        plot_sweep(result.sweep.to_dict(), title=m.title, output=plot)
+        try:
+            plot_sweep(result.sweep.to_dict(), title=m.title, output=plot)
+        except OSError as exc:          # checked before computing; a full disk remains
+            raise ModelError(f"--plot: cannot write {str(plot)!r}: {exc.strerror or exc}") from None
     if json_out:
         return _emit_json(result.to_dict())
     render.print_series(out, err, m.title, result)
     if plot is not None:
-        out.print(f"figure written to {plot}")
+        out.print(f"figure written to {render.user_text(plot)}")
 
 
 @app.command()
@@ -208,7 +262,7 @@ def scan(scan_file: Path = typer.Argument(..., metavar="SCAN", help="scan file (
 
 
 @app.command()
-def plot(results: Path = typer.Argument(..., help="results directory of a scan"),
+def plot(results: Path = typer.Argument(..., metavar="RESULTS", help="results directory of a scan"),
          kind: str = typer.Option(..., "--kind", help="couplings | errors | finite-size | levels"),
          output: Path = typer.Option(..., "--output", "-o", help="image file (.png, .svg, .pdf)"),
          x: Optional[str] = typer.Option(None, "--x", help="x axis: a parameter or ratio such as t/U"),
@@ -228,6 +282,7 @@ def plot(results: Path = typer.Argument(..., help="results directory of a scan")
     """Draw a figure from scan results (see docs/scans.md)."""
     from lowfold.plots.from_directory import plot_results
     from lowfold.plots.where import parse_where
+    check_writable(output, "--output")
     info = plot_results(results, kind=kind, output=output, x=x, quantity=quantity,
                         orders=order or None, unit=unit, where=parse_where(where or []),
                         exact_levels=exact_gap, series=series_dir, levels=levels,
@@ -246,9 +301,10 @@ def demo(json_out: bool = typer.Option(False, "--json", help="print one JSON obj
     path = resources.files("lowfold") / "data" / "quantum_dots.toml"
     with resources.as_file(path) as file:
         if not json_out:
-            out.print(f"[bold]lowfold demo[/bold]: {file.name} (built-in example)\n")
+            out.print(f"[bold]lowfold demo[/bold]: {render.user_text(file.name)} "
+                      "(built-in example)\n")
         derive(file, order=None, json_out=json_out, latex=False, no_check=False,
-               check_scaling=False, export=None, size=None, boundary=None)
+               check_scaling=False, check_levels=None, export=None, size=None, boundary=None)
 
 
 def main() -> None:
@@ -256,7 +312,7 @@ def main() -> None:
     try:
         app()
     except LowfoldError as exc:
-        err.print(f"lowfold: error: {exc}", markup=False, soft_wrap=True)
+        err.print(f"lowfold: error: {render.one_line(exc)}", markup=False, soft_wrap=True)
         sys.exit(2)
     except MemoryError:
         err.print("lowfold: error: out of memory; use a smaller cluster, sector or order",

@@ -6,19 +6,38 @@ decides what to render.  Tables go to ``out`` (stdout), warnings to ``err`` (std
 
 from __future__ import annotations
 
+import re
+from fractions import Fraction
+
 import numpy as np
 from rich.console import Console
+from rich.markup import escape
 from rich.table import Table
 
 from lowfold.readout.formulas import latex_hamiltonian
-from lowfold.results import EffectiveModel, Spectrum, StateSeries
+from lowfold.results import EffectiveModel, Recognised, Spectrum, StateSeries
 from lowfold.results.effective import COUPLING_TOL
 
-__all__ = ["print_spectrum", "print_derive", "print_series", "latex_couplings"]
+__all__ = ["print_spectrum", "print_derive", "print_series", "latex_couplings", "one_line",
+           "user_text"]
+
+
+def one_line(text) -> str:
+    """``text`` on one line: control characters (newline, tab, escape...) written as Python
+    escapes (``\\n``), so that a file name or label with a newline still gives one line."""
+    return "".join(c if c.isprintable() else c.encode("unicode_escape").decode("ascii")
+                   for c in str(text))
+
+
+def user_text(text) -> str:
+    """Text that came from the user (a title, a file name, a label), ready for a rich markup
+    string: on one line, and with its square brackets escaped so that rich prints them as
+    they are (``"a [/bold] b"`` is text, not a closing tag)."""
+    return escape(one_line(text))
 
 
 def print_spectrum(out: Console, title: str, result: Spectrum) -> None:
-    table = Table(title=f"{title}: {result.dimension:,} states")
+    table = Table(title=f"{user_text(title)}: {result.dimension:,} states")
     table.add_column("level", justify="right")
     table.add_column("energy", justify="right")
     table.add_column("E - E0", justify="right")
@@ -36,38 +55,74 @@ def _fmt(value) -> str:
 
 
 def _coupling_rows(result: EffectiveModel):
-    """The orders shown, and per coupling (kind, sites, cells per order, total, rationals)."""
+    """The orders shown, and per coupling (kind, sites, cells per order, total, Recognised
+    or None)."""
     shown = lambda v: np.max(np.abs(v)) > COUPLING_TOL          # noqa: E731  as in the JSON
     orders = sorted({m for c in result.couplings for m, v in c.orders.items() if shown(v)})
     rows = []
     for c in result.couplings:
         sites = ",".join(str(s) for s in c.sites) or "-"
         cells = [_fmt(c.orders[n]) if n in c.orders and shown(c.orders[n]) else "" for n in orders]
-        recognised = result.recognised.get((c.kind, tuple(c.sites)))
-        hint = ", ".join(f"{n}: {q}" for n, q in recognised.coefficients.items()) if recognised else ""
-        rows.append((c.kind, sites, cells, _fmt(c.value), hint))
+        rows.append((c.kind, sites, cells, _fmt(c.value),
+                     result.recognised.get((c.kind, tuple(c.sites)))))
     return orders, rows
+
+
+SCALE = re.compile(r"(?P<small>.+)\^n/(?P<large>.+)\^\(n-1\)")
+
+
+def rational_formula(recognised: Recognised | None, *, latex: bool = False) -> str:
+    """A recognised coupling as a formula, e.g. ``4 t^2/U - 16 t^4/U^3`` or (``latex``)
+    ``\\frac{4 t^{2}}{U} - \\frac{16 t^{4}}{U^{3}}``; "" when not recognised."""
+    match = SCALE.fullmatch(recognised.scale) if recognised else None
+    if match is None:
+        return ""
+    small, large = (_latex_name(match[k]) if latex else match[k] for k in ("small", "large"))
+    power = (lambda x, k: f"{x}^{{{k}}}") if latex else (lambda x, k: f"{x}^{k}")
+    parts = []
+    for n, text in recognised.coefficients.items():          # q small^n / large^(n-1)
+        q = Fraction(text)
+        top = [str(abs(q.numerator))] if abs(q.numerator) != 1 else []
+        top += [large] if n == 0 else [small if n == 1 else power(small, n)]
+        bottom = [str(q.denominator)] if q.denominator != 1 else []
+        bottom += [] if n < 2 else [large if n == 2 else power(large, n - 1)]
+        numerator, denominator = " ".join(top), " ".join(bottom)
+        if not denominator:
+            term = numerator
+        else:
+            term = (f"\\frac{{{numerator}}}{{{denominator}}}" if latex
+                    else f"{numerator}/({denominator})" if len(bottom) > 1
+                    else f"{numerator}/{denominator}")
+        parts.append(("-" if q < 0 else "+", term))
+    head = ("-" if parts[0][0] == "-" else "") + parts[0][1]
+    return " ".join([head, *(f"{sign} {term}" for sign, term in parts[1:])])
+
+
+def _latex_name(name: str) -> str:
+    """A parameter name in LaTeX math: one letter as it is, longer names upright."""
+    return name if len(name) == 1 else "\\mathrm{" + name.replace("_", "\\_") + "}"
 
 
 def print_derive(out: Console, err: Console, title: str, result: EffectiveModel) -> None:
     man = result.manifold
     gap = "none" if man.gap is None else f"{man.gap:.6g}"
-    out.print(f"[bold]{title}[/bold]: manifold of {man.dimension:,} states at H0 energy "
+    out.print(f"[bold]{user_text(title)}[/bold]: manifold of {man.dimension:,} states at H0 energy "
               f"{man.energy:.6g}, gap {gap}, readout {man.readout}")
     orders, rows = _coupling_rows(result)
     if rows:
         table = Table(title=f"couplings to order {result.order} (S = sigma/2)")
         for name in ("kind", "sites", *[f"order {n}" for n in orders], "total"):
             table.add_column(name, justify="left" if name in ("kind", "sites") else "right")
-        recognised = any(r[4] for r in rows)
-        if recognised:
+        formulas = [rational_formula(r[4]) for r in rows]
+        if any(formulas):
             table.add_column("rational (recognised)", justify="left")
-        for kind, sites, cells, total, hint in rows:
-            table.add_row(kind, sites, *cells, total, *([hint] if recognised else []))
+        for (kind, sites, cells, total, _), formula in zip(rows, formulas):
+            table.add_row(user_text(kind), sites, *cells, total,
+                          *([user_text(formula)] if any(formulas) else []))
         out.print(table)
         _print_classes(out, result)
     elif not result.spin_form:
-        out.print(f"effective matrix on {man.dimension} basis states (use --json for its entries)")
+        _print_matrices(out, result)
     if result.check is not None:
         table = Table(title="check against the exact low-lying spectrum")
         table.add_column("order", justify="right")
@@ -75,6 +130,7 @@ def print_derive(out: Console, err: Console, title: str, result: EffectiveModel)
         for n, error in result.check.max_abs_error.items():
             table.add_row(str(n), f"{error:.3e}")
         out.print(table)
+        out.print(f"check: {result.check.describe()}", markup=False)
     if result.scaling:
         powers = ", ".join(f"{n}: {fit.power:.2f}" if fit.power is not None else f"{n}: -"
                            for n, fit in result.scaling.items())
@@ -84,7 +140,7 @@ def print_derive(out: Console, err: Console, title: str, result: EffectiveModel)
     out.print(f"validity ratio |V_PQ|/gap = {ratio:.3g}" if ratio is not None else "validity ratio: -",
               f", smallest denominator {diag.smallest_denominator:.6g}"
               if diag.smallest_denominator is not None else "",
-              f" ({' -> '.join(diag.closest_states)})" if diag.closest_states else "", sep="")
+              f" ({user_text(' -> '.join(diag.closest_states))})" if diag.closest_states else "", sep="")
     _warn(err, result.warnings)
 
 
@@ -107,15 +163,72 @@ def _print_classes(out: Console, result: EffectiveModel) -> None:
             out.print(f"{c.kind} {c.name}: {c.formula}", markup=False, soft_wrap=True)
 
 
+MATRIX_LIMIT = 16      # effective matrices up to this dimension are printed entry by entry
+
+
+def label_legend(site) -> str:
+    """What the basis labels of ``site`` mean (one symbol per site, site 0 first)."""
+    if site.type == "electron":
+        return "one symbol per site, site 0 first: 0 empty, u spin up, d spin down, 2 both"
+    if site.type == "spin" and site.radix == 2:
+        return "one letter per site, site 0 first: u is S^z = +1/2, d is S^z = -1/2"
+    if site.type == "spin":
+        spin = Fraction(site.radix - 1, 2)
+        digits = ", ".join(f"{k} is S^z = {'+' if spin - k > 0 else ''}{spin - k}"
+                           for k in range(min(site.radix, 3)))
+        more = ", ..." if site.radix > 3 else ""
+        return f"one digit k per site, site 0 first, S^z = S - k with S = {spin}: {digits}{more}"
+    separator = " (separated by spaces)" if site.radix > 10 else ""
+    return f"the occupation of each site{separator}, site 0 first"
+
+
+def _entry(x) -> str:
+    x = complex(x)
+    if x == 0:
+        return "0"
+    return f"{x.real:.6g}" if x.imag == 0 else f"{x.real:.4g}{x.imag:+.4g}j"
+
+
+def _print_matrices(out: Console, result: EffectiveModel) -> None:
+    """The effective matrices order by order, rows and columns named by basis labels (small
+    manifolds only; else a pointer to the JSON)."""
+    dimension, labels = result.manifold.dimension, [user_text(x) for x in result.labels]
+    if not result.orders or dimension > MATRIX_LIMIT or len(labels) != dimension:
+        out.print(f"effective matrix on {dimension:,} basis states (use --json for its entries)")
+        return
+    legend = label_legend(result.model.site) if result.model is not None else ""
+    out.print(f"effective Hamiltonian on {dimension} basis states, order by order"
+              + (f"\nbasis labels: {legend}" if legend else ""))
+    for m, h in enumerate(result.orders):
+        dense = h.toarray()
+        if not np.any(np.abs(dense) > COUPLING_TOL):
+            continue
+        table = Table(title=f"order {m}", title_justify="left")
+        table.add_column("")
+        for label in labels:
+            table.add_column(label, justify="right")
+        for label, row in zip(labels, dense):
+            table.add_row(label, *[_entry(x) if abs(x) > COUPLING_TOL else "0" for x in row])
+        width = 4 + sum(3 + max(len(label), *(len(_entry(x)) for x in dense[:, j]))
+                        for j, label in enumerate(labels)) + max(map(len, labels)) + 3
+        out.print(table, width=max(out.width, width))
+
+
 def latex_couplings(result: EffectiveModel) -> str:
-    """The coupling table as a LaTeX ``tabular``; with coupling classes, then the effective
-    Hamiltonian in equations (:func:`lowfold.readout.formulas.latex_hamiltonian`)."""
+    """The coupling table as a LaTeX ``tabular``, with the recognised rationals as fractions
+    (``\\frac{4 t^{2}}{U} - \\frac{16 t^{4}}{U^{3}}``) in a last column when there are any;
+    with coupling classes, then the effective Hamiltonian in equations
+    (:func:`lowfold.readout.formulas.latex_hamiltonian`)."""
     orders, rows = _coupling_rows(result)
-    head = " & ".join(["kind", "sites", *[f"order {n}" for n in orders], "total"])
-    lines = [r"\begin{tabular}{ll" + "r" * (len(orders) + 1) + "}", r"\hline", head + r" \\", r"\hline"]
-    for kind, sites, cells, total, _ in rows:
-        lines.append(" & ".join([kind, f"${sites}$", *[f"${c}$" if c else "" for c in cells],
-                                 f"${total}$"]) + r" \\")
+    formulas = [rational_formula(r[4], latex=True) for r in rows]
+    extra = ["rational (recognised)"] if any(formulas) else []
+    head = " & ".join(["kind", "sites", *[f"order {n}" for n in orders], "total", *extra])
+    columns = "ll" + "r" * (len(orders) + 1) + "l" * len(extra)
+    lines = [r"\begin{tabular}{" + columns + "}", r"\hline", head + r" \\", r"\hline"]
+    for (kind, sites, cells, total, _), formula in zip(rows, formulas):
+        cells = [kind, f"${sites}$", *[f"${c}$" if c else "" for c in cells], f"${total}$"]
+        cells += [f"${formula}$" if formula else ""] if extra else []
+        lines.append(" & ".join(cells) + r" \\")
     lines += [r"\hline", r"\end{tabular}"]
     if result.classes:
         lines += ["", latex_hamiltonian(result.model, result.classes)]
@@ -123,7 +236,8 @@ def latex_couplings(result: EffectiveModel) -> str:
 
 
 def print_series(out: Console, err: Console, title: str, result: StateSeries) -> None:
-    out.print(f"[bold]{title}[/bold]: series of the state {result.reference}")
+    out.print(f"[bold]{user_text(title)}[/bold]: series of the state "
+              f"{user_text(result.reference)}")
     table = Table(title="energy by order")
     for name in ("order", "E_n", "partial sum", "|error| vs exact"):
         table.add_column(name, justify="right")
@@ -143,6 +257,12 @@ def print_series(out: Console, err: Console, title: str, result: StateSeries) ->
         radius = "infinite" if r.radius is None else f"{r.radius:.4g}"
         out.print(f"radius of convergence (Domb-Sykes, in {r.variable}): {radius}, "
                   f"nearest singularity on the {r.side} axis")
+        if r.fit_residual is not None:
+            relative = "" if r.relative_residual is None else \
+                f" ({r.relative_residual:.2g} of the intercept)"
+            out.print(f"fit residual {r.fit_residual:.3g}{relative}")
+        if not r.reliable:
+            out.print(f"estimate unreliable: {user_text(r.reason or 'see warnings')}")
     if result.validity_ratio is not None:
         out.print(f"validity ratio |V_mn| / |E_n - E_m|: {result.validity_ratio:.3g}")
     if result.second_order:
@@ -150,7 +270,7 @@ def print_series(out: Console, err: Console, title: str, result: StateSeries) ->
         for name in ("intermediate state", "|V_mn|^2", "E_n - E_m", "contribution"):
             table.add_column(name, justify="right")
         for c in result.second_order:
-            table.add_row(c.state, f"{c.coupling_squared:.6g}", f"{c.denominator:.6g}",
+            table.add_row(user_text(c.state), f"{c.coupling_squared:.6g}", f"{c.denominator:.6g}",
                           f"{c.contribution:.6g}")
         out.print(table)
     sweep = result.sweep
@@ -160,12 +280,14 @@ def print_series(out: Console, err: Console, title: str, result: StateSeries) ->
                       f"(levels {c.levels[0]}, {c.levels[1]}, {c.sector})")
         for c in sweep.crossings:
             out.print(f"true crossing near lambda = {c.lambda_:.4g} ({c.sectors[0]} / {c.sectors[1]})")
-        useful = ", ".join(f"order {n}: {'-' if v is None else f'{v:.3g}'}"
+        useful = "; ".join(f"order {n} up to lambda = {v:.3g}" if v is not None
+                           else f"order {n} not even at lambda = {sweep.lambdas[0]:.3g}"
                            for n, v in sweep.useful_up_to.items())
-        out.print(f"series within 1% of the smallest denominator up to lambda = {useful}")
+        out.print("the partial sums stay within 1% of the smallest denominator of the exact "
+                  f"level: {useful}")
     _warn(err, result.warnings)
 
 
 def _warn(err: Console, warnings) -> None:
     for warning in warnings:
-        err.print(f"warning: {warning}", markup=False)
+        err.print(f"warning: {one_line(warning)}", markup=False)

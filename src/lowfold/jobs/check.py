@@ -1,8 +1,9 @@
 """The exact check of an effective model: its spectrum at every order against the exact
 low-lying levels of the same cluster, and optionally the fitted power of the error.
 
-For each S^z block of the manifold the block's sector is diagonalised (dense, Lanczos, or
-LOBPCG started from the effective eigenvectors); the error of the sum to order n must fall
+For each S^z block of the manifold the lowest levels of the block's sector are found (dense,
+or LOBPCG started from the effective eigenvectors: ``lowfold.jobs.check_levels`` says which
+and how many); the error of the sum to order n must fall
 like lambda^(n+1) when the couplings of V are scaled by lambda (DESIGN.md, "Perturbation
 theory used"), which ``fit_scaling`` measures at lambda = 0.8, 0.64, 0.5, 0.4.
 """
@@ -14,20 +15,20 @@ from typing import Callable
 
 import numpy as np
 import scipy.linalg as la
-import scipy.sparse as sp
-from scipy.sparse.linalg import lobpcg
 
 from lowfold.build.basis import sector_size
-from lowfold.build.hamiltonian import build_basis, hamiltonian_matrix
+from lowfold.build.hamiltonian import available_memory, build_basis, compile_operator, hamiltonian_matrix
 from lowfold.errors import SizeError
+from lowfold.jobs.check_levels import (DEFAULT_CHECK_LEVELS, check_levels_value, exact_lowest,
+                                       levels_to_compare)
 from lowfold.model.model import Model
 from lowfold.model.sector import Sector
-from lowfold.results import DeriveCheck, PowerFit
-from lowfold.solve.exact import lowest_eigenpairs
+from lowfold.results import CheckedBlock, DeriveCheck, PowerFit
 
-__all__ = ["ManifoldBlock", "exact_check", "CHECK_MAX_STATES", "SCALE_FACTORS"]
+__all__ = ["ManifoldBlock", "exact_check", "check_memory_estimate", "CHECK_MAX_STATES",
+           "SCALE_FACTORS"]
 
-CHECK_MAX_STATES = 400_000      # largest sector block diagonalised for the exact check
+CHECK_MAX_STATES = 4_000_000    # largest sector block diagonalised for the exact check
 DENSE_CHECK_LIMIT = 5000
 SCALE_FACTORS = (1.0, 0.8, 0.64, 0.5, 0.4)
 
@@ -41,7 +42,8 @@ class ManifoldBlock:
 
 
 def exact_check(model: Model, states: np.ndarray, energies: np.ndarray, orders: list,
-                blocks: list[ManifoldBlock], *, fit_scaling: bool = False,
+                blocks: list[ManifoldBlock], *, levels: int | str = DEFAULT_CHECK_LEVELS,
+                fit_scaling: bool = False, memory_limit: int | None = None,
                 progress: Callable[[str], None] | None = None):
     """Compare the effective spectrum of every order with the exact levels.
 
@@ -53,8 +55,13 @@ def exact_check(model: Model, states: np.ndarray, energies: np.ndarray, orders: 
     orders : list of sparse matrices
         ``H_eff,m`` on the manifold, m = 0..n.
     blocks : list of ManifoldBlock
+    levels : int or "all"
+        The lowest levels of each block compared (``check_levels.levels_to_compare``).
     fit_scaling : bool
         Repeat the check at the couplings scaled by ``SCALE_FACTORS`` and fit the power.
+    memory_limit : int, optional
+        Bytes the check may use (default: 80 % of the available memory); a check whose
+        estimate (:func:`check_memory_estimate`) passes it is skipped before anything is built.
 
     Returns
     -------
@@ -62,17 +69,28 @@ def exact_check(model: Model, states: np.ndarray, energies: np.ndarray, orders: 
         The check, the fitted powers (when asked for), and warnings (a check skipped says why
         and returns None).
     """
+    say = progress or (lambda message: None)
     order = len(orders) - 1
-    exact_all, scaled = [], {}
+    levels = check_levels_value(levels)
+    exact_all, scaled, ground, described = [], {}, {}, []
     factors = SCALE_FACTORS if fit_scaling else (1.0,)
-    try:      # every block's size first, so that nothing is diagonalised in vain
+    try:      # every block's size and memory first, so that nothing is built in vain
         sizes = [sector_size(model.site, model.n_sites, b.sector) for b in blocks]
         if max(sizes) > CHECK_MAX_STATES:
             raise SizeError(f"a sector block has {max(sizes):,} states, more than the "
                             f"{CHECK_MAX_STATES:,} the exact check diagonalises")
+        counts = [levels_to_compare(levels, b.p_positions.size, size)
+                  for b, size in zip(blocks, sizes)]
+        need = check_memory_estimate(model, sizes, counts)
+        limit = int(0.8 * available_memory()) if memory_limit is None else memory_limit
+        if need > limit:
+            raise SizeError(f"it needs about {_gib(need)} for its largest sector block "
+                            f"({max(sizes):,} states), more than the {_gib(limit)} allowed")
     except SizeError as exc:
         return None, None, [f"exact check skipped: {exc}"]
-    for block in blocks:
+    for number, (block, k) in enumerate(zip(blocks, counts)):
+        say(f"exact check, block {number + 1}/{len(blocks)}: lowest {k} of "
+            f"{block.p_positions.size} levels, {sizes[number]:,} states")
         block_model = model.with_sector(block.sector)
         basis = build_basis(block_model, max_states=CHECK_MAX_STATES)
         h0 = hamiltonian_matrix(block_model, basis, model.unperturbed_labels, check=False)
@@ -83,30 +101,61 @@ def exact_check(model: Model, states: np.ndarray, energies: np.ndarray, orders: 
         if not at_bottom and basis.size > DENSE_CHECK_LIMIT:
             return None, None, ["exact check skipped: the window is not at the bottom of the "
                                 f"spectrum and the sector block has {basis.size:,} states"]
+        if not at_bottom:
+            k = idx.size        # levels matched by nearness: all of them
+        described.append(CheckedBlock(_sz_text(block.sector), k, idx.size))
         partial = [orders[m][idx][:, idx].toarray() for m in range(order + 1)]
         for factor in factors:
             effective = sum(factor**m * partial[m] for m in range(order + 1))
-            guess = np.zeros((basis.size, idx.size), dtype=effective.dtype)
-            effective_levels, guess[p_in_basis] = la.eigh(effective)
-            exact = _exact_levels(h0 + factor * v, guess, effective_levels, at_bottom)
+            guess = np.zeros((basis.size, k), dtype=effective.dtype)
+            effective_levels, vectors = la.eigh(effective)
+            guess[p_in_basis] = vectors[:, :k]
+            exact = _exact_levels(h0 + factor * v, guess, effective_levels, at_bottom,
+                                  p_in_basis, effective)
             if factor == 1.0:
                 exact_all.extend(exact.tolist())
             running = np.zeros_like(partial[0])
             for m in range(order + 1):
                 running = running + factor**m * partial[m]
-                error = float(np.max(np.abs(la.eigvalsh(running) - exact)))
+                error = float(np.max(np.abs(la.eigvalsh(running)[:k] - exact)))
                 scaled[(factor, m)] = max(scaled.get((factor, m), 0.0), error)
-    check = DeriveCheck(tuple(sorted(exact_all)), {m: scaled[(1.0, m)] for m in range(order + 1)})
+                if factor == 1.0:
+                    ground.setdefault(m, []).append(
+                        (float(exact[0]), float(la.eigvalsh(running, subset_by_index=[0, 0])[0])))
+    lowest = {m: min(pairs) for m, pairs in ground.items()}
+    check = DeriveCheck(tuple(sorted(exact_all)), {m: scaled[(1.0, m)] for m in range(order + 1)},
+                        levels, tuple(described),
+                        {m: abs(e_eff - e_exact) for m, (e_exact, e_eff) in lowest.items()})
     fits = _fit_powers(scaled, factors, order, model) if fit_scaling else None
     return check, fits, []
 
 
-def _exact_levels(matrix, guess: np.ndarray, effective: np.ndarray, at_bottom: bool) -> np.ndarray:
-    """The exact levels the effective ones approximate: the lowest dim(P) levels when P is at
-    the bottom of the spectrum, else the levels nearest the effective ones (dense only).
-    Many levels of a large block are found by LOBPCG started from the effective eigenvectors
-    embedded in P, with a Jacobi preconditioner (the perturbative regime makes it converge
-    in a few iterations); eigsh is the fallback."""
+def check_memory_estimate(model: Model, sizes: list[int], counts: list[int]) -> int:
+    """Bytes the exact check needs for its largest block, before anything is built.
+
+    Per sector block of ``s`` states: the basis (8 bytes a state and as much for its
+    index), two CSR matrices (H0 and V: 12 bytes an entry, at most one entry per operator
+    string acting on a state, plus the diagonal) and their sum, and 8 vectors per level
+    compared (the LOBPCG blocks and the start), 16 bytes an entry (complex in general).
+    """
+    op = compile_operator(model, check_sector=False)
+    per_row = 1 + int(op.offdiagonal_strings.size)
+    return max(16 * s + 3 * 12 * per_row * s + 8 * 16 * k * s for s, k in zip(sizes, counts))
+
+
+def _gib(n: int) -> str:
+    return f"{n / 2**30:.1f} GiB"
+
+
+def _sz_text(sector: Sector) -> str | None:
+    return None if sector.sz is None else str(sector.sz)
+
+
+def _exact_levels(matrix, guess: np.ndarray, effective: np.ndarray, at_bottom: bool,
+                  p_rows: np.ndarray, effective_matrix: np.ndarray) -> np.ndarray:
+    """The exact levels the effective ones approximate: the lowest ``k`` levels (``k`` the
+    columns of ``guess``) when P is at the bottom of the spectrum, else the levels nearest
+    the effective ones (dense only)."""
     n, k = guess.shape
     if not at_bottom:
         values = la.eigvalsh(matrix.toarray())
@@ -117,31 +166,7 @@ def _exact_levels(matrix, guess: np.ndarray, effective: np.ndarray, at_bottom: b
         return np.sort(values[chosen])
     if n <= 1200 or (n <= DENSE_CHECK_LIMIT and k > 20):
         return la.eigvalsh(matrix.toarray(), subset_by_index=[0, k - 1])
-    if k > 10:
-        values = _lobpcg_levels(matrix, guess)
-        if values is not None:
-            return values
-    return lowest_eigenpairs(matrix, k)[0]
-
-
-def _lobpcg_levels(matrix, guess: np.ndarray):
-    """LOBPCG from a good guess; None if it does not converge to 1e-9 residuals."""
-    diag = matrix.diagonal().real
-    shift = diag.min() - 1.0
-    precondition = sp.diags(1.0 / (diag - shift))
-    rng = np.random.default_rng(11)
-    start = guess + 1e-6 * rng.standard_normal(guess.shape)
-    if np.iscomplexobj(matrix.data):
-        start = start.astype(complex)
-    try:
-        values, vectors = lobpcg(matrix, start, M=precondition, largest=False, tol=1e-10,
-                                 maxiter=200, retLambdaHistory=False)
-    except (np.linalg.LinAlgError, ValueError):
-        return None
-    residual = np.linalg.norm(matrix @ vectors - vectors * values, axis=0)
-    if not np.all(residual <= 1e-7 * max(1.0, np.abs(values).max())):
-        return None
-    return np.sort(values)
+    return exact_lowest(matrix, k, guess[p_rows], p_rows, effective_matrix)
 
 
 def _fit_powers(scaled: dict, factors, order: int, model: Model) -> dict[int, PowerFit]:

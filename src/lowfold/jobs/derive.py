@@ -20,9 +20,12 @@ from lowfold.build.basis import explicit_basis
 from lowfold.build.labels import state_labels, twice_sz
 from lowfold.errors import SizeError
 from lowfold.jobs.check import ManifoldBlock, exact_check
+from lowfold.jobs.check_levels import DEFAULT_CHECK_LEVELS, check_levels_value
+from lowfold.jobs.check_winding import wrap_around_warnings
 from lowfold.jobs.classes import group_into_classes
 from lowfold.model.model import Model
-from lowfold.perturbation.diagnostics import manifold_diagnostics, merge_diagnostics
+from lowfold.perturbation.diagnostics import (check_divergence, manifold_diagnostics,
+                                              merge_diagnostics)
 from lowfold.perturbation.manifold import (Manifold, diagonal_energies, find_manifold,
                                            reachable_from_states, restricted_operator,
                                            split_operators)
@@ -43,7 +46,7 @@ MAX_WORKING_STATES = 2_000_000  # intermediate states of one block for orders ab
 # --------------------------------------------------------------------------- the job
 
 def derive(model: Model, order: int | None = None, *, compare_exact: bool = True,
-           fit_scaling: bool = False,
+           fit_scaling: bool = False, check_levels: int | str = DEFAULT_CHECK_LEVELS,
            progress: Callable[[str], None] | None = None) -> EffectiveModel:
     """Effective Hamiltonian of ``model`` on the low-energy manifold of H0, order by order.
 
@@ -61,6 +64,10 @@ def derive(model: Model, order: int | None = None, *, compare_exact: bool = True
     fit_scaling : bool
         Also repeat the comparison at smaller couplings and fit the power of the error
         (the result's ``scaling``).
+    check_levels : int or "all"
+        How many of the lowest levels of each S^z block the check compares (default 8; every
+        level of a block with no more manifold states than that or a dense-sized sector);
+        ``"all"`` compares every level of the manifold.  The result's ``check`` says which.
 
     Returns
     -------
@@ -75,6 +82,7 @@ def derive(model: Model, order: int | None = None, *, compare_exact: bool = True
     if spec is None:
         model.unperturbed_labels          # raises the ModelError that explains it
     order = validate_order(spec.order if order is None else order, maximum=MAX_ORDER)
+    check_levels = check_levels_value(check_levels)
     model, warnings = _whole_manifold(model)
     h0, v = split_operators(model)
     say("finding the manifold")
@@ -111,8 +119,12 @@ def derive(model: Model, order: int | None = None, *, compare_exact: bool = True
     if compare_exact:
         say("exact check")
         check, scaling, skipped = exact_check(model, manifold.states, manifold.energies, orders,
-                                              blocks, fit_scaling=fit_scaling, progress=say)
+                                              blocks, levels=check_levels,
+                                              fit_scaling=fit_scaling, progress=say)
         warnings += skipped
+        if check is not None:
+            warnings += check_divergence(check.max_abs_error)
+    warnings += wrap_around_warnings(model, order)
     gap = diagnostics.gap
     summary = ManifoldSummary(dim, float(manifold.energies.min()),
                               float(gap) if np.isfinite(gap) else None, readout["readout"],

@@ -19,10 +19,12 @@ from lowfold.build.basis import Basis
 from lowfold.build.hamiltonian import Hamiltonian, build_basis, hamiltonian_matrix
 from lowfold.build.labels import state_labels
 from lowfold.errors import LowfoldError, ModelError
-from lowfold.jobs.sweep import sector_blocks, sweep_levels
+from lowfold.jobs.sweep import sector_blocks, sweep_levels, sweep_warnings
 from lowfold.model.model import Model
-from lowfold.perturbation.convergence import pade_estimate, ratio_test
+from lowfold.perturbation.convergence import convergence_warnings, pade_estimate, ratio_test
+from lowfold.perturbation.diagnostics import followed_level_warnings
 from lowfold.perturbation.orders import MAX_SERIES_ORDER, validate_order
+from lowfold.perturbation.resolvent import DENSE_LIMIT
 from lowfold.perturbation.series import rayleigh_schrodinger, rayleigh_schrodinger_general
 from lowfold.results import Pade, RatioTest, SecondOrderTerm, StateAmplitude, StateSeries
 from lowfold.results.common import finite
@@ -98,15 +100,20 @@ def state_series(model: Model, order: int | None = None, *, state: str | None = 
         psi0, e0, reference, validity = _h0_eigenstate(h0, v, state)
         result = rayleigh_schrodinger_general(h0, v, psi0, e0, order)
         first, second = [], []
-        warnings.append("H0 is not diagonal: the series used iterative solves; no list of "
-                        "intermediate states")
+        route = ("a direct solve" if basis.size <= DENSE_LIMIT
+                 else "iterative solves (MINRES) in the complement of the reference")
+        warnings.append(f"H0 is not diagonal: the series used {route} instead of a sum over "
+                        "basis states, so there is no list of intermediate states")
     say("exact eigenvalue")
     exact = _exact_followed(model, basis, h0, v, psi0, warnings)
-    pade, ratio = _convergence(result.energies, warnings)
+    pade, ratio, estimate, test = _convergence(result.energies, warnings)
     swept = None
     if sweep is not None:
         say("sweeping the coupling")
         swept = sweep_levels(model, basis, h0, v, psi0, result, np.asarray(sweep, dtype=float))
+        warnings += sweep_warnings(swept)
+    warnings += _reliability_warnings(result.energies, exact, validity, estimate, test,
+                                      None if sweep is None else np.asarray(sweep, dtype=float))
     return StateSeries(np.asarray(result.energies), reference, exact, pade, ratio, validity,
                        float(result.first_order_norm), tuple(first), tuple(second),
                        finite(result.smallest_denominator),
@@ -213,7 +220,8 @@ def _follow_dense(h0, v, vector, *, max_step=0.05, min_step=1e-5) -> float:
 
 
 def _convergence(energies, warnings):
-    pade = ratio = None
+    """Pade and ratio-test results (objects of the JSON, and the raw estimate / dict)."""
+    pade = ratio = estimate = test = None
     try:
         estimate = pade_estimate(energies)
         pade = Pade(float(estimate.value), finite(estimate.spread), tuple(estimate.approximant))
@@ -222,7 +230,28 @@ def _convergence(energies, warnings):
     try:
         test = ratio_test(energies)
         ratio = RatioTest(test["variable"], finite(test["radius"]), finite(test["singularity"]),
-                          test["side"], finite(test["exponent"]), test["fit_residual"])
+                          test["side"], finite(test["exponent"]), test["fit_residual"],
+                          test["structure"], finite(test["relative_residual"]),
+                          bool(test["reliable"]), test["reason"])
     except ModelError as exc:
         warnings.append(f"no ratio test: {exc}")
-    return pade, ratio
+    return pade, ratio, estimate, test
+
+
+def _reliability_warnings(energies, exact, validity, estimate, test, lambdas) -> list[str]:
+    """Why the series should not be trusted (perturbation.convergence_warnings, at lambda = 1
+    or at the sweep's largest |lambda|) and whether it describes the followed exact level
+    (perturbation.followed_level_warnings, at lambda = 1)."""
+    energies = np.asarray(energies)
+    if np.iscomplexobj(energies):
+        energies = energies.real
+    lam = 1.0 if lambdas is None else float(np.max(np.abs(lambdas)))
+    with np.errstate(over="ignore", invalid="ignore"):     # huge sweep lambdas: inf terms
+        out = convergence_warnings(energies, lam=lam, validity_ratio=validity, ratio=test,
+                                   pade=estimate if lam == 1.0 else None)
+    if exact is not None:
+        if estimate is not None and np.isfinite(estimate.value):
+            out += followed_level_warnings(float(estimate.value), estimate.spread, exact)
+        else:
+            out += followed_level_warnings(float(np.sum(energies)), abs(float(energies[-1])), exact)
+    return out

@@ -20,7 +20,7 @@ from lowfold.model.model import Model
 from lowfold.results import AvoidedCrossing, LevelCrossing, Sweep
 from lowfold.solve.exact import lowest_eigenpairs
 
-__all__ = ["lambda_grid", "sector_blocks", "sweep_levels", "MAX_SWEEP_POINTS"]
+__all__ = ["lambda_grid", "sector_blocks", "sweep_levels", "sweep_warnings", "MAX_SWEEP_POINTS"]
 
 MAX_SWEEP_POINTS = 2000
 
@@ -77,19 +77,43 @@ def sweep_levels(model: Model, basis: Basis, h0, v, psi0: np.ndarray, result,
         labels.append(np.array(owners)[order])
         coupled_gaps.append(_coupled_gaps(energies, np.abs(vecs.conj().T @ (v @ vecs)), v_scale))
     levels, level_sectors = np.array(rows), np.array(labels)
-    series = {n: np.array([result.energy(l, order=n) for l in lambdas])
-              for n in range(2, result.order + 1, 2)} or {result.order: np.array([result.energy(l) for l in lambdas])}
+    orders = list(range(2, result.order + 1, 2)) or [result.order]
+    with np.errstate(over="ignore", invalid="ignore"):   # overflow: see sweep_warnings
+        series = {n: np.array([result.energy(l, order=n) for l in lambdas]) for n in orders}
     lambdas, followed = np.asarray(lambdas), np.array(followed)
     avoided = _avoided_crossings(lambdas, levels, level_sectors, names, coupled_gaps)
     crossings = _true_crossings(lambdas, levels, names, np.array(sector_lowest))
     scale = result.smallest_denominator if np.isfinite(result.smallest_denominator) else 1.0
     useful = {}
     for n, values in series.items():
-        bad = np.flatnonzero(np.abs(values - followed) > 0.01 * abs(scale))
+        bad = np.flatnonzero(~(np.abs(values - followed) <= 0.01 * abs(scale)))   # NaN: bad
         useful[n] = None if bad.size and bad[0] == 0 else float(
             lambdas[bad[0] - 1] if bad.size else lambdas[-1])
     return Sweep(lambdas, levels, tuple(names), level_sectors, followed, series, tuple(avoided),
                  tuple(crossings), useful)
+
+
+def sweep_warnings(sweep: Sweep) -> list[str]:
+    """Sentences on numbers of ``sweep`` that are not finite (the series' partial sums or the
+    exact levels overflow at large lambda); such numbers are written as null in JSON."""
+    def first_bad(values):
+        bad = ~np.isfinite(np.asarray(values, dtype=float))
+        rows = bad.reshape(bad.shape[0], -1).any(axis=1)
+        return float(sweep.lambdas[np.flatnonzero(rows)[0]]) if rows.any() else None
+
+    out = []
+    orders = {n: first_bad(v) for n, v in sweep.series.items()}
+    orders = {n: lam for n, lam in orders.items() if lam is not None}
+    if orders:
+        out.append(f"the partial sums of order {', '.join(map(str, orders))} overflow (or are "
+                   f"undefined) from lambda = {min(orders.values(), key=abs):.4g}: not "
+                   "finite, null in JSON")
+    for name, values in (("the exact levels", sweep.levels), ("the followed level", sweep.followed)):
+        lam = first_bad(values)
+        if lam is not None:
+            out.append(f"{name} overflow (or are undefined) from lambda = {lam:.4g}: not "
+                       "finite, null in JSON")
+    return out
 
 
 def _coupled_gaps(energies, coupling, scale) -> list[tuple[float, int]]:

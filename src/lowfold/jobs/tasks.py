@@ -4,7 +4,7 @@ The command line, the scans and user scripts all call :func:`run_task`, so a sca
 ``lowfold TASK MODEL --json`` give the same numbers (``run_task(...).to_dict()`` is that JSON).
 Task options come from scan files (``[task]`` table) and the command line; their names are
 those of the scan-file format (docs/scans.md): ``levels``; ``order``, ``check``,
-``check_scaling``; ``order``, ``state``, ``sweep`` (an array, or the text
+``check_scaling``, ``check_levels`` (an int or ``"all"``); ``order``, ``state``, ``sweep`` (an array, or the text
 ``"lambda=START:STOP:COUNT"``).
 """
 
@@ -16,6 +16,7 @@ from typing import Callable
 import numpy as np
 
 from lowfold.errors import ModelError
+from lowfold.jobs.check_levels import DEFAULT_CHECK_LEVELS
 from lowfold.jobs.derive import derive
 from lowfold.jobs.series import state_series
 from lowfold.jobs.spectrum import spectrum
@@ -54,7 +55,8 @@ def _spectrum_task(model: Model, options: dict, progress) -> Spectrum:
 
 def _derive_task(model: Model, options: dict, progress) -> EffectiveModel:
     return derive(model, options.get("order"), compare_exact=options.get("check", True),
-                  fit_scaling=options.get("check_scaling", False), progress=progress)
+                  fit_scaling=options.get("check_scaling", False),
+                  check_levels=options.get("check_levels", DEFAULT_CHECK_LEVELS), progress=progress)
 
 
 def _series_task(model: Model, options: dict, progress) -> StateSeries:

@@ -80,7 +80,8 @@ from scipy.sparse.csgraph import shortest_path
 
 from lowfold.errors import ModelError, SizeError
 
-__all__ = ["SHAPES", "BOND_CLASSES", "MAX_SITES", "Lattice", "lattice_cycles", "make_lattice"]
+__all__ = ["SHAPES", "BOND_CLASSES", "MAX_SITES", "Lattice", "lattice_cycles", "make_lattice",
+           "period_vectors"]
 
 SHAPES = ("chain", "ladder", "square", "triangular", "honeycomb", "kagome", "cubic", "graph")
 BOND_CLASSES = ("nearest", "next-nearest", "third")
@@ -219,6 +220,17 @@ class Lattice:
         if self.shape == "graph":
             raise ModelError("a graph has no unit cell to repeat into a patch")
         return make_lattice(self.shape, [cells] * len(self.translations), "open")
+
+
+def period_vectors(lattice: Lattice) -> np.ndarray:
+    """Translation vectors of the periodic directions (rows; ``(0, dim)`` when none): the
+    cluster is the same after a shift by any of them.  A graph has none."""
+    dim = lattice.coordinates.shape[1]
+    if lattice.shape == "graph":
+        return np.zeros((0, dim))
+    vectors = np.array(_GEOMETRY[lattice.shape][0], dtype=float)
+    rows = [n * v for n, v, b in zip(lattice.size, vectors, lattice.boundary) if b == "periodic"]
+    return np.array(rows, dtype=float).reshape(-1, dim)
 
 
 def make_lattice(shape: str, size=None, boundary="open", *, sites: int | None = None,

@@ -15,10 +15,12 @@ from dataclasses import dataclass, field
 import numpy as np
 import scipy.sparse as sp
 
+from lowfold.perturbation.convergence import VALIDITY_WARNING
+
 __all__ = ["Diagnostics", "manifold_diagnostics", "merge_diagnostics", "check_divergence",
            "followed_level_warnings", "GROWTH_WARNING", "MISMATCH_FACTOR"]
 
-RATIO_WARNING = 0.5        # |V_PQ| / gap above this: the expansion is unreliable
+RATIO_WARNING = VALIDITY_WARNING   # |V_PQ| / gap above this: the expansion is unreliable
 INTRUDER_FRACTION = 0.1    # a Q state closer than this fraction of the typical denominator
 GROWTH_WARNING = 2.0       # check error at the top order over the smallest one: diverging
 ROUNDOFF_ERROR = 1e-9      # check errors below this times the largest one are rounding

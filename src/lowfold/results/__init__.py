@@ -14,13 +14,15 @@ rebuilt by ``from_dict``.  Non-finite numbers appear as ``null`` in JSON and ``N
 
 from lowfold.results.classes import CouplingClass
 from lowfold.results.common import Spectrum, orders_from_json, orders_to_json
-from lowfold.results.effective import (DeriveCheck, EffectiveModel, ManifoldDiagnostics,
-                                       ManifoldSummary, PauliTerm, PowerFit, Recognised)
+from lowfold.results.effective import (CheckedBlock, DeriveCheck, EffectiveModel,
+                                       ManifoldDiagnostics, ManifoldSummary, PauliTerm, PowerFit,
+                                       Recognised)
 from lowfold.results.series import (AvoidedCrossing, LevelCrossing, Pade, RatioTest,
                                     SecondOrderTerm, StateAmplitude, StateSeries, Sweep)
 
 __all__ = ["Spectrum", "ManifoldSummary", "ManifoldDiagnostics", "PauliTerm", "Recognised",
-           "DeriveCheck", "PowerFit", "EffectiveModel", "CouplingClass", "Pade", "RatioTest", "StateAmplitude",
+           "DeriveCheck", "CheckedBlock", "PowerFit", "EffectiveModel", "CouplingClass", "Pade",
+           "RatioTest", "StateAmplitude",
            "SecondOrderTerm", "AvoidedCrossing", "LevelCrossing", "Sweep", "StateSeries",
            "orders_to_json", "orders_from_json", "RESULT_TYPES", "result_from_dict"]
 

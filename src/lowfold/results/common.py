@@ -7,7 +7,7 @@ from typing import Any, Mapping
 
 import numpy as np
 
-__all__ = ["Spectrum", "orders_to_json", "orders_from_json", "finite"]
+__all__ = ["Spectrum", "orders_to_json", "orders_from_json", "finite", "null_non_finite"]
 
 
 def orders_to_json(values: Mapping[int, Any]) -> dict[str, Any]:
@@ -22,6 +22,28 @@ def orders_from_json(values: Mapping[str, Any] | None) -> dict[int, Any]:
 
 def finite(x) -> float | None:
     return float(x) if x is not None and np.isfinite(x) else None
+
+
+def null_non_finite(data: Any, path: str = "") -> tuple[Any, list[str]]:
+    """A copy of the JSON-ready ``data`` (dicts, lists, numbers, strings) with every NaN or
+    infinite float replaced by None (JSON has no such numbers; strict parsers reject them),
+    and the paths of those replaced, e.g. ``["sweep.series.2[1]"]``."""
+    if isinstance(data, dict):
+        out, where = {}, []
+        for key, value in data.items():
+            out[key], found = null_non_finite(value, f"{path}.{key}" if path else str(key))
+            where += found
+        return out, where
+    if isinstance(data, (list, tuple)):
+        out, where = [], []
+        for k, value in enumerate(data):
+            item, found = null_non_finite(value, f"{path}[{k}]")
+            out.append(item)
+            where += found
+        return out, where
+    if isinstance(data, float) and not np.isfinite(data):
+        return None, [path]
+    return data, []
 
 
 

@@ -13,6 +13,7 @@ from lowfold.results.classes import CouplingClass
 from lowfold.results.common import finite, orders_from_json, orders_to_json
 
 __all__ = ["ManifoldSummary", "ManifoldDiagnostics", "PauliTerm", "Recognised", "DeriveCheck",
+           "CheckedBlock",
            "PowerFit", "EffectiveModel", "TERM_TOL", "COUPLING_TOL"]
 
 TERM_TOL = 1e-14        # order contributions of a Pauli term at or below this are not written
@@ -132,21 +133,74 @@ def _coupling_from_dict(data: Mapping) -> Coupling:
 
 
 @dataclass(frozen=True)
+class CheckedBlock:
+    """Which levels of one S^z block the exact check compared: the lowest ``compared`` of
+    its ``manifold_states`` levels (``sz`` as text such as ``"1/2"``; None: no S^z blocks)."""
+
+    sz: str | None
+    compared: int
+    manifold_states: int
+
+    def to_dict(self) -> dict:
+        return {"sz": self.sz, "compared": int(self.compared),
+                "manifold_states": int(self.manifold_states)}
+
+    @classmethod
+    def from_dict(cls, data: Mapping) -> "CheckedBlock":
+        return cls(data["sz"], int(data["compared"]), int(data["manifold_states"]))
+
+
+@dataclass(frozen=True)
 class DeriveCheck:
-    """The exact check of a derive: the exact levels the effective ones approximate
-    (ascending, all S^z blocks) and the largest ``|E_eff - E_exact|`` of the sum to each order."""
+    """The exact check of a derive: the exact levels compared (ascending, all S^z blocks),
+    the largest ``|E_eff - E_exact|`` of the sum to each order over them, and which levels
+    those are.
+
+    ``requested`` is the number of lowest levels asked for per block (or ``"all"``);
+    ``blocks`` says per block how many were compared; ``ground_state_error`` is the error
+    of the lowest level of the whole manifold at each order (it is always compared).
+    """
 
     exact: tuple[float, ...]
     max_abs_error: Mapping[int, float]
+    requested: int | str = "all"
+    blocks: tuple[CheckedBlock, ...] = ()
+    ground_state_error: Mapping[int, float] = field(default_factory=dict)
+
+    @property
+    def compared(self) -> int:
+        """Number of levels compared, over all blocks."""
+        return len(self.exact)
+
+    def describe(self) -> str:
+        """One line for the screen: which levels were compared."""
+        total = sum(b.manifold_states for b in self.blocks)
+        every = all(b.compared == b.manifold_states for b in self.blocks)
+        if every:
+            return f"all {total} levels of the manifold compared"
+        per = "all" if self.requested == "all" else f"the lowest {self.requested}"
+        return (f"{self.compared} of {total} levels compared: {per} of each S^z block "
+                "(all in blocks with fewer), the ground state among them")
 
     def to_dict(self) -> dict:
         return {"exact": [float(e) for e in self.exact],
-                "by_order": {str(m): {"max_abs_error": float(e)} for m, e in self.max_abs_error.items()}}
+                "by_order": {str(m): {"max_abs_error": float(e)}
+                             for m, e in self.max_abs_error.items()},
+                "ground_state_error": {str(m): float(e)
+                                       for m, e in self.ground_state_error.items()},
+                "levels": {"requested": self.requested,
+                           "blocks": [b.to_dict() for b in self.blocks]}}
 
     @classmethod
     def from_dict(cls, data: Mapping) -> "DeriveCheck":
+        by_order = orders_from_json(data["by_order"])
+        levels = data.get("levels") or {}
         return cls(tuple(float(e) for e in data["exact"]),
-                   {m: float(v["max_abs_error"]) for m, v in orders_from_json(data["by_order"]).items()})
+                   {m: float(v["max_abs_error"]) for m, v in by_order.items()},
+                   levels.get("requested", "all"),
+                   tuple(CheckedBlock.from_dict(b) for b in levels.get("blocks", ())),
+                   {m: float(v) for m, v in
+                    orders_from_json(data.get("ground_state_error") or {}).items()})
 
 
 @dataclass(frozen=True)

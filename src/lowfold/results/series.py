@@ -37,7 +37,9 @@ class Pade:
 class RatioTest:
     """Domb-Sykes ratio test: radius of convergence in ``variable`` (``lambda`` or
     ``lambda^2``; None = no finite singularity seen), the singularity's position, its
-    ``side`` of the axis, the fitted exponent and the residual of the fit."""
+    ``side`` of the axis, the fitted exponent and the residual of the fit; ``structure`` of
+    the coefficients (``all``, ``even``, ``odd``, ``pairs``), the residual relative to the
+    fitted intercept, whether the estimate is ``reliable`` and the ``reason`` if not."""
 
     variable: str
     radius: float | None
@@ -45,16 +47,23 @@ class RatioTest:
     side: str
     exponent: float | None
     fit_residual: Any
+    structure: str = "all"
+    relative_residual: float | None = None
+    reliable: bool = True
+    reason: str | None = None
 
     def to_dict(self) -> dict:
         return {"variable": self.variable, "radius": finite(self.radius),
                 "singularity": finite(self.singularity), "side": self.side,
-                "exponent": finite(self.exponent), "fit_residual": self.fit_residual}
+                "exponent": finite(self.exponent), "fit_residual": self.fit_residual,
+                "structure": self.structure, "relative_residual": finite(self.relative_residual),
+                "reliable": bool(self.reliable), "reason": self.reason}
 
     @classmethod
     def from_dict(cls, data: Mapping) -> "RatioTest":
         return cls(data["variable"], data["radius"], data["singularity"], data["side"],
-                   data["exponent"], data["fit_residual"])
+                   data["exponent"], data["fit_residual"], data.get("structure", "all"),
+                   data.get("relative_residual"), data.get("reliable", True), data.get("reason"))
 
 
 @dataclass(frozen=True)

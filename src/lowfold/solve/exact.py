@@ -12,7 +12,7 @@ from scipy.sparse.linalg import ArpackNoConvergence, LinearOperator, eigsh
 
 from lowfold.build.hamiltonian import Hamiltonian
 from lowfold.build.sparse import available_memory
-from lowfold.errors import ConvergenceError, ModelError
+from lowfold.errors import ConvergenceError, ModelError, SizeError
 from lowfold.model.model import Model
 from lowfold.solve.lanczos import lanczos_lowest
 from lowfold.solve.method import DENSE_LIMIT, METHODS, choose_method, lanczos_bytes, operator_for
@@ -106,7 +106,12 @@ def spectrum(model: Model, levels: int = 4, *, vectors: bool = False, method: st
     say = progress or (lambda message: None)
     limit = int(0.8 * available_memory()) if memory_limit is None else memory_limit
     hamiltonian = Hamiltonian.of(model, max_states=max(limit // 96, 1))
-    budget = limit - lanczos_bytes(levels, hamiltonian.size, hamiltonian.dtype)
+    vectors_bytes = lanczos_bytes(levels, hamiltonian.size, hamiltonian.dtype)
+    if vectors_bytes >= limit:
+        raise SizeError(f"{levels:,} levels of a sector of {hamiltonian.size:,} states need "
+                        f"{vectors_bytes / 2**30:.1f} GiB of eigensolver vectors, more than the "
+                        f"{limit / 2**30:.1f} GiB available; ask for fewer levels")
+    budget = limit - vectors_bytes
     chosen = choose_method(hamiltonian, method, budget, say)
     say(f"building the Hamiltonian on {hamiltonian.size:,} states ({chosen})")
     matrix = operator_for(hamiltonian, chosen, budget)

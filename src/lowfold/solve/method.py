@@ -29,8 +29,11 @@ DENSE_LIMIT = 1200          # below this many states, dense diagonalisation is f
 
 def lanczos_bytes(levels: int, size: int, dtype) -> int:
     """Memory of the Krylov vectors the eigensolver keeps for ``levels`` levels: about four
-    for the single-level Lanczos, ``ncv`` = max(2 levels + 1, 20) and a few more for ARPACK."""
-    kept = 6 if levels == 1 else max(2 * levels + 1, 20) + 4
+    for the single-level Lanczos, ``ncv`` = max(2 levels + 1, 20) and a few more for ARPACK;
+    at most ``size`` vectors (levels beyond ``size`` are all levels, as in
+    ``lowest_eigenpairs``)."""
+    levels = min(levels, size)
+    kept = min(size, 6 if levels == 1 else max(2 * levels + 1, 20) + 4)
     return kept * size * np.dtype(dtype).itemsize
 
 
