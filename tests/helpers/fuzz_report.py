@@ -18,23 +18,6 @@ def _traceback_of(failure: str, *names: str) -> bool:
 
 
 KNOWN_DEFECTS = {
-    "series-plot-unwritable": (
-        ("series --plot into a missing directory: a traceback after the whole computation "
-         "(cli/app.py: check writable outputs first)"),
-        lambda argv, failure: argv[0] == "series" and "--plot" in argv
-        and _traceback_of(failure, "FileNotFoundError", "NotADirectoryError")),
-    "sweep-overflow-warning": (
-        ("series --sweep to lambda = 1e300: NumPy RuntimeWarnings (overflow in "
-         "perturbation/recursion.py) leak to stderr"),
-        lambda argv, failure: argv[0] == "series" and "--sweep" in argv and "RuntimeWarning" in failure),
-    "plot-output-unwritable": (
-        "plot --output into a missing directory: a traceback (plots/from_directory.py)",
-        lambda argv, failure: argv[0] == "plot"
-        and _traceback_of(failure, "FileNotFoundError", "NotADirectoryError")),
-    "finite-size-json-nan": (
-        ("plot --kind finite-size --json prints NaN for the error of an exact fit "
-         "(plots/, scans/extrapolate.py): not strict JSON"),
-        lambda argv, failure: argv[0] == "plot" and "--json" in argv and "non-finite number" in failure),
     "plot-legend-warning": (
         ("plot: matplotlib's 'No artists with labels found to put in legend' UserWarning "
          "leaks to stderr (plots/scan_figures.py)"),
@@ -44,15 +27,6 @@ KNOWN_DEFECTS = {
          "traceback (scans/extrapolate.py)"),
         lambda argv, failure: argv[0] == "plot" and "--unit" in argv
         and _traceback_of(failure, "KeyError")),
-    "spectrum-levels-beyond-dimension": (
-        ("spectrum --levels 1000000000 on a few states: refused with 'more than the -41.7 GiB "
-         "allowed' (solve/exact.py sizes the Lanczos vectors by the levels asked, not by the "
-         "dimension)"),
-        lambda argv, failure: False),       # one clear line and exit 2: the contract holds
-    "text-markup": (
-        "rich markup in a title ('a [/bold] b'): the text report of spectrum, derive and series "
-        "crashes with MarkupError (cli/render.py: user text must be escaped)",
-        lambda argv, failure: _traceback_of(failure, "MarkupError")),
     "series-follow-degenerate-hang": (
         "series on a reference inside a degenerate H0 level that V couples only beyond the "
         "requested order (examples/hubbard_chain.toml with order = 1): the exact following "
