@@ -40,8 +40,17 @@ def parse_lambda_range(text: str) -> np.ndarray:
     return lambda_grid(start, stop, int(match.group(3)))
 
 
+def _integer_option(options: dict, name: str, default: int) -> int:
+    """The option ``name`` as an int; ModelError for anything but an integer (a scan file's
+    ``levels = "2"``, ``2.5`` or ``true`` is refused, not converted)."""
+    value = options.get(name, default)
+    if isinstance(value, bool) or not isinstance(value, (int, np.integer)):
+        raise ModelError(f"{name} must be an integer, got {value!r}")
+    return int(value)
+
+
 def _spectrum_task(model: Model, options: dict, progress) -> Spectrum:
-    return spectrum(model, int(options.get("levels", 4)), progress=progress)
+    return spectrum(model, _integer_option(options, "levels", 4), progress=progress)
 
 
 def _derive_task(model: Model, options: dict, progress) -> EffectiveModel:
