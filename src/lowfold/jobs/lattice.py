@@ -18,6 +18,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
+from lowfold.build.hamiltonian import Hamiltonian
 from lowfold.errors import ModelError
 from lowfold.model.cycles import lattice_cycles
 from lowfold.model.lattice import Lattice, make_lattice
@@ -53,6 +54,7 @@ class LinkedClusterRun:
     reference: int
     n_basis: int
     seconds: float
+    filling_note: str | None = None
 
 
 def check_linked_cluster_model(model: Model) -> None:
@@ -61,7 +63,7 @@ def check_linked_cluster_model(model: Model) -> None:
     spec = model.perturbation
     if spec is None:
         model.unperturbed_labels          # raises the ModelError that explains it
-    if spec.window is not None or spec.manifold != "lowest":
+    if (spec.window is not None or spec.manifold != "lowest") and not _constant_h0(model):
         raise ModelError("an infinite lattice needs manifold = \"lowest\" (a product of one-site "
                          "manifolds), not an energy window; remove perturbation.window")
     if not model.sector.is_full:
@@ -69,7 +71,8 @@ def check_linked_cluster_model(model: Model) -> None:
                          "[sector] and select the filling with one-site H0 terms (e.g. a "
                          "potential of -U/2 for the half-filled Hubbard model)")
     for term in model.terms:
-        one_site = term.type in ONE_SITE_TYPES or (term.type == "product" and term.sites is not None)
+        one_site = (term.type in ONE_SITE_TYPES + ("constant",)
+                    or (term.type == "product" and term.sites is not None))
         if term.label in spec.unperturbed and not one_site:
             raise ModelError(f"H0 term {term.label!r} ({term.type}) acts on bonds; the "
                              "linked-cluster expansion needs H0 to be a sum of one-site terms: "
@@ -86,29 +89,76 @@ def check_linked_cluster_model(model: Model) -> None:
                              "has a direction, which the cluster graphs do not keep")
 
 
-def _cluster_model(model: Model, labels: dict, graph, order: int) -> Model:
-    """The ``graph`` model of one cluster: V terms on its bonds, one-site terms on its sites."""
+def _constant_h0(model: Model) -> bool:
+    """Whether H0 is only ``constant`` terms (an exported effective model: the manifold is
+    the whole space, selected by a window around the constant)."""
+    return all(model.term(label).type == "constant" for label in model.unperturbed_labels)
+
+
+def one_site_filling(model: Model) -> tuple[int | None, str | None]:
+    """Particles per site of the manifold, and a note when it had to be chosen.
+
+    H0 is a sum of one-site terms, so its lowest level is a product of one-site levels.  When
+    the lowest one-site level holds states of different particle numbers (``U n_up n_dn``
+    alone: 0 or 1 electron), the manifold would mix fillings; then the largest of them is
+    taken (1 electron per site: the Mott state at half filling; 1 boson per site for
+    ``(U/2) n (n - 1)``), and the note says so.  ``(None, None)`` for sites without particles.
+    """
+    if not model.site.has_particles:
+        return None, None
+    lowest = {}
+    capacity = model.site.modes * (model.site.radix - 1)
+    for particles in range(capacity + 1):
+        one_site = _cluster_model(model, {}, (1, ()), 1, Sector(particles=particles))
+        h0 = Hamiltonian.of(one_site, list(one_site.unperturbed_labels))
+        lowest[particles] = float(np.min(h0.diagonal())) if h0.size else np.inf
+    floor = min(lowest.values())
+    scale = max(1.0, max(abs(e) for e in lowest.values() if np.isfinite(e)))
+    degenerate = [n for n, e in lowest.items() if e <= floor + 1e-12 * scale]
+    chosen = max(degenerate)
+    if len(degenerate) == 1:
+        return chosen, None
+    return chosen, (f"the lowest one-site level of H0 holds {', '.join(map(str, degenerate))} "
+                    f"particles; the manifold takes {chosen} per site (the Mott state at this "
+                    "integer filling); a one-site potential in H0 selects another filling")
+
+
+def _cluster_model(model: Model, labels: dict, graph, order: int,
+                   sector: Sector | None = None) -> Model:
+    """The ``graph`` model of one cluster: V terms on its bonds, one-site terms on its sites,
+    in ``sector`` (default: no fixed totals)."""
     n, edges = graph
     lattice = make_lattice("graph", sites=n, bonds=[(a, b) for a, b, _ in edges])
     terms = []
     for term in model.terms:
+        if term.type == "constant":
+            terms.append(term)
+            continue
         if term.bonds is None:
             terms.append(replace(term, sites="all"))
             continue
         mine = tuple((a, b) for a, b, c in edges if term.label in labels[c])
         if mine:
             terms.append(replace(term, bonds=mine))
-    spec = PerturbationSpec(model.perturbation.unperturbed, order, "lowest", None,
+    window = None
+    if _constant_h0(model):
+        # H0 is a number: every state is in the manifold (a window around that number)
+        constant = sum(model.strength(model.term(label)) for label in model.unperturbed_labels)
+        window = (constant - 1.0, constant + 1.0)
+    spec = PerturbationSpec(model.perturbation.unperturbed, order,
+                            "lowest" if window is None else None, window,
                             model.perturbation.tolerance)
-    return Model(lattice, model.site, tuple(terms), Sector(), model.parameters, spec,
+    return Model(lattice, model.site, tuple(terms), sector or Sector(), model.parameters, spec,
                  model.title, model.source)
 
 
-def _solver(model: Model, labels: dict, order: int, energy: bool):
+def _solver(model: Model, labels: dict, order: int, energy: bool, filling: int | None = None):
     from lowfold.jobs.derive import derive
 
     def solve(graph):
-        result = derive(_cluster_model(model, labels, graph, order), order, compare_exact=False)
+        sector = None if filling is None else Sector(particles=filling * graph[0])
+        result = derive(_cluster_model(model, labels, graph, order, sector), order,
+                        compare_exact=False)
         if energy:
             if result.manifold.dimension != 1:
                 raise ModelError(f"the ground state of H0 is {result.manifold.dimension}-fold "
@@ -152,12 +202,14 @@ def linked_cluster_sum(model: Model, order: int, *, energy: bool = False,
     centre = cells // 2
     reference = sum(centre * cells**k for k in range(ndim))
     bond_list, colours, labels = _coloured_bonds(model, patch)
-    weights = ClusterWeights(_solver(model, labels, order, energy), order,
+    filling, filling_note = one_site_filling(model)
+    weights = ClusterWeights(_solver(model, labels, order, energy, filling), order,
                              even_trees=prune and _even_trees(model))
     cell_of = np.arange(patch.n_sites) // n_basis
     total = lattice_sum(patch.n_sites, np.array(bond_list, dtype=np.int64).reshape(-1, 2),
                         colours, cell_of, reference, n_basis, weights, order)
-    return LinkedClusterRun(total, patch, reference, n_basis, time.perf_counter() - start)
+    return LinkedClusterRun(total, patch, reference, n_basis, time.perf_counter() - start,
+                            filling_note)
 
 
 def _coloured_bonds(model: Model, cluster: Lattice):
@@ -252,8 +304,9 @@ def series_infinite(model: Model, order: int | None = None, *, state: str | None
             f"{run.total.clusters} clusters per unit cell, {run.total.distinct} distinct graphs "
             "computed); the diagnostics of a finite state (exact value, Pade, ratio test, "
             "first-order state: norm written as 0) are not computed")
+    notes = (note,) if run.filling_note is None else (note, run.filling_note)
     return StateSeries(np.asarray(energies, dtype=float), "product ground state of H0", None,
-                       None, None, None, 0.0, warnings=(note,))
+                       None, None, None, 0.0, warnings=notes)
 
 
 def derive_infinite(model: Model, order: int | None = None, *, prune: bool = True,
@@ -270,7 +323,8 @@ def derive_infinite(model: Model, order: int | None = None, *, prune: bool = Tru
     summary = ManifoldSummary(2, energy, None, "spin-1/2")
     note = (f"infinite lattice: linked-cluster expansion, {run.total.clusters} clusters per "
             f"unit cell, {run.total.distinct} distinct graphs computed")
-    return EffectiveModel(order, summary, warnings=(note,), model=model, classes=classes)
+    notes = (note,) if run.filling_note is None else (note, run.filling_note)
+    return EffectiveModel(order, summary, warnings=notes, model=model, classes=classes)
 
 
 def read_classes(run: LinkedClusterRun, order: int, model: Model | None = None
