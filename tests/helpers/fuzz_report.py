@@ -18,15 +18,6 @@ def _traceback_of(failure: str, *names: str) -> bool:
 
 
 KNOWN_DEFECTS = {
-    "scan-grid-unbounded": (
-        "a scan grid range of 10**9 points (grid.U = {start = 1, stop = 2, num = 1000000000}) "
-        "is planned point by point with no bound: lowfold scan runs past any time limit "
-        "(scans/scanfile.py, scans/plan.py)",
-        lambda argv, failure: argv[0] == "scan" and failure.startswith("hang")),
-    "scan-model-path-nul": (
-        "a scan file whose model path holds a NUL character: ValueError 'embedded null byte' "
-        "traceback (scans/scanfile.py)",
-        lambda argv, failure: argv[0] == "scan" and _traceback_of(failure, "null byte")),
 }
 
 

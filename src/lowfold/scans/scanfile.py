@@ -33,6 +33,7 @@ the key, e.g. ``scan.toml: grid.U: range needs num``.
 
 from __future__ import annotations
 
+import math
 import os
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -47,6 +48,7 @@ __all__ = ["TASK_NAMES", "SECTOR_AXES", "ScanSpec", "parse_scan", "load_scan", "
 TASK_NAMES = ("spectrum", "derive", "series")
 SECTOR_AXES = ("particles", "filling", "sz")
 _TOP_KEYS = {"model", "title", "task", "grid", "sector"}
+MAX_POINTS = 100_000   # points of one scan (each is a job and a file in the store)
 
 
 @dataclass(frozen=True)
@@ -137,6 +139,9 @@ def _values(source: str, key: str, spec) -> tuple[float, ...]:
             raise scan_error(source, key, "start and stop must be numbers")
         if not isinstance(num, int) or isinstance(num, bool) or num < 1:
             raise scan_error(source, key, f"num must be an integer >= 1, got {num!r}")
+        if num > MAX_POINTS:
+            raise scan_error(source, key, f"num = {num:,} is more than the {MAX_POINTS:,} points "
+                             "a scan may plan; split it into several scans")
         spacing = spec.get("spacing", "linear")
         if spacing not in ("linear", "log"):
             raise scan_error(source, key, f"spacing must be 'linear' or 'log', got {spacing!r}")
@@ -237,6 +242,8 @@ def parse_scan(data: Mapping[str, Any], *, source: str = "<scan>", base_dir: str
     model_file = data.get("model")
     if (model is None or model_file is not None) and (not isinstance(model_file, str) or not model_file):
         raise scan_error(source, "model", "needs model = 'path/to/model.toml' (relative to the scan file)")
+    if model_file is not None and not model_file.isprintable():
+        raise scan_error(source, "model", f"the path {model_file!r} holds control characters")
     title = data.get("title", "")
     if not isinstance(title, str):
         raise scan_error(source, "title", "must be a string")
@@ -262,6 +269,7 @@ def parse_scan(data: Mapping[str, Any], *, source: str = "<scan>", base_dir: str
         else:
             axes.append((name, _values(source, key, spec)))
     names = [n for n, _ in axes]
+    _check_point_count(source, axes, combine)
     if "particles" in names and "filling" in names:
         raise scan_error(source, "grid.filling", "give particles or filling, not both")
     if combine == "zip":
@@ -285,6 +293,15 @@ def parse_scan(data: Mapping[str, Any], *, source: str = "<scan>", base_dir: str
     return ScanSpec(source=source, model_path=None if model_file is None else Path(base_dir) / model_file,
                     task=task, options=options, axes=tuple(axes), combine=combine, sector=sector,
                     title=title, model=model)
+
+
+def _check_point_count(source: str, axes, combine: str) -> None:
+    """Refuse a grid of more than :data:`MAX_POINTS` points before anything is planned."""
+    lengths = [len(values) for _, values in axes]
+    count = max(lengths, default=1) if combine == "zip" else math.prod(lengths)
+    if count > MAX_POINTS:
+        raise scan_error(source, "grid", f"has {count:,} points, more than the {MAX_POINTS:,} "
+                         "a scan may plan; split it into several scans")
 
 
 def load_scan(path: str | os.PathLike) -> ScanSpec:
