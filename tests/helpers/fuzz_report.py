@@ -18,24 +18,6 @@ def _traceback_of(failure: str, *names: str) -> bool:
 
 
 KNOWN_DEFECTS = {
-    "plot-legend-warning": (
-        ("plot: matplotlib's 'No artists with labels found to put in legend' UserWarning "
-         "leaks to stderr (plots/scan_figures.py)"),
-        lambda argv, failure: argv[0] == "plot" and "No artists with labels" in failure),
-    "finite-size-unknown-unit": (
-        ("plot --kind finite-size --unit NAME with NAME not a parameter of the scan: KeyError "
-         "traceback (scans/extrapolate.py)"),
-        lambda argv, failure: argv[0] == "plot" and "--unit" in argv
-        and _traceback_of(failure, "KeyError")),
-    "series-follow-degenerate-hang": (
-        "series on a reference inside a degenerate H0 level that V couples only beyond the "
-        "requested order (examples/hubbard_chain.toml with order = 1): the exact following "
-        "(jobs/series.py _follow_dense) shrinks its lambda step to 1e-5 and runs for minutes",
-        lambda argv, failure: argv[0] == "series" and failure.startswith("hang")),
-    "plot-title-control-glyph": (
-        "plot --title with a control character (tab, bell): matplotlib's 'Glyph missing from "
-        "font' UserWarning leaks to stderr (plots/style.py)",
-        lambda argv, failure: argv[0] == "plot" and "missing from font" in failure),
 }
 
 

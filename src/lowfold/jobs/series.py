@@ -34,6 +34,7 @@ __all__ = ["state_series", "MAX_ORDER"]
 
 MAX_ORDER = MAX_SERIES_ORDER    # highest order the series job accepts (see perturbation.orders)
 DENSE_FOLLOW_LIMIT = 600      # follow the exact level by dense diagonalisation up to here
+MAX_FOLLOW_STEPS = 2000       # diagonalisations allowed while following it from 0 to 1
 
 
 def _reference_index(model: Model, basis: Basis, h0_diag: np.ndarray, state: str | None) -> int:
@@ -180,7 +181,21 @@ def _exact_followed(model, basis, h0, v, psi0, warnings) -> float | None:
     idx = _reference_block(model, basis, psi0)
     h0b, vb, ref = h0[idx][:, idx], v[idx][:, idx], psi0[idx]
     if idx.size <= DENSE_FOLLOW_LIMIT:
-        return _follow_dense(h0b.toarray(), vb.toarray(), ref)
+        h0_dense = h0b.toarray()
+        e_ref = float(np.real(np.vdot(ref, h0_dense @ ref)))
+        level = la.eigvalsh(h0_dense)
+        partners = int(np.sum(np.abs(level - e_ref) <= 1e-9 * max(1.0, abs(e_ref)))) - 1
+        if partners > 0:
+            warnings.append(f"exact comparison skipped: the reference H0 level is degenerate "
+                            f"with {partners} other state(s) of its block, so no single exact "
+                            "level grows out of it as lambda leaves 0")
+            return None
+        value = _follow_dense(h0_dense, vb.toarray(), ref)
+        if value is None:
+            warnings.append(f"exact comparison skipped: following the level from lambda = 0 "
+                            f"to 1 took more than {MAX_FOLLOW_STEPS} diagonalisations (the "
+                            "level meets others too closely)")
+        return value
     e_ref = float(np.real(np.vdot(ref, h0b @ ref)))
     if e_ref > lowest_eigenpairs(h0b, 1)[0][0] + 1e-9 * max(1.0, abs(e_ref)):
         warnings.append("exact comparison skipped: following an excited state needs a block "
@@ -206,9 +221,17 @@ def _reference_block(model, basis, psi0) -> np.ndarray:
     return np.arange(basis.size)
 
 
-def _follow_dense(h0, v, vector, *, max_step=0.05, min_step=1e-5) -> float:
+def _follow_dense(h0, v, vector, *, max_step=0.05, min_step=1e-5,
+                  max_steps=None) -> float | None:
+    """The eigenvalue of ``h0 + v`` reached by following ``vector`` (an eigenvector of
+    ``h0``) along lambda from 0 to 1; None after ``max_steps`` diagonalisations
+    (default :data:`MAX_FOLLOW_STEPS`)."""
+    budget = MAX_FOLLOW_STEPS if max_steps is None else max_steps
     lam, step, value = 0.0, max_step, float(np.real(np.vdot(vector, h0 @ vector)))
     while lam < 1.0 - 1e-12:
+        budget -= 1
+        if budget < 0:
+            return None
         step = min(step, 1.0 - lam)
         values, vectors = la.eigh(h0 + (lam + step) * v)
         overlaps = np.abs(vectors.conj().T @ vector)

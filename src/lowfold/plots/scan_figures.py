@@ -32,11 +32,13 @@ from lowfold.errors import ModelError
 from lowfold.plots.style import (
     axis_label,
     finish,
+    legend,
     new_figure,
     quantity_symbol,
     styled,
     styles,
     value_label,
+    visible_text,
 )
 from lowfold.results import EffectiveModel, StateSeries
 from lowfold.scans.extrapolate import extrapolate_records
@@ -49,9 +51,9 @@ __all__ = ["plot_couplings", "plot_errors", "plot_finite_size", "plot_levels", "
 
 def _title(records: Sequence[Mapping[str, Any]], title: str | None) -> str:
     if title is not None:
-        return title
+        return visible_text(title)
     titles = {r.get("model", {}).get("title", "") for r in records} - {""}
-    return titles.pop() if len(titles) == 1 else ""
+    return visible_text(titles.pop()) if len(titles) == 1 else ""
 
 
 def _unit_value(record: Mapping[str, Any], unit: str | None) -> float:
@@ -218,7 +220,7 @@ def plot_couplings(
     ax.set_xlabel(axis_label(x))
     ax.set_ylabel(value_label(symbol, unit))
     ax.set_title(_title(good, title))
-    ax.legend(frameon=False)
+    legend(ax, frameon=False)
     ax.grid(alpha=0.3)
     return finish(fig, output)
 
@@ -278,7 +280,7 @@ def plot_errors(
     what = "\\delta E" if quantity == "error" else "\\delta " + quantity_symbol(quantity)
     ax.set_ylabel(value_label(what, unit))
     ax.set_title(_title(good, title))
-    ax.legend(frameon=False)
+    legend(ax, frameon=False)
     ax.grid(alpha=0.3, which="both")
     return finish(fig, output)
 
@@ -329,7 +331,7 @@ def plot_finite_size(
     ax.set_ylabel(value_label(quantity_symbol(quantity), unit, per_site))
     ax.set_xlim(left=0.0)
     ax.set_title(_title(good, title))
-    ax.legend(frameon=False)
+    legend(ax, frameon=False)
     ax.grid(alpha=0.3)
     return finish(fig, output)
 
@@ -395,6 +397,6 @@ def plot_levels(
     ax.set_xlabel(axis_label(x))
     ax.set_ylabel(value_label("E", unit))
     ax.set_title(_title(good, title))
-    ax.legend(frameon=False)
+    legend(ax, frameon=False)
     ax.grid(alpha=0.3)
     return finish(fig, output)

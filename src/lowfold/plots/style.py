@@ -12,6 +12,7 @@ from __future__ import annotations
 import functools
 import itertools
 import os
+import unicodedata
 
 import matplotlib
 from matplotlib.figure import Figure
@@ -19,7 +20,8 @@ from matplotlib.figure import Figure
 from lowfold.errors import ModelError
 
 __all__ = ["PALETTE", "MARKERS", "LINESTYLES", "STYLE", "FIGSIZE", "DPI", "styles", "styled",
-           "new_figure", "finish", "axis_label", "quantity_symbol", "value_label"]
+           "new_figure", "finish", "axis_label", "quantity_symbol", "value_label", "visible_text",
+           "legend"]
 
 PALETTE = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000", "#F0E442")
 MARKERS = ("o", "s", "^", "D", "v", "P", "X", "*")
@@ -67,6 +69,33 @@ def finish(fig: Figure, output: str | os.PathLike | None) -> Figure:
             raise ModelError(f"{output}: unknown image format {ext!r}; use .png, .svg or .pdf")
         fig.savefig(output, dpi=DPI)
     return fig
+
+
+_ESCAPES = {"\t": "\\t", "\r": "\\r", "\a": "\\a", "\b": "\\b", "\f": "\\f", "\v": "\\v",
+            "\x00": "\\0"}
+
+
+def visible_text(text: str) -> str:
+    """User text (a title) with its control characters written as visible escapes.
+
+    Fonts have no glyph for control characters (tab, bell...), so they are shown as
+    Python-style escapes (``\\t``, ``\\a``, ``\\x1b``); a newline stays a line break.
+    """
+    out = []
+    for char in text:
+        if char != "\n" and unicodedata.category(char) == "Cc":
+            out.append(_ESCAPES.get(char, f"\\x{ord(char):02x}" if ord(char) < 0x100
+                                    else f"\\u{ord(char):04x}"))
+        else:
+            out.append(char)
+    return "".join(out)
+
+
+def legend(ax, **kwargs) -> None:
+    """Draw the legend of ``ax`` only when some artist has a label (none is drawn otherwise)."""
+    handles, _ = ax.get_legend_handles_labels()
+    if handles:
+        ax.legend(**kwargs)
 
 
 def axis_label(spec: str) -> str:

@@ -13,7 +13,7 @@ from typing import Any, Mapping, Sequence
 import numpy as np
 from matplotlib.figure import Figure
 
-from lowfold.plots.style import finish, new_figure, styled, styles
+from lowfold.plots.style import finish, legend, new_figure, styled, styles, visible_text
 from lowfold.results import Sweep
 
 __all__ = ["plot_sweep"]
@@ -83,7 +83,7 @@ def plot_sweep(
     ax.set_ylim(low - margin, high + margin)      # divergent partial sums leave the frame
     ax.set_xlabel("$\\lambda$  ($H = H_0 + \\lambda V$)")
     ax.set_ylabel("$E$")
-    ax.set_title(title)
-    ax.legend(frameon=False, fontsize=9)
+    ax.set_title(visible_text(title))
+    legend(ax, frameon=False, fontsize=9)
     ax.grid(alpha=0.3)
     return finish(fig, output)

@@ -239,7 +239,7 @@ def extrapolate_records(
             if per_site:
                 value /= float(r["n_sites"])
             if unit is not None:
-                value /= float(r["parameters"][unit])
+                value /= _parameter(r, unit)
             values.append(value)
         fit = None
         try:
@@ -249,6 +249,15 @@ def extrapolate_records(
             notes.append(str(exc))
         out.append({"group": dict(label), "fit": fit, "warnings": notes})
     return sorted(out, key=lambda entry: [_sort_key(v) for v in entry["group"].values()])
+
+
+def _parameter(record: Mapping[str, Any], name: str) -> float:
+    """The model parameter ``name`` of a point record; ModelError naming those it has."""
+    parameters = record.get("parameters") or {}
+    if name not in parameters:
+        known = ", ".join(sorted(parameters)) or "none"
+        raise ModelError(f"unit {name!r} is not a parameter of the scan (its parameters: {known})")
+    return float(parameters[name])
 
 
 def _sort_key(value) -> tuple:
