@@ -16,33 +16,12 @@ import numpy as np
 import pytest
 
 from helpers.cli import run_all, succeeded
+from helpers.series_models import tunnelling_dimer_file
 from lowfold.results.common import null_non_finite
 
 T, U = 1.0, 10.0
 
-TWO_SITES = f"""
-title = "two sites, tunnelling first"
-[lattice]
-shape = "chain"
-size = [2]
-[site]
-type = "electron"
-[sector]
-particles = 2
-sz = 0
-[parameters]
-t = {T}
-U = {U}
-[[term]]
-type = "hopping"
-strength = "t"
-[[term]]
-type = "hubbard"
-strength = "U"
-[perturbation]
-unperturbed = ["hopping"]
-order = 6
-"""
+TWO_SITES = tunnelling_dimer_file(U, 6, t=T)
 
 
 def strict_json(text: str) -> dict:

@@ -23,31 +23,8 @@ import numpy as np
 import pytest
 
 from helpers.cli import run_all, succeeded
-from helpers.series_models import ONE_SPIN
+from helpers.series_models import ONE_SPIN, tunnelling_dimer_file
 
-TWO_SITES = """
-title = "two sites, tunnelling first"
-[lattice]
-shape = "chain"
-size = [2]
-[site]
-type = "electron"
-[sector]
-particles = 2
-sz = 0
-[parameters]
-t = 1.0
-U = {u}
-[[term]]
-type = "hopping"
-strength = "t"
-[[term]]
-type = "hubbard"
-strength = "U"
-[perturbation]
-unperturbed = ["hopping"]
-order = 12
-"""
 
 TWO_LEVELS = """
 title = "one spin, transverse field"
@@ -81,7 +58,7 @@ CONVERGENCE_WORDS = ("ratio test puts the nearest singularity", "still grow",
 @pytest.fixture(scope="module")
 def runs(tmp_path_factory):
     directory = tmp_path_factory.mktemp("reliability")
-    texts = {"strong": TWO_SITES.format(u=10.0), "weak": TWO_SITES.format(u=0.5),
+    texts = {"strong": tunnelling_dimer_file(10.0, 12), "weak": tunnelling_dimer_file(0.5, 12),
              "two-levels": TWO_LEVELS.format(g=G),
              "avoided": ONE_SPIN.format(two_r=2 * R, two_b=2 * B)}
     jobs = {}

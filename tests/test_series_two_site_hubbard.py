@@ -19,6 +19,7 @@ from fractions import Fraction
 import numpy as np
 import pytest
 from helpers.exact import binom_half
+from helpers.series_models import tunnelling_dimer_file
 
 from lowfold import load_model, state_series
 from lowfold.perturbation.series import rayleigh_schrodinger_general
@@ -73,36 +74,13 @@ def test_both_energy_formulas_match_on_the_dense_route(method):
                                rtol=1e-9, atol=1e-12)
 
 
-MODEL = """
-title = "two dots, tunnelling first"
-[lattice]
-shape = "chain"
-size = [2]
-[site]
-type = "electron"
-[sector]
-particles = 2
-sz = 0
-[parameters]
-t = 1.0
-U = {u}
-[[term]]
-type = "hopping"
-strength = "t"
-[[term]]
-type = "hubbard"
-strength = "U"
-[perturbation]
-unperturbed = ["hopping"]
-order = 4
-"""
 
 
 @pytest.mark.parametrize("u", [0.5, 10.0])
 def test_series_job_runs_on_the_two_site_model_file(tmp_path, u):
     # the case of the report: U = 10, order 12 was refused with a false degenerate partner
     path = tmp_path / "h.toml"
-    path.write_text(MODEL.format(u=u))
+    path.write_text(tunnelling_dimer_file(u, 4))
     out = state_series(load_model(path), ORDER)
     expected = closed_form_coefficients(1.0, u, ORDER)
     np.testing.assert_allclose(out.energies, expected, rtol=1e-9,

@@ -262,3 +262,31 @@ def singlet_block(t, lam_tilt=0.0):
     return np.array([[1.0 - 4.0 + 2 * lam_tilt, a, 0.0],
                      [a, -2.0 + lam_tilt, a],
                      [0.0, a, 1.0]])
+
+
+def tunnelling_dimer_file(u, order, t=1.0):
+    """Two-site Hubbard model at half filling (S^z = 0) with the hopping as H0 and U as V:
+    the non-diagonal route; exact E = (U - sqrt(U^2 + 16 t^2))/2."""
+    return f"""
+title = "two sites, tunnelling first"
+[lattice]
+shape = "chain"
+size = [2]
+[site]
+type = "electron"
+[sector]
+particles = 2
+sz = 0
+[parameters]
+t = {t}
+U = {u}
+[[term]]
+type = "hopping"
+strength = "t"
+[[term]]
+type = "hubbard"
+strength = "U"
+[perturbation]
+unperturbed = ["hopping"]
+order = {order}
+"""
