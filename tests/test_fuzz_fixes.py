@@ -11,6 +11,7 @@ import subprocess
 from math import comb
 
 import matplotlib
+import numpy as np
 import pytest
 
 from lowfold.errors import ModelError
@@ -93,3 +94,15 @@ def test_no_legend_without_labelled_artists(recwarn):
         legend(ax)
         assert ax.get_legend() is not None
     assert not [w for w in recwarn if "legend" in str(w.message)]
+
+
+def test_level_selectors_that_are_not_integers_are_model_errors():
+    # found by the large plot fuzz (seed 1010): `--quantity energy:x` raised ValueError
+    from lowfold.results import Spectrum
+    from lowfold.scans.select import scalar
+    record = {"status": "ok", "task": "spectrum", "key": "k",
+              "result": Spectrum(3, np.array([-1.0, 0.0, 2.0])).to_dict()}
+    assert scalar(record, "gap:0:2") == 3.0          # exact: 2 - (-1)
+    for bad in ("energy:x", "gap:0", "gap:0:-1", "energy:0:1"):
+        with pytest.raises(ModelError, match="gap|level"):
+            scalar(record, bad)

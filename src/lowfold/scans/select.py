@@ -105,7 +105,12 @@ def scalar(record: Mapping[str, Any], quantity: str, *, order: int | None = None
         levels = energy_levels(result)
         if levels is None:
             raise ModelError(f"{quantity}: the {task} result holds no energy levels")
+        if not all(i.isdigit() for i in rest) or len(rest) > (1 if head == "energy" else 2):
+            raise ModelError(f"{quantity}: level indices are integers from 0 "
+                             "(energy[:k], gap:i:j)")
         idx = [int(i) for i in rest] or ([0] if head == "energy" else [0, 1])
+        if head == "gap" and len(idx) != 2:
+            raise ModelError(f"{quantity}: a gap needs two levels (gap:i:j)")
         if max(idx) >= len(levels):
             raise ModelError(f"{quantity}: only {len(levels)} levels stored (raise 'levels')")
         return float(levels[idx[0]]) if head == "energy" else float(levels[idx[1]]) - float(levels[idx[0]])
