@@ -22,40 +22,17 @@ import numpy as np
 import pytest
 
 from lowfold import load_model
+from helpers.modelfiles import hubbard_text
 from lowfold.jobs.tasks import parse_lambda_range, run_task
 from lowfold.results import EffectiveModel, Spectrum, StateSeries
 
 DOC = Path(__file__).resolve().parent.parent / "docs" / "output.md"
 
-HUBBARD_DIMER = """
-title = "Hubbard dimer"
-[lattice]
-shape = "chain"
-size = [2]
-boundary = "open"
-[site]
-type = "electron"
-[sector]
-particles = 2
-sz = 0
-[parameters]
-t = 0.1
-U = 1.0
-[[term]]
-type = "hopping"
-strength = "t"
-bonds = "nearest"
-[[term]]
-type = "hubbard"
-strength = "U"
-[perturbation]
-unperturbed = ["hubbard"]
-order = 4
-"""
+HUBBARD_DIMER = hubbard_text("chain", [2], t=0.1, U=1.0, sz=0, order=4, title="Hubbard dimer")
 
 # a periodic ring: translation invariant, so derive writes coupling classes
-HUBBARD_RING = (HUBBARD_DIMER.replace("size = [2]", "size = [4]").replace('"open"', '"periodic"')
-                .replace("particles = 2", "particles = 4").replace("order = 4", "order = 2"))
+HUBBARD_RING = hubbard_text("chain", [4], boundary="periodic", t=0.1, U=1.0, sz=0, order=2,
+                            title="Hubbard ring")
 
 SPIN_PAIR = """
 title = "two spins"
