@@ -102,5 +102,6 @@ def test_operator_identities_do_not_cause_false_refusals():
 
 
 def test_non_product_terms_need_real_strengths():
+    # (a hopping carries its own conjugate: a complex hopping is Hermitian, issue 12 item 0)
     with pytest.raises(ModelError, match="needs a real strength"):
-        Model(make_lattice("chain", [2]), make_site("fermion"), (Term("t", "hopping", 1j),))
+        Model(make_lattice("chain", [2]), make_site("fermion"), (Term("V", "interaction", 1j),))

@@ -1,7 +1,9 @@
 """Hermiticity of a model, decided from its terms before any basis is built.
 
 Every term type but ``product`` is Hermitian by construction when its strength is real
-(``hopping`` carries its own conjugate, ``exchange`` both ``S+ S-`` orders).  A ``product``
+(``exchange`` carries both ``S+ S-`` orders); ``hopping`` carries its own Hermitian conjugate,
+so it is Hermitian for a complex strength too (``-s c+_i c_j - conj(s) c+_j c_i``, with its
+phases and spin-orbit part, :mod:`lowfold.model.hopping`).  A ``product``
 term is Hermitian with ``conjugate = true``; without it, it must be self-adjoint or find its
 Hermitian partner among the other product terms.  :func:`check_hermitian_terms` groups the
 products of those terms by the set of sites they touch (a product and its adjoint touch the
@@ -38,9 +40,10 @@ def check_hermitian_terms(model) -> None:
     ``model`` sum to a Hermitian operator, as far as the terms decide it (see the module
     docstring)."""
     for term in model.terms:
-        if term.type != "product" and complex(model.strength(term)).imag != 0:
+        if term.type not in ("product", "hopping") and complex(model.strength(term)).imag != 0:
             raise ModelError(f"term {term.label!r}: a {term.type} term needs a real strength "
-                             "(it is Hermitian only then)")
+                             f"(it is Hermitian only then), got {model.strength(term)!r}; "
+                             "complex strengths belong to hopping and product terms")
     loose = [t for t in model.terms if t.type == "product" and not t.conjugate]
     if not loose:
         return

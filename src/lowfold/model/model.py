@@ -6,7 +6,7 @@ from dataclasses import dataclass, field, replace
 from types import MappingProxyType
 from typing import Mapping
 
-from lowfold.model.sector import Sector
+from lowfold.model.sector import Sector, check_sector_symmetry
 from lowfold.errors import ModelError
 from lowfold.model.hermiticity import check_hermitian_terms
 from lowfold.model.lattice import Lattice, make_lattice
@@ -79,11 +79,14 @@ class Model:
                 raise ModelError(f"term label {label!r} is used twice; labels must be unique")
         for term in self.terms:      # validates strengths, selectors and operator names
             try:
-                expand_term(term, self.strength(term), self.lattice, self.site)
+                expand_term(term, self.strength(term), self.lattice, self.site, self.parameters)
             except ModelError as exc:
                 prefix = f"term {term.label!r}"
                 raise ModelError(str(exc) if str(exc).startswith(prefix) else f"{prefix}: {exc}") from None
         check_hermitian_terms(self)
+        check_sector_symmetry(self)
+        if self.lattice.infinite:
+            _check_infinite_hopping(self)
         if self.perturbation is not None:
             for label in self.perturbation.unperturbed:
                 if label not in labels:
@@ -120,7 +123,7 @@ class Model:
         """Expanded local-operator products of the named terms (default: all), as
         ``[(label, [(coefficient, ((operator, site), ...)), ...]), ...]``."""
         chosen = self.terms if labels is None else [self.term(label) for label in labels]
-        return [(t.label, expand_term(t, self.strength(t), self.lattice, self.site))
+        return [(t.label, expand_term(t, self.strength(t), self.lattice, self.site, self.parameters))
                 for t in chosen]
 
     @property
@@ -155,3 +158,22 @@ class Model:
 
     def with_sector(self, sector: Sector) -> "Model":
         return replace(self, sector=sector)
+
+    @property
+    def is_complex(self) -> bool:
+        """Whether some term has a complex amplitude (complex strength, Peierls phase or
+        spin-orbit part): the Hamiltonian is then built as complex128, else as float64."""
+        return any(isinstance(c, complex) and c.imag != 0
+                   for _, products in self.products() for c, _ in products)
+
+
+def _check_infinite_hopping(model: Model) -> None:
+    """The linked-cluster expansion treats bonds as undirected: a directed hopping (complex,
+    with phases, flux or spin-orbit part) has no meaning there yet."""
+    for term in model.terms:
+        directed = (term.phases is not None or term.flux is not None or term.soc is not None
+                    or (term.type == "hopping" and isinstance(model.strength(term), complex)))
+        if directed:
+            raise ModelError(f"term {term.label!r}: a complex, flux or spin-orbit hopping is "
+                             "not supported on an infinite lattice (its bonds have a direction "
+                             "the linked-cluster expansion does not keep); use a finite cluster")

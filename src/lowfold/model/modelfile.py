@@ -15,6 +15,7 @@ try:
 except ModuleNotFoundError:  # Python 3.10
     import tomli as tomllib
 
+from lowfold.model.complex_form import parse_number
 from lowfold.model.sector import Sector, sector_totals
 from lowfold.errors import ModelError, SizeError
 from lowfold.model.lattice import make_lattice
@@ -30,7 +31,7 @@ _LATTICE_KEYS = {"shape", "size", "boundary", "sites", "bonds"}
 _SITE_KEYS = {"type", "spin", "max_occupation"}
 _SECTOR_KEYS = {"particles", "sz"}
 _TERM_KEYS = {"type", "strength", "bonds", "sites", "label", "axis", "operators", "conjugate",
-              "cycles", "pattern", "vector", "tensor"}
+              "cycles", "pattern", "vector", "tensor", "phases", "flux", "soc"}
 _PERTURBATION_KEYS = {"unperturbed", "order", "manifold", "window", "tolerance"}
 
 
@@ -200,7 +201,7 @@ def _parse_site(table: dict):
 def _parse_parameters(table: dict) -> dict:
     for name in table:
         check_label(name, "parameters: name")
-    return {name: check_strength(_number(value, f"parameters.{name}"), f"parameters.{name}")
+    return {name: check_strength(parse_number(value, f"parameters.{name}"), f"parameters.{name}")
             for name, value in table.items()}
 
 
@@ -246,7 +247,7 @@ def _parse_terms(entries, parameters: dict) -> tuple[Term, ...]:
             if strength not in parameters:
                 raise ModelError(f"{where}.strength: parameter {strength!r} is not defined in [parameters]")
         else:
-            strength = check_strength(_number(strength, f"{where}.strength"), f"{where}.strength")
+            strength = check_strength(parse_number(strength, f"{where}.strength"), f"{where}.strength")
         bonds, sites = table.get("bonds"), table.get("sites")
         if kind in TWO_SITE_TYPES and sites is not None:
             raise ModelError(f"{where}.sites: a {kind} term acts on bonds; use 'bonds'")
@@ -272,7 +273,7 @@ def _parse_terms(entries, parameters: dict) -> tuple[Term, ...]:
             raise ModelError(f"{where}.conjugate: must be true or false")
         if conjugate and kind != "product":
             raise ModelError(f"{where}.conjugate: only used by product terms")
-        extra = _spin_keys(table, kind, where)
+        extra = _spin_keys(table, kind, where) | _hopping_keys(table, kind, where)
         sites = (_groups(sites, f"{where}.sites") if kind in SPIN_TERM_TYPES
                  else _selector(sites, f"{where}.sites", 1))
         terms.append(Term(label, kind, strength, _selector(bonds, f"{where}.bonds", 2),
@@ -322,6 +323,26 @@ def _spin_keys(table: dict, kind: str, where: str) -> dict:
                 raise ModelError(f"{where}.tensor: must be a 3x3 list of rows")
             value = tuple(tuple(_number(v, f"{where}.tensor") for v in r) for r in value)
         out[key] = value
+    return out
+
+
+def _hopping_keys(table: dict, kind: str, where: str) -> dict:
+    """``phases``, ``flux`` and ``soc`` of a hopping term: numbers or parameter names
+    (:mod:`lowfold.model.hopping`)."""
+    out = {}
+    for key in ("phases", "flux", "soc"):
+        value = table.get(key)
+        if value is None:
+            continue
+        if kind != "hopping":
+            raise ModelError(f"{where}.{key}: only used by hopping terms")
+        if key == "flux":
+            out[key] = value if isinstance(value, str) else _number(value, f"{where}.flux")
+            continue
+        shape = "[lx, ly, lz]" if key == "soc" else "[phi_1, phi_2, ...] (radians)"
+        if not isinstance(value, list) or (key == "soc" and len(value) != 3):
+            raise ModelError(f"{where}.{key}: must be a list {shape}")
+        out[key] = tuple(v if isinstance(v, str) else _number(v, f"{where}.{key}") for v in value)
     return out
 
 

@@ -16,7 +16,7 @@ from fractions import Fraction
 from lowfold.errors import ModelError
 from lowfold.model.sites import Site
 
-__all__ = ["Sector", "sector_totals"]
+__all__ = ["Sector", "sector_totals", "sz_breaking_terms", "sz_note", "check_sector_symmetry"]
 
 
 @dataclass(frozen=True)
@@ -128,3 +128,32 @@ def sector_totals(site: Site, n_sites: int, sector: Sector) -> list[tuple[int, i
         raise ModelError(f"sector.sz = {sz} is impossible with {particles} electrons on "
                          f"{n_sites} sites")
     return [(n_sites, int(n_up)), (n_sites, int(n_dn))]
+
+
+def sz_breaking_terms(model) -> list[str]:
+    """Labels of the hopping terms whose spin-orbit part ``i lambda . sigma`` has ``lambda``
+    not along z: they do not conserve the total S^z (:mod:`lowfold.model.hopping`)."""
+    from lowfold.model.hopping import breaks_sz
+    return [t.label for t in model.terms if breaks_sz(t, model.parameters)]
+
+
+def sz_note(model) -> str | None:
+    """The warning that S^z is not conserved (and so not used to split levels or manifold
+    blocks), or ``None`` when no term breaks it by construction."""
+    labels = sz_breaking_terms(model)
+    if not labels:
+        return None
+    return (f"S^z is not conserved: the spin-orbit hopping of {', '.join(map(repr, labels))} "
+            "has lambda not along z, so the sector's S^z part is dropped and levels are not "
+            "split by S^z")
+
+
+def check_sector_symmetry(model) -> None:
+    """``ModelError`` when the sector fixes S^z but a spin-orbit hopping breaks it."""
+    if model.sector.sz is None:
+        return
+    labels = sz_breaking_terms(model)
+    if labels:
+        raise ModelError(f"sector.sz: {model.term_key(labels[0])} has spin-orbit hopping with "
+                         "lambda not along z, which does not conserve S^z; remove sz from "
+                         "[sector] (or put soc along z)")

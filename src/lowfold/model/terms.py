@@ -4,7 +4,9 @@ A :class:`Term` is what one ``[[term]]`` table of a model file says.  :func:`exp
 turns it into *products*: ``(coefficient, ((operator_name, site), ...))`` with the strength
 already applied, the leftmost operator first, following docs/model-files.md (``[[term]]``):
 
-- ``hopping``:      ``-s sum_bonds sum_spin (c+_i c_j + h.c.)`` (bosons ``b+_i b_j + h.c.``)
+- ``hopping``:      ``-s sum_bonds sum_spin (c+_i c_j + h.c.)`` (bosons ``b+_i b_j + h.c.``);
+  ``s`` may be complex, and ``phases``, ``flux`` and ``soc`` add Peierls phases and the
+  spin-orbit hopping ``i lambda . sigma`` (:mod:`lowfold.model.hopping`)
 - ``hubbard``:      ``s sum_i n_i,up n_i,dn`` (bosons ``(s/2) sum_i n_i (n_i - 1)``)
 - ``interaction``:  ``s sum_bonds n_i n_j``;  ``potential``: ``s sum_sites n_i``
 - ``exchange``:     ``s sum_bonds S_i . S_j`` (spin sites or electron spins)
@@ -28,6 +30,7 @@ import numbers
 from dataclasses import dataclass
 
 from lowfold.errors import ModelError
+from lowfold.model.hopping import hopping_products
 from lowfold.model.lattice import Lattice
 from lowfold.model.sites import Site
 from lowfold.model.spin_terms import SPIN_EXPANDERS, SPIN_TERM_TYPES
@@ -53,8 +56,10 @@ class Term:
     ``"all"`` or a tuple of site indices (one-site terms and on-site products), or for the
     multi-spin types a tuple of site groups.  ``cycles`` (3 or 4), ``pattern`` (cell
     offsets), ``vector`` (dm) and ``tensor`` (anisotropy) serve the multi-spin types
-    (:mod:`lowfold.model.spin_terms`).  The label is one printable line
-    (:func:`check_label`): it is shown in messages and tables.
+    (:mod:`lowfold.model.spin_terms`); ``phases`` (radians, one per explicit bond),
+    ``flux`` (flux quanta per smallest face) and ``soc`` (``[lx, ly, lz]``, numbers or
+    parameter names) serve ``hopping`` (:mod:`lowfold.model.hopping`).  The label is one
+    printable line (:func:`check_label`): it is shown in messages and tables.
     """
 
     label: str
@@ -69,6 +74,9 @@ class Term:
     pattern: tuple[tuple[int, ...], ...] | None = None
     vector: tuple[float, ...] | None = None
     tensor: tuple[tuple[float, ...], ...] | None = None
+    phases: tuple[float | str, ...] | None = None
+    flux: float | str | None = None
+    soc: tuple[float | str, ...] | None = None
 
     def __post_init__(self):
         check_label(self.label, "term label")
@@ -86,7 +94,8 @@ def check_label(name, what: str = "label") -> None:
 
 
 def check_strength(value, where: str) -> float | complex:
-    """``value`` as a float (a complex number stays complex) if it is a usable strength.
+    """``value`` as a float (a complex number with a non-zero imaginary part stays complex) if
+    it is a usable strength.
 
     Raises
     ------
@@ -96,7 +105,7 @@ def check_strength(value, where: str) -> float | complex:
     """
     if isinstance(value, bool) or not isinstance(value, numbers.Complex):
         raise ModelError(f"{where}: must be a number, got {value!r}")
-    value = complex(value) if isinstance(value, complex) or getattr(value, "imag", 0) else float(value)
+    value = complex(value) if getattr(value, "imag", 0) else float(getattr(value, "real", value))
     size = abs(value)
     if not math.isfinite(size):
         raise ModelError(f"{where}: must be a finite number, got {value!r}")
@@ -107,8 +116,14 @@ def check_strength(value, where: str) -> float | complex:
     return value
 
 
-def expand_term(term: Term, strength: float, lattice: Lattice, site: Site) -> list[Product]:
-    """Products of named local operators for ``term`` at the given numeric strength."""
+def expand_term(term: Term, strength: float | complex, lattice: Lattice, site: Site,
+                parameters=None) -> list[Product]:
+    """Products of named local operators for ``term`` at the given numeric strength
+    (``parameters``: the values that ``soc``, ``flux`` and ``phases`` of a hopping may name)."""
+    if term.type == "hopping":
+        return hopping_products(term, strength, lattice, site, parameters or {})
+    if term.phases is not None or term.flux is not None or term.soc is not None:
+        raise ModelError(f"term {term.label!r}: phases, flux and soc belong to hopping terms")
     expand = _EXPANDERS[term.type]
     return expand(term, strength, lattice, site)
 
@@ -125,18 +140,6 @@ def _bonds(term: Term, lattice: Lattice):
 
 def _sites(term: Term, lattice: Lattice):
     return [int(i) for i in lattice.sites(term.sites or "all")]
-
-
-def _hopping(term, s, lattice, site):
-    _require(site, ("fermion", "electron", "boson"), term)
-    pairs = {"fermion": [("c+", "c")], "boson": [("b+", "b")],
-             "electron": [("c+_up", "c_up"), ("c+_dn", "c_dn")]}[site.type]
-    out = []
-    for i, j in _bonds(term, lattice):
-        for create, annihilate in pairs:
-            out.append((-s, ((create, i), (annihilate, j))))
-            out.append((-s, ((create, j), (annihilate, i))))
-    return out
 
 
 def _hubbard(term, s, lattice, site):
@@ -203,7 +206,6 @@ def _product(term, s, lattice, site):
 
 
 _EXPANDERS = {
-    "hopping": _hopping,
     "hubbard": _hubbard,
     "interaction": _interaction,
     "potential": _potential,
