@@ -24,6 +24,7 @@ from lowfold.jobs.check_levels import DEFAULT_CHECK_LEVELS, check_levels_value
 from lowfold.jobs.check_winding import wrap_around_warnings
 from lowfold.jobs.classes import group_into_classes
 from lowfold.model.model import Model
+from lowfold.model.sector import sz_note
 from lowfold.perturbation.diagnostics import (check_divergence, manifold_diagnostics,
                                               merge_diagnostics)
 from lowfold.perturbation.manifold import (Manifold, diagonal_energies, find_manifold,
@@ -84,6 +85,7 @@ def derive(model: Model, order: int | None = None, *, compare_exact: bool = True
     order = validate_order(spec.order if order is None else order, maximum=MAX_ORDER)
     check_levels = check_levels_value(check_levels)
     model, warnings = _whole_manifold(model)
+    warnings += [note for note in (sz_note(model),) if note]
     h0, v = split_operators(model)
     say("finding the manifold")
     manifold = find_manifold(model, h0)

@@ -66,14 +66,20 @@ def single_ratio(model: Model) -> tuple[str, str] | None:
     tuple of str or None
         ``(name of V's strength, name of H0's strength)`` when every term of V has the same
         named strength and every term of H0 has the same named strength (a literal number
-        anywhere gives ``None``); else ``None``.
+        anywhere gives ``None``), both real, and no hopping has phases, a flux or a
+        spin-orbit part; else ``None``.
     """
     def names(labels):
         strengths = {model.term(label).strength for label in labels}
         return strengths if all(isinstance(s, str) for s in strengths) else set()
+    if any(t.soc is not None or t.phases is not None or t.flux is not None for t in model.terms):
+        return None          # a further energy scale (lambda) or phase: not t^n / U^(n-1)
     h0, v = names(model.unperturbed_labels), names(model.perturbation_labels)
     if len(h0) == 1 and len(v) == 1:
-        return v.pop(), h0.pop()
+        small, large = v.pop(), h0.pop()
+        if any(isinstance(model.parameters[name], complex) for name in (small, large)):
+            return None      # a complex amplitude: the couplings depend on its phase too
+        return small, large
     return None
 
 
