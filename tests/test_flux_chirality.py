@@ -176,3 +176,34 @@ def test_phase_on_a_tree_is_a_gauge():
                                atol=1e-12)
     np.testing.assert_allclose(spectrum(chain({"re": 0.6, "im": 0.8}), 12).energies, real,
                                atol=1e-12)
+
+
+def three_dots(flux, t_abs=0.1, t_phase=0.4, order=6):
+    """One fermion on a threaded triangle of dots, dots 1 and 2 raised by 1 (H0), the complex
+    hopping ``t`` with the flux ``phi`` as V."""
+    return parse_model({
+        "lattice": {"shape": "kagome", "size": [1, 1]}, "site": {"type": "fermion"},
+        "sector": {"particles": 1},
+        "parameters": {"t": {"abs": t_abs, "phase": t_phase}, "phi": flux},
+        "term": [{"type": "hopping", "strength": "t", "flux": "phi"},
+                 {"type": "potential", "label": "gates", "strength": 1.0, "sites": [1, 2]}],
+        "perturbation": {"unperturbed": ["gates"], "order": order}})
+
+
+@pytest.mark.parametrize("flux", [0.0, 0.15, 0.4])
+def test_series_third_order_is_the_loop_product(flux):
+    """Rayleigh-Schroedinger energy of the fermion on dot 0 (gap 1 to both other dots):
+    ``E_2 = -2 |t|^2`` and ``E_3 = 2 Re(V_01 V_12 V_20) = -2 |t|^3 cos(theta)`` with ``theta``
+    the phase collected once around the loop: ``2 pi Phi`` from the flux and ``-arg t``
+    from the strength (the bonds (0,1), (1,2) are passed against their listed direction on
+    the way 0 -> 1 -> 2, the bond (0,2) along it; docs/model-files.md).  Common practice
+    (textbook perturbation theory); the series also converges to the exact level."""
+    from lowfold import state_series
+
+    result = state_series(three_dots(flux))
+    theta = 2 * math.pi * flux - 0.4
+    assert result.energies[2] == pytest.approx(-2 * 0.1**2, rel=1e-12)
+    assert result.energies[3] == pytest.approx(-2 * 0.1**3 * math.cos(theta), rel=1e-10)
+    exact = spectrum(three_dots(flux), 1).energies[0]
+    partial = np.cumsum(result.energies)
+    assert abs(partial[5] - exact) < abs(partial[3] - exact) < abs(partial[2] - exact)

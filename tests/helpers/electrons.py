@@ -43,13 +43,16 @@ def _static(n_sites, hops, U):
 
 
 def quspin_electron_levels(n_sites, hops, U, n_particles, *, k=None) -> np.ndarray:
-    """Ascending eigenvalues (all, or the ``k`` lowest) at fixed particle number."""
+    """Ascending eigenvalues (all, or the ``k`` lowest) at fixed particle number (QuSpin's
+    ``eigsh`` for the ``k`` lowest of more than 2000 states, else dense)."""
     from quspin.basis import spinless_fermion_basis_general
     from quspin.operators import hamiltonian
 
     basis = spinless_fermion_basis_general(2 * n_sites, Nf=n_particles)
     h = hamiltonian(_static(n_sites, hops, U), [], basis=basis, dtype=np.complex128,
                     check_herm=True, check_pcon=True, check_symm=False)
+    if k is not None and basis.Ns > 2000:
+        return np.sort(h.eigsh(k=k, which="SA", return_eigenvectors=False, tol=1e-12))
     values = np.linalg.eigvalsh(h.toarray())
     return values if k is None else values[:k]
 
