@@ -118,6 +118,11 @@ def plan_scan(spec: ScanSpec, model=None) -> list[ScanPoint]:
             raise scan_error(spec.source, f"grid.{name}",
                              f"not a parameter of {spec.model_name} "
                              f"(parameters: {', '.join(model.parameters) or 'none'})")
+    complex_names = [k for k, v in model.parameters.items() if isinstance(v, complex)]
+    if complex_names:       # stored keys, tables and plots hold real parameters
+        raise scan_error(spec.source, "model", f"parameter {complex_names[0]!r} of "
+                         f"{spec.model_name} is complex; scans take real parameters only "
+                         "(scan a real phase, flux or spin-orbit parameter instead)")
     lattices: dict = {}
     points = []
     for values in _combinations(spec):
