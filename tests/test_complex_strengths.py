@@ -104,6 +104,22 @@ def test_complex_product_with_conjugate_equals_the_hopping_with_a_phase():
                                spectrum(model_of(dimer()), 6).energies, atol=1e-13)
 
 
+def test_complex_product_with_its_partner_term_is_hermitian():
+    """``s c+_0 c_1`` and ``conj(s) c+_1 c_0`` as two terms are Hermitian together; with
+    ``s`` instead of ``conj(s)`` in the second they are not (formal adjoint, common practice)."""
+    def pair(second):
+        return dimer().replace('[[term]]\ntype = "hubbard"', (
+            '[[term]]\ntype = "product"\nlabel = "forth"\nstrength = {re = 0.1, im = 0.2}\n'
+            'bonds = [[0, 1]]\noperators = ["c+_up", "c_up"]\n'
+            f'[[term]]\ntype = "product"\nlabel = "back"\nstrength = {second}\n'
+            'bonds = [[1, 0]]\noperators = ["c+_up", "c_up"]\n[[term]]\ntype = "hubbard"'))
+    model = model_of(pair("{re = 0.1, im = -0.2}"))
+    assert model.is_complex and Hamiltonian.of(model).dtype == np.complex128
+    assert not model_of(dimer()).is_complex
+    with pytest.raises(ModelError, match="is not Hermitian"):
+        model_of(pair("{re = 0.1, im = 0.2}"))
+
+
 BAD = {
     "missing_im": (dimer(t="{re = 0.1}"), "parameters.t: a complex number is"),
     "mixed_forms": (dimer(t="{re = 0.1, im = 0.0, phase = 1.0}"), "a complex number is"),
