@@ -229,3 +229,56 @@ def test_a_scan_over_the_flux_plans_real_points_and_refuses_complex_parameters()
                       source="dots scan", model=complex_model)
     with pytest.raises(ModelError, match="parameter 't' of .* is complex"):
         plan_scan(spec, complex_model)
+
+
+def hexagons(lattice):
+    """The 6-cycles of the nearest-neighbour graph (a small DFS; honeycomb faces)."""
+    neighbours = {i: set() for i in range(lattice.n_sites)}
+    for i, j in lattice.bonds("nearest"):
+        neighbours[int(i)].add(int(j))
+        neighbours[int(j)].add(int(i))
+    found = set()
+
+    def walk(path):
+        if len(path) == 6:
+            if path[0] in neighbours[path[-1]]:
+                found.add(min(tuple(path[k:] + path[:k]) for k in range(6)))
+            return
+        for nxt in neighbours[path[-1]] - set(path):
+            walk(path + [nxt])
+
+    for start in neighbours:
+        walk([start])
+    return [tuple(c) for c in found]
+
+
+@pytest.mark.parametrize("shape, size", [("square", [3, 3]), ("triangular", [3, 2]),
+                                         ("kagome", [2, 1]), ("ladder", [3]),
+                                         ("honeycomb", [2, 2])])
+def test_flux_gives_every_face_its_area_times_the_field(shape, size):
+    """One particle: ``<i|H|j>`` is the amplitude of the hop j -> i, so the product of the
+    amplitudes once counterclockwise around a face is ``(-t)^k exp(2 pi i Phi A / A_0)``
+    (Stokes: the circulation of the vector potential is the enclosed flux; ``A_0`` the area
+    of the smallest face, docs/model-files.md).  Checked on every triangle and 4-cycle."""
+    from lowfold.build.hamiltonian import Hamiltonian
+    from lowfold.model.cycles import lattice_cycles
+
+    flux, t = 0.17, 0.8
+    model = parse_model({"lattice": {"shape": shape, "size": size}, "site": {"type": "fermion"},
+                         "sector": {"particles": 1},
+                         "term": [{"type": "hopping", "strength": t, "flux": flux}]})
+    h = Hamiltonian.of(model).to_csr().toarray()          # one fermion: basis = sites in order
+    r = model.lattice.coordinates
+    smallest = {"square": 1.0, "ladder": 1.0, "honeycomb": 3 * math.sqrt(3) / 2}.get(
+        shape, math.sqrt(3) / 4)
+    rings, triangles = lattice_cycles(model.lattice)
+    faces = list(rings) + list(triangles) + (hexagons(model.lattice) if shape == "honeycomb" else [])
+    assert faces
+    for cycle in faces:
+        area = 0.5 * sum(r[a, 0] * r[b, 1] - r[b, 0] * r[a, 1]
+                         for a, b in zip(cycle, cycle[1:] + cycle[:1]))
+        if area < 0:
+            cycle, area = tuple(reversed(cycle)), -area
+        product = np.prod([h[b, a] for a, b in zip(cycle, cycle[1:] + cycle[:1])])
+        expected = (-t) ** len(cycle) * np.exp(2j * math.pi * flux * area / smallest)
+        assert product == pytest.approx(expected, rel=1e-12), cycle
