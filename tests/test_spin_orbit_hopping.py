@@ -172,3 +172,21 @@ def test_real_path_stays_real_and_complex_path_is_complex():
 
     assert Hamiltonian.of(dimer(T, (0.0, 0.0, 0.0))).dtype == np.float64
     assert Hamiltonian.of(dimer(T, (0.0, 0.0, 0.02))).dtype == np.complex128
+
+
+def test_exported_effective_model_keeps_the_hidden_isotropy():
+    """The order-4 effective model written as a model file (exchange, DM and anisotropy
+    terms) has a degenerate triplet and the singlet of the rotated Hubbard dimer, ``-J'`` with
+    ``J' = (sqrt(U^2 + 16 t'^2) - U)/2`` to O(t'^6/U^5) (hidden isotropy survives the
+    readout and the export)."""
+    from lowfold import export_text
+    from helpers.modelfiles import model_of
+
+    lam = np.array([0.03, -0.02, 0.05])
+    exported = model_of(export_text(derive(dimer(T, lam, order=4), compare_exact=False)))
+    levels = spectrum(exported, 4).energies
+    t_prime2 = T**2 + lam @ lam
+    j_prime = (np.sqrt(U**2 + 16 * t_prime2) - U) / 2
+    np.testing.assert_allclose(levels[1:], levels[1], atol=1e-15)
+    assert levels[0] == pytest.approx(-j_prime, abs=5 * t_prime2**3 / U**5 * 64)
+    assert levels[1] == pytest.approx(0.0, abs=1e-12)
