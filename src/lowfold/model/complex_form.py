@@ -55,7 +55,8 @@ def plain(value: complex) -> float | complex:
 
 
 def parse_number(value, where: str) -> float | complex:
-    """A model-file number: a plain finite number, or one of the two complex forms.
+    """A model-file number: a plain finite number, or one of the two complex forms (or,
+    in a document built in Python for :func:`lowfold.parse_model`, a Python complex).
 
     Raises
     ------
@@ -64,6 +65,10 @@ def parse_number(value, where: str) -> float | complex:
         part that is not a finite number; a negative ``abs``.  The message starts with
         ``where`` and shows the two forms.
     """
+    if isinstance(value, complex):          # a document built in Python, not read from TOML
+        if not (math.isfinite(value.real) and math.isfinite(value.imag)):
+            raise ModelError(f"{where}: must be a finite number, got {value!r}")
+        return plain(value)
     if not is_complex_form(value):
         return _real(value, where)
     keys = set(value)
