@@ -282,3 +282,17 @@ def test_flux_gives_every_face_its_area_times_the_field(shape, size):
         product = np.prod([h[b, a] for a, b in zip(cycle, cycle[1:] + cycle[:1])])
         expected = (-t) ** len(cycle) * np.exp(2j * math.pi * flux * area / smallest)
         assert product == pytest.approx(expected, rel=1e-12), cycle
+
+
+def test_exact_doublet_splitting_approaches_the_third_order_chirality_like_t2_over_u2():
+    """The relative gap between the exact doublet splitting (independent dense build) and
+    ``(sqrt3/2) |chi_3|`` is the next correction, O((t/U)^2): it shrinks fourfold when t
+    is halved."""
+    flux, gaps = 0.125, []
+    for t in (0.2, 0.1):
+        phase = 2 * math.pi * flux / 3
+        hops = [(b, a, hop_matrix(t, phase=phase)) for a, b in ((0, 1), (1, 2), (2, 0))]
+        values = np.linalg.eigvalsh(dense_electrons(3, hops, U, 3)[0])
+        chi = chirality(derive(kagome_triangle(flux, t=t), compare_exact=False))
+        gaps.append(abs((values[2] - values[0]) / (math.sqrt(3) / 2 * abs(chi)) - 1))
+    assert gaps[0] / gaps[1] == pytest.approx(4.0, rel=0.05)
