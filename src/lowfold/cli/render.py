@@ -111,18 +111,22 @@ def print_derive(out: Console, err: Console, title: str, result: EffectiveModel)
     orders, rows = _coupling_rows(result)
     if rows:
         table = Table(title=f"couplings to order {result.order} (S = sigma/2)")
-        for name in ("kind", "sites", *[f"order {n}" for n in orders], "total"):
+        exact = _exact_cells(result)
+        for name in ("kind", "sites", *[f"order {n}" for n in orders], "total",
+                     *(["exact"] if exact else [])):
             table.add_column(name, justify="left" if name in ("kind", "sites") else "right")
         formulas = [rational_formula(r[4]) for r in rows]
         if any(formulas):
             table.add_column("rational (recognised)", justify="left")
-        for (kind, sites, cells, total, _), formula in zip(rows, formulas):
-            table.add_row(user_text(kind), sites, *cells, total,
+        for (kind, sites, cells, total, _), formula, cell in zip(rows, formulas, exact or rows):
+            table.add_row(user_text(kind), sites, *cells, total, *([cell] if exact else []),
                           *([user_text(formula)] if any(formulas) else []))
         out.print(table)
+        _print_exact_note(out, result)
         _print_classes(out, result)
     elif not result.spin_form:
         _print_matrices(out, result)
+        _print_exact_note(out, result)      # its matrix: JSON effective.exact
     if result.check is not None:
         table = Table(title="check against the exact low-lying spectrum")
         table.add_column("order", justify="right")
@@ -142,6 +146,29 @@ def print_derive(out: Console, err: Console, title: str, result: EffectiveModel)
               if diag.smallest_denominator is not None else "",
               f" ({user_text(' -> '.join(diag.closest_states))})" if diag.closest_states else "", sep="")
     _warn(err, result.warnings)
+
+
+def _exact_cells(result: EffectiveModel) -> list[str] | None:
+    """The exact value of each coupling (``derive --exact-couplings``), or None."""
+    if result.exact is None:
+        return None
+    return [_fmt(result.exact.coupling_value(c.kind, c.sites, c.value)) for c in result.couplings]
+
+
+def _print_exact_note(out: Console, result: EffectiveModel) -> None:
+    """How the exact column was obtained, and the named couplings it has beyond the orders."""
+    exact = result.exact
+    if exact is None:
+        return
+    gap = "-" if exact.gap is None else f"{exact.gap:.6g}"
+    out.print(f"exact: direct rotation of the {len(exact.energies)} exact levels of the "
+              f"manifold (exact gap {gap}, smallest overlap with P {exact.smallest_singular_value:.3g})",
+              markup=False)
+    named = {(c.kind, tuple(c.sites)) for c in result.couplings}
+    for (kind, sites), value in exact.couplings.items():
+        if (kind, sites) not in named and np.max(np.abs(value)) > COUPLING_TOL:
+            out.print(f"exact only (beyond order {result.order}): {kind} "
+                      f"{','.join(map(str, sites)) or '-'} = {_fmt(value)}", markup=False)
 
 
 def _print_classes(out: Console, result: EffectiveModel) -> None:
