@@ -270,7 +270,7 @@ def scan(scan_file: Path = typer.Argument(..., metavar="SCAN", help="scan file (
 
 @app.command()
 def plot(results: Path = typer.Argument(..., metavar="RESULTS", help="results directory of a scan"),
-         kind: str = typer.Option(..., "--kind", help="couplings | errors | finite-size | levels"),
+         kind: str = typer.Option(..., "--kind", help="couplings | errors | finite-size | levels | exact-couplings"),
          output: Path = typer.Option(..., "--output", "-o", help="image file (.png, .svg, .pdf)"),
          x: Optional[str] = typer.Option(None, "--x", help="x axis: a parameter or ratio such as t/U"),
          quantity: Optional[str] = typer.Option(None, "--quantity", help="e.g. coupling:exchange:0-1"),
