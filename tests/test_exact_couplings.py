@@ -158,6 +158,32 @@ def test_direct_rotation_of_a_two_level_mixture():
     assert abs(rotation.smallest_singular_value - 0.8) < 1e-15 and rotation.gap == 3.5
 
 
+def test_window_above_the_bottom_takes_the_levels_that_grow_out_of_it():
+    # the doublon pair {|2 0>, |0 2>} of the Hubbard dimer (window around U): its exact states
+    # are the upper two of the S^z = 0 block, at U (antisymmetric) and (U + sqrt(U^2 + 16t^2))/2
+    # (exact two-site solution, common practice), so H_eff_exact = (U + J/2) + (J/2) pair
+    # hopping, with J the dimer exchange
+    t, U = 1.0, 10.0
+    text = hubbard_text("chain", (2,), t=t, U=U, order=2) + "window = [9.5, 10.5]\n"
+    result = derive(model_of(text), compare_exact=False, exact_couplings=True)
+    J = dimer_exchange(t, U)
+    h = result.exact.matrix.toarray()
+    assert np.allclose(np.diag(h), U + J / 2, atol=1e-10)
+    assert abs(abs(h[0, 1]) - J / 2) < 1e-10
+    assert np.allclose(result.exact.energies, [U, (U + np.sqrt(U * U + 16 * t * t)) / 2])
+
+
+def test_lanczos_route_gives_the_dense_result(monkeypatch):
+    # the blocks of the 6-site chain diagonalised by ARPACK (limit lowered) and densely
+    from lowfold.jobs import exact_couplings as module
+    model = hubbard((6,), t=0.1, U=1.0, order=2)
+    dense = derive(model, compare_exact=False, exact_couplings=True).exact
+    monkeypatch.setattr(module, "DENSE_EXACT_LIMIT", 50)
+    sparse = derive(model, compare_exact=False, exact_couplings=True).exact
+    assert np.max(np.abs((dense.matrix - sparse.matrix).toarray())) < 1e-9
+    assert dense.couplings.keys() == sparse.couplings.keys()
+
+
 # ----------------------------------------------------------------------------- refusals
 
 
