@@ -126,6 +126,19 @@ def test_exact_couplings_of_the_ring_include_what_the_order_lacks():
     assert abs(slope - 6) < 0.25, (slope, errors)
 
 
+def test_exact_couplings_of_a_ring_keep_its_translation_symmetry_and_form_classes():
+    # the direct rotation commutes with the ring's translations (P and H do), so every
+    # nearest-neighbour bond has the same exact exchange; the class carries it
+    result = derive(hubbard((6,), t=0.1, U=1.0, order=4, boundary="periodic"),
+                    compare_exact=False, exact_couplings=True)
+    nearest = [result.exact.coupling_value("exchange", (i, (i + 1) % 6) if i < 5 else (0, 5))
+               for i in range(6)]
+    assert np.ptp(nearest) < 1e-12
+    classes = {(c["kind"], c["class"]): c for c in result.to_dict()["classes"]}
+    assert abs(classes[("exchange", "nearest")]["exact"] - nearest[0]) < 1e-12
+    assert 0 < classes[("exchange", "next-nearest")]["exact"] < 2 * classes[("exchange", "next-nearest")]["value"]
+
+
 # ----------------------------------------------------------------------------- signs
 
 

@@ -178,12 +178,15 @@ def _print_classes(out: Console, result: EffectiveModel) -> None:
         return
     orders = sorted({m for c in result.classes for m in c.orders})
     table = Table(title="coupling classes (value of one member; members per site)")
-    for name in ("kind", "class", "per site", "value", *[f"order {n}" for n in orders]):
+    exact = result.exact.classes if result.exact is not None else None
+    for name in ("kind", "class", "per site", "value", *[f"order {n}" for n in orders],
+                 *(["exact"] if exact is not None else [])):
         table.add_column(name, justify="left" if name in ("kind", "class") else "right", no_wrap=True)
     for c in result.classes:
         kind = f"{c.kind} {c.operator}" if c.operator else c.kind
+        cell = [] if exact is None else [_fmt(exact.get((c.kind, c.name, c.operator), 0.0))]
         table.add_row(kind, c.name, f"{c.multiplicity:.4g}", _fmt(c.value),
-                      *[_fmt(c.orders[n]) if n in c.orders else "" for n in orders])
+                      *[_fmt(c.orders[n]) if n in c.orders else "" for n in orders], *cell)
     out.print(table)
     for c in result.classes:
         if c.formula:

@@ -24,9 +24,11 @@ import scipy.linalg as la
 import scipy.sparse as sp
 
 from lowfold.build.basis import sector_size
-from lowfold.build.hamiltonian import available_memory, build_basis, hamiltonian_matrix
+from lowfold.build.hamiltonian import (Hamiltonian, available_memory, build_basis,
+                                       hamiltonian_matrix)
 from lowfold.errors import ModelError, SizeError
 from lowfold.jobs.check import ManifoldBlock, check_memory_estimate
+from lowfold.jobs.classes import group_into_classes
 from lowfold.model.model import Model
 from lowfold.perturbation.direct_rotation import DirectRotation, direct_rotation
 from lowfold.results.exact import ExactCouplings
@@ -92,8 +94,8 @@ def _block_rotation(model: Model, states: np.ndarray, energies: np.ndarray,
         raise ModelError("a manifold state is not in its sector block (internal inconsistency)")
     k, n = idx.size, basis.size
     where = _where(model, block)
-    h0 = hamiltonian_matrix(block_model, basis, list(model.unperturbed_labels), check=False)
-    at_bottom = h0.diagonal().real.min() >= energies[idx].min() - 1e-9
+    h0 = Hamiltonian.of(block_model, list(model.unperturbed_labels), basis).diagonal()
+    at_bottom = np.real(h0).min() >= energies[idx].min() - 1e-9       # H0 is diagonal
     if at_bottom and (n > DENSE_EXACT_LIMIT and k + 1 < n - 1):
         values, vectors = lowest_eigenpairs(h, k + 1, vectors=True)
         order = np.argsort(values)
@@ -162,17 +164,20 @@ def exact_couplings(model: Model, states: np.ndarray, energies: np.ndarray,
 
     ``read_out(model, states, [matrix])`` is derive's readout (a dict with ``terms`` of
     objects with ``operator`` and ``coefficient``, ``couplings`` with ``kind``, ``sites`` and
-    ``value``), applied to the exact matrix as if it were a single order."""
+    ``value``; ``residual``), applied to the exact matrix as if it were a single order; on a
+    translation-invariant cluster the exact couplings are also grouped into classes."""
     matrix, parts = exact_effective_matrix(model, states, energies, blocks, progress=progress)
     matrix = _tidy(matrix)
     readout = read_out(model, states, [matrix])
     terms = {t.operator: float(t.coefficient) for t in readout["terms"]}
     couplings = {(c.kind, tuple(int(s) for s in c.sites)): c.value for c in readout["couplings"]}
+    classes = {(c.kind, c.name, c.operator): c.value
+               for c in group_into_classes(model, readout["couplings"], readout["residual"])}
     gaps = [p.gap for p in parts if p.gap is not None]
     levels = np.sort(np.concatenate([p.energies for p in parts]))
     return ExactCouplings(terms, couplings, min(gaps) if gaps else None,
                           min(p.smallest_singular_value for p in parts),
-                          tuple(float(e) for e in levels), matrix)
+                          tuple(float(e) for e in levels), matrix, classes)
 
 
 def _tidy(h: sp.csr_matrix) -> sp.csr_matrix:

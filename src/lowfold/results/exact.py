@@ -58,6 +58,9 @@ class ExactCouplings:
     matrix : sparse matrix or None
         The exact effective Hamiltonian in the order of the manifold's states (not in JSON for
         a named readout; ``effective.exact`` for a matrix readout).
+    classes : dict of (kind, class, operator) to float or list
+        Coupling classes of the exact readout (translation-invariant clusters): one member's
+        exact value.
     """
 
     terms: Mapping[str, float] = field(default_factory=dict)
@@ -66,6 +69,7 @@ class ExactCouplings:
     smallest_singular_value: float = 1.0
     energies: tuple[float, ...] = ()
     matrix: Any = None
+    classes: Mapping[tuple, Any] = field(default_factory=dict)
 
     def term_value(self, operator: str) -> float:
         return float(self.terms.get(operator, 0.0))
@@ -86,6 +90,10 @@ class ExactCouplings:
             coupling["exact"] = self.coupling_value(coupling["kind"], coupling["sites"],
                                                     coupling["value"])
             seen_couplings.add((coupling["kind"], tuple(coupling["sites"])))
+        for group in out.get("classes", []):
+            key = (group["kind"], group["class"], group.get("operator"))
+            group["exact"] = (_plain(self.classes[key]) if key in self.classes
+                              else _zero_like(group["value"]))
         beyond_terms = [{"operator": op, "exact": float(c)} for op, c in self.terms.items()
                         if op not in seen_terms and abs(c) > EXACT_TOL]
         beyond_couplings = [{"kind": kind, "sites": list(sites), "exact": _plain(v)}
@@ -109,6 +117,8 @@ class ExactCouplings:
         couplings = {(c["kind"], tuple(int(s) for s in c["sites"])): c["exact"]
                      for c in [*data.get("couplings", []), *beyond.get("couplings", [])]
                      if "exact" in c}
+        classes = {(c["kind"], c["class"], c.get("operator")): c["exact"]
+                   for c in data.get("classes", []) if "exact" in c}
         return cls(terms, couplings, summary.get("gap"),
                    float(summary.get("smallest_singular_value", 1.0)),
-                   tuple(float(e) for e in summary.get("energies", ())))
+                   tuple(float(e) for e in summary.get("energies", ())), classes=classes)
