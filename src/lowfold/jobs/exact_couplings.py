@@ -169,10 +169,12 @@ def exact_couplings(model: Model, states: np.ndarray, energies: np.ndarray,
     matrix, parts = exact_effective_matrix(model, states, energies, blocks, progress=progress)
     matrix = _tidy(matrix)
     readout = read_out(model, states, [matrix])
-    terms = {t.operator: float(t.coefficient) for t in readout["terms"]}
+    terms = {t.operator: float(t.coefficient) for t in readout["terms"]
+             if hasattr(t, "operator") and hasattr(t, "coefficient")}
     couplings = {(c.kind, tuple(int(s) for s in c.sites)): c.value for c in readout["couplings"]}
     classes = {(c.kind, c.name, c.operator): c.value
-               for c in group_into_classes(model, readout["couplings"], readout["residual"])}
+               for c in group_into_classes(model, readout["couplings"],
+                                           readout.get("residual") or {})}
     gaps = [p.gap for p in parts if p.gap is not None]
     levels = np.sort(np.concatenate([p.energies for p in parts]))
     return ExactCouplings(terms, couplings, min(gaps) if gaps else None,
