@@ -17,6 +17,7 @@ from rich.table import Table
 from lowfold.readout.formulas import latex_hamiltonian
 from lowfold.results import EffectiveModel, Recognised, Spectrum, StateSeries
 from lowfold.results.effective import COUPLING_TOL
+from lowfold.results.exact import coupling_key
 
 __all__ = ["print_spectrum", "print_derive", "print_series", "latex_couplings", "one_line",
            "user_text"]
@@ -152,7 +153,8 @@ def _exact_cells(result: EffectiveModel) -> list[str] | None:
     """The exact value of each coupling (``derive --exact-couplings``), or None."""
     if result.exact is None:
         return None
-    return [_fmt(result.exact.coupling_value(c.kind, c.sites, c.value)) for c in result.couplings]
+    return [_fmt(result.exact.coupling_value(c.kind, c.sites, c.value, getattr(c, "operator", None)))
+            for c in result.couplings]
 
 
 def _print_exact_note(out: Console, result: EffectiveModel) -> None:
@@ -164,11 +166,12 @@ def _print_exact_note(out: Console, result: EffectiveModel) -> None:
     out.print(f"exact: direct rotation of the {len(exact.energies)} exact levels of the "
               f"manifold (exact gap {gap}, smallest overlap with P {exact.smallest_singular_value:.3g})",
               markup=False)
-    named = {(c.kind, tuple(c.sites)) for c in result.couplings}
-    for (kind, sites), value in exact.couplings.items():
-        if (kind, sites) not in named and np.max(np.abs(value)) > COUPLING_TOL:
-            out.print(f"exact only (beyond order {result.order}): {kind} "
-                      f"{','.join(map(str, sites)) or '-'} = {_fmt(value)}", markup=False)
+    named = {coupling_key(c.kind, c.sites, getattr(c, "operator", None)) for c in result.couplings}
+    for key, value in exact.couplings.items():
+        if key not in named and np.max(np.abs(value)) > COUPLING_TOL:
+            what = " ".join([key[0], ",".join(map(str, key[1])) or "-", *key[2:]])
+            out.print(f"exact only (beyond order {result.order}): {what} = {_fmt(value)}",
+                      markup=False)
 
 
 def _print_classes(out: Console, result: EffectiveModel) -> None:

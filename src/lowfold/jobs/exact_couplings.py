@@ -31,7 +31,7 @@ from lowfold.jobs.check import ManifoldBlock, check_memory_estimate
 from lowfold.jobs.classes import group_into_classes
 from lowfold.model.model import Model
 from lowfold.perturbation.direct_rotation import DirectRotation, direct_rotation
-from lowfold.results.exact import ExactCouplings
+from lowfold.results.exact import ExactCouplings, coupling_key
 from lowfold.solve.exact import lowest_eigenpairs
 
 __all__ = ["check_exact_size", "exact_effective_matrix", "exact_couplings",
@@ -171,7 +171,8 @@ def exact_couplings(model: Model, states: np.ndarray, energies: np.ndarray,
     readout = read_out(model, states, [matrix])
     terms = {t.operator: float(t.coefficient) for t in readout["terms"]
              if hasattr(t, "operator") and hasattr(t, "coefficient")}
-    couplings = {(c.kind, tuple(int(s) for s in c.sites)): c.value for c in readout["couplings"]}
+    couplings = {coupling_key(c.kind, c.sites, getattr(c, "operator", None)): c.value
+                 for c in readout["couplings"]}
     classes = {(c.kind, c.name, c.operator): c.value
                for c in group_into_classes(model, readout["couplings"],
                                            readout.get("residual") or {})}

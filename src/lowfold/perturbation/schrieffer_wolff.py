@@ -32,7 +32,6 @@ import scipy.sparse.linalg
 from lowfold.build.numerics import second_order_product
 from lowfold.perturbation.orders import MAX_SCHRIEFFER_WOLFF_ORDER, validate_order
 from lowfold.errors import LowfoldError, ManifoldError, ModelError
-from lowfold.perturbation.direct_rotation import direct_rotation
 
 __all__ = [
     "effective_hamiltonian_orders",
@@ -363,7 +362,7 @@ def exact_effective_hamiltonian(h_dense, p_index, *, degeneracy_tol=1e-10, overl
     if n_p < energies.size and energies[n_p] - energies[n_p - 1] < degeneracy_tol * scale:
         raise ManifoldError(f"the exact level {n_p - 1} is degenerate with the next one; "
                             "the lowest dim(P) states are not well defined")
-    # the polar factor and W diag(E) W^dagger: lowfold.perturbation.direct_rotation
+    from lowfold.perturbation.direct_rotation import direct_rotation    # W diag(E) W^dagger
     return direct_rotation(energies[:n_p], vecs[p, :n_p], overlap_tol=overlap_tol).matrix
 
 

@@ -51,7 +51,7 @@ def exact_value(record: Mapping[str, Any], quantity: str) -> float:
     if len(matches) != 1:
         scalar(record, quantity)               # the ModelError that lists what there is
     c = matches[0]
-    value = result.exact.coupling_value(c.kind, c.sites, c.value)
+    value = result.exact.coupling_value(c.kind, c.sites, c.value, getattr(c, "operator", None))
     if component in (None, ""):
         if isinstance(value, list):
             raise ModelError(f"coupling {kind} is a vector or matrix; name a component")

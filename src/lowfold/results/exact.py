@@ -23,7 +23,7 @@ import numpy as np
 
 from lowfold.results.common import finite
 
-__all__ = ["ExactCouplings"]
+__all__ = ["ExactCouplings", "coupling_key"]
 
 EXACT_TOL = 1e-12      # exact content beyond the orders is listed only above this
 
@@ -39,6 +39,13 @@ def _zero_like(value):
     return float(zeros) if zeros.ndim == 0 else zeros.tolist()
 
 
+def coupling_key(kind: str, sites, operator: str | None = None) -> tuple:
+    """``(kind, sites)``, or ``(kind, sites, operator)`` for a coupling that names its
+    operator string (several strings of one kind can share their sites)."""
+    key = (kind, tuple(int(s) for s in sites))
+    return key + (operator,) if operator else key
+
+
 @dataclass(frozen=True, eq=False)
 class ExactCouplings:
     """Readout of the exact effective Hamiltonian of the cluster.
@@ -47,8 +54,9 @@ class ExactCouplings:
     ----------
     terms : dict of str to float
         Pauli string -> exact coefficient.
-    couplings : dict of (kind, sites) to float or list
-        Named coupling -> exact value (scalar, vector or 3x3 nested list).
+    couplings : dict of (kind, sites) or (kind, sites, operator) to float or list
+        Named coupling -> exact value (scalar, vector or 3x3 nested list); see
+        :func:`coupling_key`.
     gap : float or None
         Smallest exact gap, over the blocks, between the manifold's exact levels and the rest.
     smallest_singular_value : float
@@ -74,9 +82,10 @@ class ExactCouplings:
     def term_value(self, operator: str) -> float:
         return float(self.terms.get(operator, 0.0))
 
-    def coupling_value(self, kind: str, sites, like=0.0):
-        """Exact value of the coupling ``(kind, sites)``; zeros shaped as ``like`` if absent."""
-        key = (kind, tuple(int(s) for s in sites))
+    def coupling_value(self, kind: str, sites, like=0.0, operator: str | None = None):
+        """Exact value of the coupling ``(kind, sites)`` (and ``operator``, for the named
+        strings of a local readout); zeros shaped as ``like`` if absent."""
+        key = coupling_key(kind, sites, operator)
         return _plain(self.couplings[key]) if key in self.couplings else _zero_like(like)
 
     def annotate(self, out: dict) -> None:
@@ -88,18 +97,19 @@ class ExactCouplings:
             seen_terms.add(term["operator"])
         for coupling in out.get("couplings", []):
             coupling["exact"] = self.coupling_value(coupling["kind"], coupling["sites"],
-                                                    coupling["value"])
-            seen_couplings.add((coupling["kind"], tuple(coupling["sites"])))
+                                                    coupling["value"], coupling.get("operator"))
+            seen_couplings.add(coupling_key(coupling["kind"], coupling["sites"],
+                                            coupling.get("operator")))
         for group in out.get("classes", []):
             key = (group["kind"], group["class"], group.get("operator"))
             group["exact"] = (_plain(self.classes[key]) if key in self.classes
                               else _zero_like(group["value"]))
         beyond_terms = [{"operator": op, "exact": float(c)} for op, c in self.terms.items()
                         if op not in seen_terms and abs(c) > EXACT_TOL]
-        beyond_couplings = [{"kind": kind, "sites": list(sites), "exact": _plain(v)}
-                            for (kind, sites), v in self.couplings.items()
-                            if (kind, sites) not in seen_couplings
-                            and np.max(np.abs(v)) > EXACT_TOL]
+        beyond_couplings = [{"kind": key[0], "sites": list(key[1]), "exact": _plain(v),
+                             **({"operator": key[2]} if len(key) > 2 else {})}
+                            for key, v in self.couplings.items()
+                            if key not in seen_couplings and np.max(np.abs(v)) > EXACT_TOL]
         out["exact"] = {"gap": finite(self.gap),
                         "smallest_singular_value": float(self.smallest_singular_value),
                         "energies": [float(e) for e in self.energies],
@@ -114,7 +124,7 @@ class ExactCouplings:
         beyond = summary.get("beyond_orders") or {}
         terms = {t["operator"]: float(t["exact"]) for t in data.get("terms", []) if "exact" in t}
         terms.update({t["operator"]: float(t["exact"]) for t in beyond.get("terms", [])})
-        couplings = {(c["kind"], tuple(int(s) for s in c["sites"])): c["exact"]
+        couplings = {coupling_key(c["kind"], c["sites"], c.get("operator")): c["exact"]
                      for c in [*data.get("couplings", []), *beyond.get("couplings", [])]
                      if "exact" in c}
         classes = {(c["kind"], c["class"], c.get("operator")): c["exact"]

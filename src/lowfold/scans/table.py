@@ -74,8 +74,9 @@ def _result_rows(result: Spectrum | EffectiveModel | StateSeries) -> list[dict]:
             for order, value in coupling.orders.items():
                 add("coupling", value, order=str(order), **label)
             if result.exact is not None:        # derive with exact couplings
-                add("coupling", result.exact.coupling_value(coupling.kind, coupling.sites,
-                                                            coupling.value), order="exact", **label)
+                add("coupling", result.exact.coupling_value(
+                    coupling.kind, coupling.sites, coupling.value,
+                    getattr(coupling, "operator", None)), order="exact", **label)
         for term in result.terms:
             add("term", term.coefficient, kind=term.operator, order="total")
             if result.exact is not None:
