@@ -100,13 +100,13 @@ RUNS = {
     "derive-matrix": ("derive", ISING_FIELD, {"check_scaling": True}, EffectiveModel),
     "derive-unchecked": ("derive", HUBBARD_DIMER, {"check": False}, EffectiveModel),
     "derive-classes": ("derive", HUBBARD_RING, {"check": False}, EffectiveModel),
+    "series-avoided": ("series", ONE_SPIN, {"sweep": "lambda=0:4:41"}, StateSeries),
+    "series-crossing": ("series", ZEEMAN, {"sweep": "lambda=0:2:41"}, StateSeries),
+    "series-plain": ("series", TRANSVERSE, {}, StateSeries),
     "derive-exact": ("derive", HUBBARD_RING, {"check": False, "exact_couplings": True},
                      EffectiveModel),
     "derive-matrix-exact": ("derive", ISING_FIELD, {"check": False, "exact_couplings": True},
                             EffectiveModel),
-    "series-avoided": ("series", ONE_SPIN, {"sweep": "lambda=0:4:41"}, StateSeries),
-    "series-crossing": ("series", ZEEMAN, {"sweep": "lambda=0:2:41"}, StateSeries),
-    "series-plain": ("series", TRANSVERSE, {}, StateSeries),
 }
 SECTIONS = {"spectrum": "spectrum", "derive": "derive", "series": "series"}
 

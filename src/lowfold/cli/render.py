@@ -112,16 +112,17 @@ def print_derive(out: Console, err: Console, title: str, result: EffectiveModel)
     orders, rows = _coupling_rows(result)
     if rows:
         table = Table(title=f"couplings to order {result.order} (S = sigma/2)")
-        exact = _exact_cells(result)
-        for name in ("kind", "sites", *[f"order {n}" for n in orders], "total",
-                     *(["exact"] if exact else [])):
+        for name in ("kind", "sites", *[f"order {n}" for n in orders], "total"):
             table.add_column(name, justify="left" if name in ("kind", "sites") else "right")
         formulas = [rational_formula(r[4]) for r in rows]
         if any(formulas):
             table.add_column("rational (recognised)", justify="left")
+        exact = _exact_cells(result)          # derive --exact-couplings: a last column
+        if exact:
+            table.add_column("exact", justify="right")
         for (kind, sites, cells, total, _), formula, cell in zip(rows, formulas, exact or rows):
-            table.add_row(user_text(kind), sites, *cells, total, *([cell] if exact else []),
-                          *([user_text(formula)] if any(formulas) else []))
+            table.add_row(user_text(kind), sites, *cells, total,
+                          *([user_text(formula)] if any(formulas) else []), *([cell] if exact else []))
         out.print(table)
         _print_exact_note(out, result)
         _print_classes(out, result)
