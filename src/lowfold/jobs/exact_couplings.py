@@ -35,9 +35,13 @@ from lowfold.results.exact import ExactCouplings, coupling_key
 from lowfold.solve.exact import lowest_eigenpairs
 
 __all__ = ["check_exact_size", "exact_effective_matrix", "exact_couplings",
-           "EXACT_MAX_VECTOR_ENTRIES", "EXACT_MAX_STATES", "DENSE_EXACT_LIMIT"]
+           "EXACT_MAX_VECTOR_ENTRIES", "EXACT_MAX_LANCZOS_WORK", "EXACT_MAX_STATES",
+           "DENSE_EXACT_LIMIT"]
 
 EXACT_MAX_VECTOR_ENTRIES = 50_000_000   # (dim(P) of a block + 1) x (its sector's states)
+EXACT_MAX_LANCZOS_WORK = 100_000_000    # (dim(P) + 1)^2 x states, above the dense limit:
+#   ARPACK's cost per restart grows so (the 8-site Hubbard chain, 71^2 x 4,900 = 2.5e7, takes
+#   ~25 s; the 10-site chain, 253^2 x 63,504 = 4.1e9, does not finish in 15 minutes)
 EXACT_MAX_STATES = 4_000_000            # largest sector block (as the exact check)
 DENSE_EXACT_LIMIT = 3000                # blocks up to this size are diagonalised densely
 
@@ -47,8 +51,10 @@ def check_exact_size(model: Model, blocks: list[ManifoldBlock], *,
     """The sector size of every block, or SizeError naming the limit (nothing is built).
 
     The exact effective Hamiltonian needs dim(P) + 1 exact eigenvectors of each block's
-    sector: at most ``EXACT_MAX_VECTOR_ENTRIES`` numbers, ``EXACT_MAX_STATES`` states, and
-    within ``memory_limit`` bytes (default 80 % of the available memory)."""
+    sector: at most ``EXACT_MAX_VECTOR_ENTRIES`` numbers, ``EXACT_MAX_STATES`` states, within
+    ``memory_limit`` bytes (default 80 % of the available memory), and, for a block above
+    ``DENSE_EXACT_LIMIT`` states (Lanczos), (dim(P) + 1)^2 x states at most
+    ``EXACT_MAX_LANCZOS_WORK``."""
     if model.lattice.infinite:
         raise ModelError("exact couplings are those of a finite cluster; give the lattice a "
                          "size (the infinite lattice has no exact eigenvectors)")
@@ -63,6 +69,12 @@ def check_exact_size(model: Model, blocks: list[ManifoldBlock], *,
                             f"of {size:,} states ({(k + 1) * size:,} numbers), more than the "
                             f"limit of {EXACT_MAX_VECTOR_ENTRIES:,}; use a smaller cluster or "
                             "manifold")
+        if size > DENSE_EXACT_LIMIT and (k + 1) ** 2 * size > EXACT_MAX_LANCZOS_WORK:
+            raise SizeError(f"exact couplings need {k + 1:,} exact eigenvectors of a sector block "
+                            f"of {size:,} states: (eigenvectors)^2 x states = "
+                            f"{(k + 1) ** 2 * size:.2g}, more than the limit of "
+                            f"{EXACT_MAX_LANCZOS_WORK:.0e} for Lanczos; use a smaller cluster "
+                            "or manifold")
     limit = int(0.8 * available_memory()) if memory_limit is None else memory_limit
     dense = max((3 * 16 * s * s for s in sizes if s <= DENSE_EXACT_LIMIT), default=0)
     sparse = [s for s in sizes if s > DENSE_EXACT_LIMIT]
