@@ -116,11 +116,12 @@ def _block_rotation(model: Model, states: np.ndarray, energies: np.ndarray,
     if not at_bottom and n > DENSE_EXACT_LIMIT:
         raise SizeError(f"exact couplings of a manifold above the bottom of its block need the "
                         f"whole spectrum of {n:,} states (limit {DENSE_EXACT_LIMIT:,})")
-    values, vectors = la.eigh(h.toarray())
+    # at the bottom: the k + 1 lowest levels; a window: the whole spectrum, to choose from
+    values, vectors = la.eigh(h.toarray(), subset_by_index=[0, min(k, n - 1)] if at_bottom else None)
     start = 0 if at_bottom else _best_window(vectors[rows], k)
     stop = start + k
     return direct_rotation(values[start:stop], vectors[rows, start:stop],
-                           next_energy=values[stop] if stop < n else None,
+                           next_energy=values[stop] if stop < values.size else None,
                            previous_energy=values[start - 1] if start > 0 else None, where=where)
 
 
