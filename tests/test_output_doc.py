@@ -103,6 +103,10 @@ RUNS = {
     "series-avoided": ("series", ONE_SPIN, {"sweep": "lambda=0:4:41"}, StateSeries),
     "series-crossing": ("series", ZEEMAN, {"sweep": "lambda=0:2:41"}, StateSeries),
     "series-plain": ("series", TRANSVERSE, {}, StateSeries),
+    "derive-exact": ("derive", HUBBARD_RING, {"check": False, "exact_couplings": True},
+                     EffectiveModel),
+    "derive-matrix-exact": ("derive", ISING_FIELD, {"check": False, "exact_couplings": True},
+                            EffectiveModel),
 }
 SECTIONS = {"spectrum": "spectrum", "derive": "derive", "series": "series"}
 

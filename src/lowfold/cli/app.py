@@ -172,6 +172,9 @@ def derive(model: Path = typer.Argument(..., metavar="MODEL",
                                                       help="lowest levels of each S^z block the check compares (default 8)"),
            export: Optional[Path] = typer.Option(None, "--export",
                                                  help="write the effective spin model as a model file"),
+           exact_couplings: bool = typer.Option(False, "--exact-couplings",
+                                                help="also give each coupling its exact value on the "
+                                                     "cluster (direct rotation of the exact states)"),
            size: Optional[str] = typer.Option(None, "--size", help=_SIZE_HELP),
            boundary: Optional[str] = typer.Option(None, "--boundary", help=_BOUNDARY_HELP)):
     """Effective low-energy model of MODEL, order by order, checked against exact spectra."""
@@ -179,7 +182,8 @@ def derive(model: Path = typer.Argument(..., metavar="MODEL",
     m = _sized(model, size, boundary)
     if export is not None:
         check_writable(export, "--export")
-    options = {"order": order, "check": not no_check, "check_scaling": check_scaling}
+    options = {"order": order, "check": not no_check, "check_scaling": check_scaling,
+               "exact_couplings": exact_couplings}
     if levels is not None:
         options["check_levels"] = levels
     with _progress(not (json_out or latex)) as progress:
@@ -266,7 +270,7 @@ def scan(scan_file: Path = typer.Argument(..., metavar="SCAN", help="scan file (
 
 @app.command()
 def plot(results: Path = typer.Argument(..., metavar="RESULTS", help="results directory of a scan"),
-         kind: str = typer.Option(..., "--kind", help="couplings | errors | finite-size | levels"),
+         kind: str = typer.Option(..., "--kind", help="couplings | errors | finite-size | levels | exact-couplings"),
          output: Path = typer.Option(..., "--output", "-o", help="image file (.png, .svg, .pdf)"),
          x: Optional[str] = typer.Option(None, "--x", help="x axis: a parameter or ratio such as t/U"),
          quantity: Optional[str] = typer.Option(None, "--quantity", help="e.g. coupling:exchange:0-1"),
@@ -307,7 +311,8 @@ def demo(json_out: bool = typer.Option(False, "--json", help="print one JSON obj
             out.print(f"[bold]lowfold demo[/bold]: {render.user_text(file.name)} "
                       "(built-in example)\n")
         derive(file, order=None, json_out=json_out, latex=False, no_check=False,
-               check_scaling=False, check_levels=None, export=None, size=None, boundary=None)
+               check_scaling=False, check_levels=None, export=None, exact_couplings=False,
+               size=None, boundary=None)
 
 
 def main() -> None:

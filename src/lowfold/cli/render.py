@@ -17,6 +17,7 @@ from rich.table import Table
 from lowfold.readout.formulas import latex_hamiltonian
 from lowfold.results import EffectiveModel, Recognised, Spectrum, StateSeries
 from lowfold.results.effective import COUPLING_TOL
+from lowfold.results.exact import coupling_key
 
 __all__ = ["print_spectrum", "print_derive", "print_series", "latex_couplings", "one_line",
            "user_text"]
@@ -116,13 +117,18 @@ def print_derive(out: Console, err: Console, title: str, result: EffectiveModel)
         formulas = [rational_formula(r[4]) for r in rows]
         if any(formulas):
             table.add_column("rational (recognised)", justify="left")
-        for (kind, sites, cells, total, _), formula in zip(rows, formulas):
+        exact = _exact_cells(result)          # derive --exact-couplings: a last column
+        if exact:
+            table.add_column("exact", justify="right")
+        for (kind, sites, cells, total, _), formula, cell in zip(rows, formulas, exact or rows):
             table.add_row(user_text(kind), sites, *cells, total,
-                          *([user_text(formula)] if any(formulas) else []))
+                          *([user_text(formula)] if any(formulas) else []), *([cell] if exact else []))
         out.print(table)
+        _print_exact_note(out, result)
         _print_classes(out, result)
     elif not result.spin_form:
         _print_matrices(out, result)
+        _print_exact_note(out, result)      # its matrix: JSON effective.exact
     if result.check is not None:
         table = Table(title="check against the exact low-lying spectrum")
         table.add_column("order", justify="right")
@@ -144,6 +150,31 @@ def print_derive(out: Console, err: Console, title: str, result: EffectiveModel)
     _warn(err, result.warnings)
 
 
+def _exact_cells(result: EffectiveModel) -> list[str] | None:
+    """The exact value of each coupling (``derive --exact-couplings``), or None."""
+    if result.exact is None:
+        return None
+    return [_fmt(result.exact.coupling_value(c.kind, c.sites, c.value, getattr(c, "operator", None)))
+            for c in result.couplings]
+
+
+def _print_exact_note(out: Console, result: EffectiveModel) -> None:
+    """How the exact column was obtained, and the named couplings it has beyond the orders."""
+    exact = result.exact
+    if exact is None:
+        return
+    gap = "-" if exact.gap is None else f"{exact.gap:.6g}"
+    out.print(f"exact: direct rotation of the {len(exact.energies)} exact levels of the "
+              f"manifold (exact gap {gap}, smallest overlap with P {exact.smallest_singular_value:.3g})",
+              markup=False)
+    named = {coupling_key(c.kind, c.sites, getattr(c, "operator", None)) for c in result.couplings}
+    for key, value in exact.couplings.items():
+        if key not in named and np.max(np.abs(value)) > COUPLING_TOL:
+            what = " ".join([key[0], ",".join(map(str, key[1])) or "-", *key[2:]])
+            out.print(f"exact only (beyond order {result.order}): {what} = {_fmt(value)}",
+                      markup=False)
+
+
 def _print_classes(out: Console, result: EffectiveModel) -> None:
     """The coupling classes of a translation-invariant cluster (none: nothing printed), then
     their formulas one per line (a formula column would not fit a narrow terminal)."""
@@ -151,12 +182,15 @@ def _print_classes(out: Console, result: EffectiveModel) -> None:
         return
     orders = sorted({m for c in result.classes for m in c.orders})
     table = Table(title="coupling classes (value of one member; members per site)")
-    for name in ("kind", "class", "per site", "value", *[f"order {n}" for n in orders]):
+    exact = result.exact.classes if result.exact is not None else None
+    for name in ("kind", "class", "per site", "value", *[f"order {n}" for n in orders],
+                 *(["exact"] if exact is not None else [])):
         table.add_column(name, justify="left" if name in ("kind", "class") else "right", no_wrap=True)
     for c in result.classes:
         kind = f"{c.kind} {c.operator}" if c.operator else c.kind
+        cell = [] if exact is None else [_fmt(exact.get((c.kind, c.name, c.operator), 0.0))]
         table.add_row(kind, c.name, f"{c.multiplicity:.4g}", _fmt(c.value),
-                      *[_fmt(c.orders[n]) if n in c.orders else "" for n in orders])
+                      *[_fmt(c.orders[n]) if n in c.orders else "" for n in orders], *cell)
     out.print(table)
     for c in result.classes:
         if c.formula:

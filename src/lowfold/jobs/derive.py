@@ -23,6 +23,8 @@ from lowfold.jobs.check import ManifoldBlock, exact_check
 from lowfold.jobs.check_levels import DEFAULT_CHECK_LEVELS, check_levels_value
 from lowfold.jobs.check_winding import wrap_around_warnings
 from lowfold.jobs.classes import group_into_classes
+from lowfold.jobs.exact_couplings import check_exact_size
+from lowfold.jobs.exact_couplings import exact_couplings as exact_couplings_of
 from lowfold.model.model import Model
 from lowfold.model.sector import sz_note
 from lowfold.perturbation.diagnostics import (check_divergence, manifold_diagnostics,
@@ -48,7 +50,8 @@ MAX_WORKING_STATES = 2_000_000  # intermediate states of one block for orders ab
 
 def derive(model: Model, order: int | None = None, *, compare_exact: bool = True,
            fit_scaling: bool = False, check_levels: int | str = DEFAULT_CHECK_LEVELS,
-           progress: Callable[[str], None] | None = None) -> EffectiveModel:
+           progress: Callable[[str], None] | None = None,
+           exact_couplings: bool = False) -> EffectiveModel:
     """Effective Hamiltonian of ``model`` on the low-energy manifold of H0, order by order.
 
     Parameters
@@ -69,12 +72,19 @@ def derive(model: Model, order: int | None = None, *, compare_exact: bool = True
         How many of the lowest levels of each S^z block the check compares (default 8; every
         level of a block with no more manifold states than that or a dense-sized sector);
         ``"all"`` compares every level of the manifold.  The result's ``check`` says which.
+    exact_couplings : bool
+        Also read out the exact effective Hamiltonian of the cluster by direct rotation
+        (``lowfold.jobs.exact_couplings``): the result's ``exact``.  SizeError before anything
+        is computed when the exact eigenvectors would not fit; ManifoldError when the exact
+        states of the manifold are not separated from the rest.
 
     Returns
     -------
     EffectiveModel
         ``model`` is the model derived (with the widened sector, if any).
     """
+    if model.lattice.infinite and exact_couplings:
+        check_exact_size(model, [])      # the ModelError that says why
     if model.lattice.infinite:       # linked-cluster expansion (jobs/lattice.py)
         from lowfold.jobs.lattice import derive_infinite
         return derive_infinite(model, order, progress=progress)
@@ -90,6 +100,8 @@ def derive(model: Model, order: int | None = None, *, compare_exact: bool = True
     say("finding the manifold")
     manifold = find_manifold(model, h0)
     blocks = _blocks(model, manifold, h0.conserves_sz and v.conserves_sz)
+    if exact_couplings:
+        check_exact_size(model, blocks)
     n_slots = model.n_sites * model.site.modes
     dim = manifold.dimension
     pieces = [[] for _ in range(order + 1)]
@@ -127,6 +139,8 @@ def derive(model: Model, order: int | None = None, *, compare_exact: bool = True
         if check is not None:
             warnings += check_divergence(check.max_abs_error)
     warnings += wrap_around_warnings(model, order)
+    exact = (exact_couplings_of(model, manifold.states, manifold.energies, blocks, _read_out,
+                                progress=say) if exact_couplings else None)
     gap = diagnostics.gap
     summary = ManifoldSummary(dim, float(manifold.energies.min()),
                               float(gap) if np.isfinite(gap) else None, readout["readout"],
@@ -134,7 +148,8 @@ def derive(model: Model, order: int | None = None, *, compare_exact: bool = True
     return EffectiveModel(order, summary, tuple(orders), tuple(labels), readout["terms"],
                           readout["couplings"], readout["recognised"], check, scaling,
                           ManifoldDiagnostics.from_diagnostics(diagnostics, label_of),
-                          tuple(warnings), readout["residual"], model, classes)
+                          tuple(warnings), readout["residual"], model, classes,
+                          exact=exact)
 
 
 def _whole_manifold(model: Model) -> tuple[Model, list[str]]:

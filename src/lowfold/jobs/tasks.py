@@ -4,7 +4,8 @@ The command line, the scans and user scripts all call :func:`run_task`, so a sca
 ``lowfold TASK MODEL --json`` give the same numbers (``run_task(...).to_dict()`` is that JSON).
 Task options come from scan files (``[task]`` table) and the command line; their names are
 those of the scan-file format (docs/scans.md): ``levels``; ``order``, ``check``,
-``check_scaling``, ``check_levels`` (an int or ``"all"``); ``order``, ``state``, ``sweep`` (an array, or the text
+``check_scaling``, ``check_levels`` (an int or ``"all"``), ``exact_couplings`` (a boolean);
+``order``, ``state``, ``sweep`` (an array, or the text
 ``"lambda=START:STOP:COUNT"``).
 """
 
@@ -54,9 +55,13 @@ def _spectrum_task(model: Model, options: dict, progress) -> Spectrum:
 
 
 def _derive_task(model: Model, options: dict, progress) -> EffectiveModel:
+    exact = options.get("exact_couplings", False)
+    if not isinstance(exact, (bool, np.bool_)):
+        raise ModelError(f"exact_couplings must be true or false, got {exact!r}")
     return derive(model, options.get("order"), compare_exact=options.get("check", True),
                   fit_scaling=options.get("check_scaling", False),
-                  check_levels=options.get("check_levels", DEFAULT_CHECK_LEVELS), progress=progress)
+                  check_levels=options.get("check_levels", DEFAULT_CHECK_LEVELS), progress=progress,
+                  exact_couplings=bool(exact))
 
 
 def _series_task(model: Model, options: dict, progress) -> StateSeries:

@@ -362,13 +362,8 @@ def exact_effective_hamiltonian(h_dense, p_index, *, degeneracy_tol=1e-10, overl
     if n_p < energies.size and energies[n_p] - energies[n_p - 1] < degeneracy_tol * scale:
         raise ManifoldError(f"the exact level {n_p - 1} is degenerate with the next one; "
                             "the lowest dim(P) states are not well defined")
-    x, sigma, yh = np.linalg.svd(vecs[p, :n_p])
-    if sigma.min() < overlap_tol:
-        raise ManifoldError(f"the lowest exact states have (almost) no weight on P "
-                            f"(smallest singular value {sigma.min():.3g})")
-    w = x @ yh
-    h_eff = (w * energies[:n_p]) @ w.conj().T
-    return (h_eff + h_eff.conj().T) / 2
+    from lowfold.perturbation.direct_rotation import direct_rotation    # W diag(E) W^dagger
+    return direct_rotation(energies[:n_p], vecs[p, :n_p], overlap_tol=overlap_tol).matrix
 
 
 def reachable_indices(v, p_index, steps):

@@ -18,7 +18,7 @@ from lowfold.scans.store import load_results, open_results
 
 __all__ = ["KINDS", "plot_results"]
 
-KINDS = ("couplings", "errors", "finite-size", "levels")
+KINDS = ("couplings", "errors", "finite-size", "levels", "exact-couplings")
 
 
 def plot_results(
@@ -46,7 +46,7 @@ def plot_results(
     ----------
     results : path
         Results directory of a scan.
-    kind : {"couplings", "errors", "finite-size", "levels"}
+    kind : {"couplings", "errors", "finite-size", "levels", "exact-couplings"}
     output : path
         Image file; the format follows the extension (.png, .svg, .pdf).
     x : str
@@ -91,6 +91,10 @@ def plot_results(
     elif kind == "errors":
         plot_errors(records, x=x, quantity=quantity or "error", exact=exact, orders=orders,
                     unit=unit, where=where, title=title, output=output)
+    elif kind == "exact-couplings":
+        from lowfold.plots.exact_figure import plot_exact_couplings
+        plot_exact_couplings(records, x=x, quantity=quantity or "coupling:exchange",
+                             orders=orders, unit=unit, where=where, title=title, output=output)
     elif kind == "levels":
         plot_levels(records, x=x, levels=levels, orders=orders, unit=unit, where=where, title=title,
                     series=None if series is None else load_results(series), output=output)

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass, field
 from typing import Any, Mapping
 
@@ -11,6 +12,7 @@ import scipy.sparse as sp
 from lowfold.readout.couplings import Coupling
 from lowfold.results.classes import CouplingClass
 from lowfold.results.common import finite, orders_from_json, orders_to_json
+from lowfold.results.exact import ExactCouplings
 
 __all__ = ["ManifoldSummary", "ManifoldDiagnostics", "PauliTerm", "Recognised", "DeriveCheck",
            "CheckedBlock",
@@ -293,6 +295,7 @@ class EffectiveModel:
     residual: Mapping = field(default_factory=dict)
     model: Any = None
     classes: tuple[CouplingClass, ...] = ()
+    exact: ExactCouplings | None = None     # direct-rotation couplings (results/exact.py)
 
     @property
     def spin_form(self) -> bool:
@@ -332,6 +335,10 @@ class EffectiveModel:
         if not self.spin_form:
             out["effective"] = {"basis": list(self.labels),
                                 "orders": {str(m): matrix_to_json(h) for m, h in enumerate(self.orders)}}
+        if self.exact is not None:
+            self.exact.annotate(out)
+            if "effective" in out and self.exact.matrix is not None:
+                out["effective"]["exact"] = matrix_to_json(self.exact.matrix)
         return out
 
     @classmethod
@@ -352,4 +359,13 @@ class EffectiveModel:
                    if scaling is not None else None,
                    ManifoldDiagnostics.from_dict(data["diagnostics"]) if data.get("diagnostics") else None,
                    tuple(data.get("warnings", ())),
-                   classes=tuple(CouplingClass.from_dict(c) for c in data.get("classes", ())))
+                   classes=tuple(CouplingClass.from_dict(c) for c in data.get("classes", ())),
+                   exact=_exact_from_dict(data, manifold.dimension))
+
+
+def _exact_from_dict(data: Mapping, dimension: int) -> ExactCouplings | None:
+    exact = ExactCouplings.from_dict(data)
+    matrix = (data.get("effective") or {}).get("exact")
+    if exact is not None and matrix is not None:
+        exact = dataclasses.replace(exact, matrix=matrix_from_json(matrix, dimension))
+    return exact

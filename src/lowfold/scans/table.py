@@ -73,8 +73,15 @@ def _result_rows(result: Spectrum | EffectiveModel | StateSeries) -> list[dict]:
             add("coupling", coupling.value, order="total", **label)
             for order, value in coupling.orders.items():
                 add("coupling", value, order=str(order), **label)
+            if result.exact is not None:        # derive with exact couplings
+                add("coupling", result.exact.coupling_value(
+                    coupling.kind, coupling.sites, coupling.value,
+                    getattr(coupling, "operator", None)), order="exact", **label)
         for term in result.terms:
             add("term", term.coefficient, kind=term.operator, order="total")
+            if result.exact is not None:
+                add("term", result.exact.term_value(term.operator), kind=term.operator,
+                    order="exact")
         if result.check is not None:
             for k, energy in enumerate(result.check.exact):
                 add("exact", energy, index=k)
