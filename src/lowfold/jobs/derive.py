@@ -237,5 +237,6 @@ def _read_out_local(model: Model, states: np.ndarray, orders: list) -> dict:
     scale, found = recognise_couplings(model, local["couplings"])
     recognised = {key: Recognised(scale, coefficients) for key, coefficients in found.items()}
     return {"readout": local["readout"], "terms": pauli, "couplings": tuple(local["couplings"]),
-            "recognised": recognised, "residual": local["residual"],
+            "recognised": recognised,
+            "residual": local["residual"] if local["terms"] else {},   # Pauli strings only
             "warnings": local["warnings"]}
