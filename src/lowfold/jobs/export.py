@@ -62,6 +62,11 @@ def export_text(result) -> str:
         The result has no spin form (no named couplings to write), or no model.
     """
     model = result.model
+    if result.manifold.readout.startswith("local operators"):
+        raise ModelError("the effective model is read out in local operators of the kept "
+                         "states (projected hopping, three-site terms, X-operator strings): "
+                         "model files have no term types for operators projected onto those "
+                         "states, so it cannot be exported; use --json for its couplings")
     if not result.spin_form or model is None:
         why = result.readout_note or "no model attached"
         raise ModelError(f"the effective model has no spin-1/2 form ({why}); only spin "
