@@ -40,7 +40,7 @@ from lowfold.readout.local_basis import LocalBasis
 from lowfold.readout.local_operators import LocalOperators, operator_strings
 from lowfold.readout.local_strings import string_label
 
-__all__ = ["LocalCoupling", "name_strings"]
+__all__ = ["LocalCoupling", "coupling_strings", "name_strings"]
 
 
 @dataclass(frozen=True)
@@ -156,6 +156,21 @@ def _templates(model, basis: LocalBasis, ops, supports, bonded):
             if strings:
                 out.append((kind, tuple(sites), strings))
     return out
+
+
+def coupling_strings(model, basis: LocalBasis, kind: str, sites) -> dict:
+    """The strings of one named coupling of unit value on ``sites`` (for a three-site term,
+    ``(i, j, k)`` with j the middle), e.g. to build an effective Hamiltonian from couplings;
+    ``{}`` when the kind does not exist there."""
+    sites = tuple(int(s) for s in sites)
+    ordered = tuple(sorted(sites))
+    bonded = {frozenset((sites[0], sites[1])), frozenset((sites[1], sites[2]))} \
+        if kind == "three-site" else set()
+    for found, where, strings in _templates(model, basis, LocalOperators(model.site),
+                                            {ordered}, bonded):
+        if found == kind and (where == sites or (kind != "three-site" and where == ordered)):
+            return strings
+    return {}
 
 
 # --------------------------------------------------------------------------- the fit

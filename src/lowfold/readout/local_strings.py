@@ -54,7 +54,7 @@ def string_label(basis: LocalBasis, key) -> str:
 
 def _site_table(basis: LocalBasis, per_site) -> np.ndarray:
     width = int(basis.sizes.max())
-    out = np.zeros((basis.n_sites, width), dtype=np.int64)
+    out = np.zeros((basis.n_sites, width), dtype=np.int8)
     for i, values in enumerate(per_site):
         out[i, :values.size] = values
     return out
@@ -65,21 +65,31 @@ def _jordan_wigner(basis: LocalBasis, ca, cb) -> np.ndarray:
     if not basis.fermionic:
         return np.ones(ca.shape[0])
     parity = _site_table(basis, basis.parity)
-    sites = np.arange(basis.n_sites)
-    pa, pb = parity[sites, ca], parity[sites, cb]
-    odd = pa != pb
-    before = np.cumsum(pb, axis=1) - pb
-    return np.where(np.sum(odd * before, axis=1) % 2, -1.0, 1.0)
+    sign = np.zeros(ca.shape[0], dtype=np.int8)     # parity of the fermions on sites < i
+    flips = np.zeros(ca.shape[0], dtype=np.int8)
+    for i in range(basis.n_sites):
+        pa, pb = parity[i, ca[:, i]], parity[i, cb[:, i]]
+        flips ^= (pa != pb) & (sign == 1)
+        sign ^= pb
+    return np.where(flips, -1.0, 1.0)
 
 
 def _group_keys(basis: LocalBasis, ca, cb) -> np.ndarray:
     """One integer per (D, A_D, B_D)."""
     width = int(basis.sizes.max())
-    digit = np.where(ca != cb, 1 + ca.astype(np.int64) * width + cb, 0)
     base = width * width + 1
+
+    def digit(i):
+        a, b = ca[:, i].astype(np.int64), cb[:, i].astype(np.int64)
+        return np.where(a != b, 1 + a * width + b, 0)
+
     if base ** basis.n_sites < 2**62:
-        return digit @ (base ** np.arange(basis.n_sites, dtype=np.int64))
-    return np.unique(digit, axis=0, return_inverse=True)[1].ravel()
+        keys = np.zeros(ca.shape[0], dtype=np.int64)
+        for i in range(basis.n_sites):
+            keys += digit(i) * base ** i
+        return keys
+    digits = np.stack([digit(i).astype(np.int32) for i in range(basis.n_sites)], axis=1)
+    return np.unique(digits, axis=0, return_inverse=True)[1].ravel()
 
 
 def strings_of_orders(basis: LocalBasis, orders, *, tol: float = 1e-12) -> dict:
