@@ -305,4 +305,4 @@ def print_series(out: Console, err: Console, title: str, result: StateSeries) ->
 
 def _warn(err: Console, warnings) -> None:
     for warning in warnings:
-        err.print(f"warning: {one_line(warning)}", markup=False)
+        err.print(f"warning: {one_line(warning)}", markup=False, soft_wrap=True)  # one line each

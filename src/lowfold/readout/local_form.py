@@ -18,6 +18,7 @@ from __future__ import annotations
 import numpy as np
 import scipy.sparse as sp
 
+from lowfold.errors import SizeError
 from lowfold.model.cycles import lattice_cycles
 from lowfold.readout.couplings import spin_couplings
 from lowfold.readout.local_basis import LocalBasis, product_manifold
@@ -50,7 +51,11 @@ def read_local_form(model, orders, states) -> dict:
                 "warnings": [f"no named readout: {reason}"]}
     if (model.site.type == "spin" and basis.is_hull and np.all(basis.sizes == 2)):
         return _pseudo_spin(model, basis, orders)
-    strings = strings_of_orders(basis, orders, tol=TERM_TOL)
+    try:
+        strings = strings_of_orders(basis, orders, tol=TERM_TOL)
+    except SizeError as exc:            # the readout is optional: keep the matrices
+        return {"readout": f"matrix ({exc})", "terms": {}, "couplings": [], "residual": {},
+                "warnings": [f"no named readout: {exc}"]}
     couplings, residual = name_strings(model, basis, strings, len(orders), tol=COUPLING_TOL)
     return {"readout": f"{LOCAL_READOUT} ({_describe(basis)})", "terms": {},
             "couplings": couplings, "residual": residual, "warnings": []}
