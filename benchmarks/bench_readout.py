@@ -10,7 +10,9 @@ the couplings it was built from (``recovered``, largest deviation).
 
 Every size runs in its own subprocess; its peak memory is that child's ``ru_maxrss`` (read
 with ``os.wait4``), which includes building the matrices.  The machines are shared and noisy:
-compare sizes within one run.  Results go to ``benchmarks/results/bench_readout.json``.
+compare sizes within one run, and the CPU time of the readout (``readout_cpu_s``,
+``time.process_time`` in the child), which the load of other processes inflates far less
+than the wall time.  Results go to ``benchmarks/results/bench_readout.json``.
 
 Usage::
 
@@ -50,9 +52,10 @@ def _child(n_sites: int) -> dict:
     codes = np.indices((3,) * n_sites).reshape(n_sites, -1).T        # 0 empty, 1 up, 2 down
     weights = 1 << np.arange(n_sites, dtype=np.int64)
     states = np.sort(((codes == 1) @ weights) + (((codes == 2) @ weights) << n_sites))
-    start = time.perf_counter()
+    start, cpu_detect = time.perf_counter(), time.process_time()
     basis, reason = product_manifold(model, states)
     detect = time.perf_counter() - start
+    cpu_detect = time.process_time() - cpu_detect
     assert basis is not None, reason
     j = 4 * T**2 / U
     wanted = {("hopping", (i, i + 1)): (1, T) for i in range(n_sites - 1)}
@@ -65,12 +68,13 @@ def _child(n_sites: int) -> dict:
             per_order[order][key] = per_order[order].get(key, 0.0) + value * c
     orders = [matrix_of_strings(basis, strings) for strings in per_order]
     build = time.perf_counter() - start
-    start = time.perf_counter()
+    start, cpu = time.perf_counter(), time.process_time()
     strings = strings_of_orders(basis, orders)
     project = time.perf_counter() - start
     start = time.perf_counter()
     couplings, residual = name_strings(model, basis, strings, len(orders))
     name = time.perf_counter() - start
+    cpu = time.process_time() - cpu
     found = {(c.kind, tuple(c.sites)): c.orders for c in couplings}
     deviation = max(abs(found.get(key, {}).get(order, 0.0) - value)
                     for key, (order, value) in wanted.items())
@@ -80,7 +84,7 @@ def _child(n_sites: int) -> dict:
             "couplings": len(couplings), "unexpected_couplings": extra,
             "residual_strings": len(residual), "max_deviation": float(deviation),
             "build_s": build, "detect_s": detect, "project_s": project, "name_s": name,
-            "readout_s": detect + project + name}
+            "readout_s": detect + project + name, "readout_cpu_s": cpu_detect + cpu}
 
 
 def _run(n_sites: int) -> dict:
@@ -106,17 +110,22 @@ def main() -> None:
         print(json.dumps(_child(args.child)))
         return
     rows = [_run(n) for n in args.sizes]
+    load = os.getloadavg()[0]
     head = ("L", "states", "nonzeros", "strings", "detect s", "project s", "name s",
-            "readout s", "peak MB", "max dev")
+            "readout s", "readout cpu s", "peak MB", "max dev")
     print(" | ".join(head))
     for r in rows:
         print(" | ".join([str(r["sites"]), f"{r['states']:,}", f"{r['nonzeros']:,}",
                           str(r["strings"]), f"{r['detect_s']:.2f}", f"{r['project_s']:.2f}",
                           f"{r['name_s']:.2f}", f"{r['readout_s']:.2f}",
+                          f"{r['readout_cpu_s']:.2f}",
                           f"{r['peak_rss_mb']:.0f}", f"{r['max_deviation']:.1e}"]))
     args.out.parent.mkdir(parents=True, exist_ok=True)
     args.out.write_text(json.dumps({"machine": platform.platform(), "python": sys.version,
-                                    "t": T, "U": U, "results": rows}, indent=2))
+                                    "load_average_at_start": load, "t": T, "U": U,
+                                    "results": rows}, indent=2))
+    print(f"load average (1 min) at the start: {load:.1f}; wall times grow with it, CPU times "
+          "much less")
     print(f"written {args.out}")
 
 

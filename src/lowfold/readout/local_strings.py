@@ -116,15 +116,17 @@ def strings_of_entries(basis: LocalBasis, ia, ib, values, *, tol: float = 1e-12)
     ca, cb = basis.codes[ia], basis.codes[ib]
     f = values * (basis.signs[ia] * basis.signs[ib] * _jordan_wigner(basis, ca, cb))[:, None]
     keys = _group_keys(basis, ca, cb)
-    order = np.argsort(keys, kind="stable")
-    starts = np.flatnonzero(np.r_[True, keys[order][1:] != keys[order][:-1]])
+    order = np.argsort(keys)
+    keys = keys[order]
+    ca, cb, f = ca[order], cb[order], f[order]       # each group one contiguous block
+    del order
+    starts = np.flatnonzero(np.r_[True, keys[1:] != keys[:-1]])
     out = {}
     member_keys = basis.key_of(basis.codes) if not basis.is_hull else None
-    for start, stop in zip(starts, np.r_[starts[1:], order.size]):
-        members = order[start:stop]
-        first = members[0]
-        d_sites = np.flatnonzero(ca[first] != cb[first])
-        head = tuple((int(i), int(ca[first, i]), int(cb[first, i])) for i in d_sites)
+    for start, stop in zip(starts, np.r_[starts[1:], keys.size]):
+        members = slice(start, stop)
+        d_sites = np.flatnonzero(ca[start] != cb[start])
+        head = tuple((int(i), int(ca[start, i]), int(cb[start, i])) for i in d_sites)
         rest = np.setdiff1d(np.arange(basis.n_sites), d_sites)
         if basis.is_hull:
             found = _moebius(basis, rest, ca[members][:, rest], f[members], tol)
