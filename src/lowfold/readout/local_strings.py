@@ -113,6 +113,8 @@ def strings_of_orders(basis: LocalBasis, orders, *, tol: float = 1e-12) -> dict:
 def strings_of_entries(basis: LocalBasis, ia, ib, values, *, tol: float = 1e-12) -> dict:
     """Strings of the operator with ``<P[ia]|H|P[ib]> = values`` (rows: entries, columns:
     orders); every other element between states of P is zero."""
+    if len(ia) == 0:
+        return {}
     ca, cb = basis.codes[ia], basis.codes[ib]
     f = values * (basis.signs[ia] * basis.signs[ib] * _jordan_wigner(basis, ca, cb))[:, None]
     keys = _group_keys(basis, ca, cb)
