@@ -27,14 +27,17 @@ def runs(tmp_path_factory):
     files = write_models(directory, {
         "tj": hubbard_text("chain", [3], t=T, U=U, particles=2, order=2),
         "field": hubbard_text("chain", [3], t=T, U=U, particles=2, order=1, terms=FIELD),
-        "ising": ISING_CHAIN})
+        "ising": ISING_CHAIN,
+        "ring": hubbard_text("chain", [6], boundary="periodic", t=T, U=U, particles=5,
+                             order=2)})
     return run_all({
         "screen": ["derive", files["tj"], "--no-check"],
         "json": ["derive", files["tj"], "--json", "--no-check"],
         "latex": ["derive", files["field"], "--latex", "--no-check"],
         "strings": ["derive", files["field"], "--no-check"],
         "export": ["derive", files["tj"], "--no-check", "--export", directory / "out.toml"],
-        "ising": ["derive", files["ising"], "--no-check"]})
+        "ising": ["derive", files["ising"], "--no-check"],
+        "ring-latex": ["derive", files["ring"], "--no-check", "--latex"]})
 
 
 def test_screen_names_the_t_j_couplings(runs):
@@ -79,3 +82,11 @@ def test_non_product_manifold_api():
     assert result.manifold.readout.startswith("matrix (")
     assert not result.couplings
     assert sum("no named readout" in w for w in result.warnings) == 1
+
+
+def test_classes_of_a_doped_ring_in_latex(runs):
+    # a periodic 6-site ring with 5 electrons: one class per kind, with the formulas
+    latex = succeeded(runs["ring-latex"])
+    assert r"(\mathbf{S}_i \cdot \mathbf{S}_j - n_i n_j / 4)" in latex
+    assert r"J_{1} &= \frac{4 t^{2}}{U}" in latex
+    assert r"K_3 &= \frac{t^{2}}{U}" in latex
