@@ -24,8 +24,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
 from helpers.modelfiles import lattice_text, model_of, term_text
+
 from lowfold.jobs.derive import derive
 
 L, N_FILL, U = 6, 1, 1.0

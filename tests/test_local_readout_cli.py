@@ -11,10 +11,10 @@ warning line says why there is no named readout.  Physics of the values: test_tj
 from __future__ import annotations
 
 import pytest
-
 from helpers.cli import one_json_object, one_line_error, run_all, succeeded
 from helpers.derive_models import ISING_CHAIN
 from helpers.modelfiles import hubbard_text, model_of, write_models
+
 from lowfold.jobs.derive import derive
 
 T, U = 0.1, 1.0

@@ -21,8 +21,8 @@ from functools import reduce
 
 import numpy as np
 import pytest
-
 from helpers.modelfiles import lattice_text, model_of, term_text
+
 from lowfold.jobs.derive import derive
 from lowfold.readout.local_basis import product_manifold
 from lowfold.readout.local_names import name_strings
@@ -51,7 +51,7 @@ def _xxz(j):
 def _xxz_levels(j):
     """Levels of the second-order XXZ ring built here from tau = sigma / 2."""
     half = 0.5 * np.array([[[0, 1], [1, 0]], [[0, -1j], [1j, 0]], [[1, 0], [0, -1]]])
-    op = lambda a, i: reduce(np.kron, [half[a] if k == i else np.eye(2) for k in range(L)])  # noqa: E731
+    op = lambda a, i: reduce(np.kron, [half[a] if k == i else np.eye(2) for k in range(L)])
     jz, jxy, constant = _xxz(j)
     h = constant * np.eye(2**L)
     for i, k in BONDS:
@@ -112,7 +112,7 @@ def test_spin1_kinds_of_a_whole_spin1_product():
     sp_ = np.array([[0, s, 0], [0, 0, s], [0, 0, 0]])     # digit k = 1 - S^z, S+ lowers k
     sz = np.diag([1.0, 0.0, -1.0])
     # lowfold's state integer is digit_0 + 3 digit_1: site 0 is the fast (right) factor
-    two = lambda a, b: np.kron(b, a)                        # noqa: E731
+    two = lambda a, b: np.kron(b, a)
     dot = two(sz, sz) + 0.5 * (two(sp_, sp_.T) + two(sp_.T, sp_))
     j, b, d, h = 0.7, -0.3, 0.45, 0.2
     matrix = (j * dot + b * dot @ dot + d * (two(sz @ sz, np.eye(3)) + two(np.eye(3), sz @ sz))

@@ -16,8 +16,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
 from helpers.modelfiles import hubbard_text, model_of
+
 from lowfold.jobs.derive import derive
 from lowfold.readout.local_basis import product_manifold
 from lowfold.readout.local_strings import matrix_of_strings, strings_of_orders

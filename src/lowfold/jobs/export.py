@@ -84,6 +84,8 @@ def export_text(result) -> str:
     lines = [f"title = {_toml(f'effective model of {model.title} (order {result.order})')}",
              "# written by lowfold derive --export: the couplings summed to order "
              f"{result.order}"]
+    if result.manifold.readout.startswith("pseudo-spin-1/2"):
+        lines.append(f"# each spin-1/2 is a pseudo-spin of the derived model: {result.manifold.readout}")
     if per_site and not constant:
         lines.append(f"# constant per site (not written as a term): {_toml(per_site[0])}")
     lines += ["", _lattice_table(model.lattice),
