@@ -126,3 +126,33 @@ def test_spin1_kinds_of_a_whole_spin1_product():
     assert found[("single-ion", (0,))] == pytest.approx(d)
     assert found[("single-ion", (1,))] == pytest.approx(d)
     assert found[("field", (0,))] == pytest.approx([0, 0, h])
+
+
+def test_infinite_easy_axis_chain_classes():
+    # the linked-cluster expansion of the infinite chain reads the same pseudo-spin couplings
+    # (every second-order process lives on one bond; one bond and one site per unit cell)
+    j = 0.1
+    text = f"""
+[lattice]
+shape = "chain"
+boundary = "infinite"
+[site]
+type = "spin"
+spin = 1
+[parameters]
+D = {D}
+J = {j}
+{term_text("product", "D", operators=["Sz", "Sz"], sites="all", label="anisotropy")}
+{term_text("exchange", "J", bonds="nearest", label="exchange")}
+[perturbation]
+unperturbed = ["anisotropy"]
+order = 2
+"""
+    result = derive(model_of(text), 2)
+    classes = {(c.kind, c.name): c for c in result.classes}
+    jz, jxy, _ = _xxz(j)
+    iso = (2 * jxy + jz) / 3
+    assert classes[("exchange", "nearest")].value == pytest.approx(iso, rel=1e-10)
+    np.testing.assert_allclose(np.diag(classes[("anisotropy", "nearest")].value),
+                               [jxy - iso, jxy - iso, jz - iso], rtol=1e-10, atol=1e-14)
+    assert classes[("constant", "constant")].value == pytest.approx(D - j**2 / (4 * abs(D)))

@@ -123,6 +123,8 @@ def print_derive(out: Console, err: Console, title: str, result: EffectiveModel)
                           *([user_text(formula)] if any(formulas) else []))
         out.print(table)
         _print_classes(out, result)
+    elif result.classes:             # an infinite lattice: classes only
+        _print_classes(out, result)
     elif not result.spin_form:
         _print_matrices(out, result)
     if result.check is not None:
@@ -138,6 +140,8 @@ def print_derive(out: Console, err: Console, title: str, result: EffectiveModel)
                            for n, fit in result.scaling.items())
         out.print(f"fitted power of the error per order (must be >= n+1): {powers}")
     diag = result.diagnostics
+    if diag is None:                 # an infinite lattice: no single manifold to diagnose
+        return _warn(err, result.warnings)
     ratio = diag.validity_ratio
     out.print(f"validity ratio |V_PQ|/gap = {ratio:.3g}" if ratio is not None else "validity ratio: -",
               f", smallest denominator {diag.smallest_denominator:.6g}"
