@@ -34,6 +34,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+import scipy.sparse as sp
+from scipy.sparse.linalg import lsqr
 
 from lowfold.readout.couplings import Coupling
 from lowfold.readout.local_basis import LocalBasis
@@ -41,6 +43,8 @@ from lowfold.readout.local_operators import LocalOperators, operator_strings
 from lowfold.readout.local_strings import string_label
 
 __all__ = ["LocalCoupling", "coupling_strings", "name_strings"]
+
+DENSE_FIT = 20_000_000   # strings x templates solved densely; above, sparse (lsqr)
 
 
 @dataclass(frozen=True)
@@ -199,12 +203,10 @@ def name_strings(model, basis: LocalBasis, strings: dict, n_orders: int, *, tol:
     target = np.zeros((len(rows), n_orders), dtype=dtype)
     for key, v in strings.items():
         target[rows[key]] = v
-    design = np.zeros((len(rows), len(templates)))
-    for c, (_, _, t) in enumerate(templates):
-        for key, v in t.items():
-            design[rows[key], c] = v
-    solution = np.linalg.lstsq(design, target, rcond=None)[0] if templates else \
-        np.zeros((0, n_orders))
+    entries = [(rows[key], c, v) for c, (_, _, t) in enumerate(templates) for key, v in t.items()]
+    r, c, v = (np.array(x) for x in zip(*entries)) if entries else (np.zeros(0, int),) * 3
+    design = sp.csr_matrix((v.astype(float), (r, c)), shape=(len(rows), len(templates)))
+    solution = _least_squares(design, target)
     rest = target - design @ solution
     couplings = []
     for (kind, sites, _), x in zip(templates, solution):
@@ -220,6 +222,21 @@ def name_strings(model, basis: LocalBasis, strings: dict, n_orders: int, *, tol:
         sites = tuple(sorted({s for s, _, _ in key}))
         couplings.append(_coupling("string", sites, rest[r], tol, operator=label))
     return couplings, residual
+
+
+def _least_squares(design: sp.csr_matrix, target: np.ndarray) -> np.ndarray:
+    """Least-squares coefficients of the templates (dense below DENSE_FIT entries)."""
+    if design.shape[1] == 0:
+        return np.zeros((0, target.shape[1]), dtype=target.dtype)
+    if design.shape[0] * design.shape[1] <= DENSE_FIT:
+        return np.linalg.lstsq(design.toarray(), target, rcond=None)[0]
+    columns = []
+    for m in range(target.shape[1]):
+        parts = [lsqr(design, np.real(target[:, m]), atol=1e-15, btol=1e-15)[0]]
+        if np.iscomplexobj(target):
+            parts.append(1j * lsqr(design, np.imag(target[:, m]), atol=1e-15, btol=1e-15)[0])
+        columns.append(sum(parts))
+    return np.stack(columns, axis=1)
 
 
 def _plain(v):

@@ -214,10 +214,12 @@ def _slice_fit(basis, d_sites, head, rest, member_codes, f, member_keys, tol):
             frontier = grown
             columns += [g[1] for g in grown]
             labels += [g[0] for g in grown]
-            if len(columns) > MAX_SLICE_COLUMNS:
+            if len(columns) > MAX_SLICE_COLUMNS or len(columns) * domain.shape[0] > MAX_TABLE // 2:
                 raise SizeError(f"the readout of a slice of the product manifold needs more "
-                                f"than {MAX_SLICE_COLUMNS:,} projector products for one group "
-                                "of matrix elements; use a smaller cluster")
+                                f"than {len(columns) - len(grown):,} projector products on "
+                                f"{domain.shape[0]:,} configurations for one group of matrix "
+                                f"elements (limits {MAX_SLICE_COLUMNS:,} products, "
+                                f"{MAX_TABLE // 2:,} table entries)")
         design = np.stack(columns, axis=1)
         solution, _, rank, _ = np.linalg.lstsq(design, y, rcond=None)
         if np.abs(design @ solution - y).max() <= 1e-9 * scale + tol:
