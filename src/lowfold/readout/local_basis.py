@@ -18,8 +18,9 @@ its *codes*, ``codes[a, i]`` = the position of its local value in ``L_i``.
 Fermions: the X-operators of lowfold act on the *site-ordered* basis
 ``|l_0 l_1 ...> = F(l_0)_0 F(l_1)_1 ... |0>``, ``F(l)_i`` the creators of site ``i`` for
 local state ``l`` in mode order (electrons: up before down).  lowfold's occupation integers
-are ordered by slot (all spin-up slots first, DESIGN.md "fermion ordering"); the two differ
-by the sign of the reordering, :attr:`LocalBasis.signs`.  A fermion-parity-odd X-operator
+are ordered by slot (all spin-up slots first); the two differ by the sign of the reordering,
+:attr:`LocalBasis.signs`.  This is the site order DESIGN.md ("Conventions", fermions) fixes
+for the spin-1/2 reading, ``c+_{0,s0} c+_{1,s1} ... |0>``, extended to any local states.  A fermion-parity-odd X-operator
 ``|a><b|_i`` carries the Jordan-Wigner string ``prod_{k<i} (-1)^{n_k}``, so that every string
 of X-operators is a physical operator (see :mod:`lowfold.readout.local_strings`).
 
