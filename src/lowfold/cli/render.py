@@ -245,7 +245,7 @@ X_OPERATOR = re.compile(r"\|([^|<>]+)><([^|<>]+)\|_(\d+)")
 
 
 def _latex_kind(kind: str) -> str:
-    """A coupling kind for LaTeX: X-operators ``|a><b|_i`` of a string as
+    r"""A coupling kind for LaTeX: X-operators ``|a><b|_i`` of a string as
     ``$|a\rangle\langle b|_{i}$``."""
     head, _, operator = kind.partition(" ")
     if not operator:
