@@ -63,8 +63,9 @@ def export_text(result) -> str:
     """
     model = result.model
     if result.manifold.readout.startswith("local operators"):
-        raise ModelError("the effective model is read out in local operators of the kept "
-                         "states (projected hopping, three-site terms, X-operator strings): "
+        raise ModelError("the effective model has no spin-1/2 form: it is read out in local "
+                         "operators of the kept states (projected hopping, three-site terms, "
+                         "X-operator strings): "
                          "model files have no term types for operators projected onto those "
                          "states, so it cannot be exported; use --json for its couplings")
     if not result.spin_form or model is None:
