@@ -64,7 +64,8 @@ def _coupling_rows(result: EffectiveModel):
     for c in result.couplings:
         sites = ",".join(str(s) for s in c.sites) or "-"
         cells = [_fmt(c.orders[n]) if n in c.orders and shown(c.orders[n]) else "" for n in orders]
-        rows.append((c.kind, sites, cells, _fmt(c.value),
+        kind = f"{c.kind} {c.operator}" if getattr(c, "operator", "") else c.kind
+        rows.append((kind, sites, cells, _fmt(c.value),
                      result.recognised.get((c.kind, tuple(c.sites)))))
     return orders, rows
 
@@ -111,7 +112,8 @@ def print_derive(out: Console, err: Console, title: str, result: EffectiveModel)
               f"{man.energy:.6g}, gap {gap}, readout {man.readout}")
     orders, rows = _coupling_rows(result)
     if rows:
-        table = Table(title=f"couplings to order {result.order} (S = sigma/2)")
+        units = "S = sigma/2" if result.spin_form else "local operators, see docs/local-readout.md"
+        table = Table(title=f"couplings to order {result.order} ({units})")
         for name in ("kind", "sites", *[f"order {n}" for n in orders], "total"):
             table.add_column(name, justify="left" if name in ("kind", "sites") else "right")
         formulas = [rational_formula(r[4]) for r in rows]
@@ -125,6 +127,8 @@ def print_derive(out: Console, err: Console, title: str, result: EffectiveModel)
                           *([user_text(formula)] if any(formulas) else []), *([cell] if exact else []))
         out.print(table)
         _print_exact_note(out, result)
+        _print_classes(out, result)
+    elif result.classes:             # an infinite lattice: classes only
         _print_classes(out, result)
     elif not result.spin_form:
         _print_matrices(out, result)
@@ -142,6 +146,8 @@ def print_derive(out: Console, err: Console, title: str, result: EffectiveModel)
                            for n, fit in result.scaling.items())
         out.print(f"fitted power of the error per order (must be >= n+1): {powers}")
     diag = result.diagnostics
+    if diag is None:                 # an infinite lattice: no single manifold to diagnose
+        return _warn(err, result.warnings)
     ratio = diag.validity_ratio
     out.print(f"validity ratio |V_PQ|/gap = {ratio:.3g}" if ratio is not None else "validity ratio: -",
               f", smallest denominator {diag.smallest_denominator:.6g}"
@@ -260,13 +266,26 @@ def latex_couplings(result: EffectiveModel) -> str:
     columns = "ll" + "r" * (len(orders) + 1) + "l" * len(extra)
     lines = [r"\begin{tabular}{" + columns + "}", r"\hline", head + r" \\", r"\hline"]
     for (kind, sites, cells, total, _), formula in zip(rows, formulas):
-        cells = [kind, f"${sites}$", *[f"${c}$" if c else "" for c in cells], f"${total}$"]
+        cells = [_latex_kind(kind), f"${sites}$", *[f"${c}$" if c else "" for c in cells], f"${total}$"]
         cells += [f"${formula}$" if formula else ""] if extra else []
         lines.append(" & ".join(cells) + r" \\")
     lines += [r"\hline", r"\end{tabular}"]
     if result.classes:
         lines += ["", latex_hamiltonian(result.model, result.classes)]
     return "\n".join(lines)
+
+
+X_OPERATOR = re.compile(r"\|([^|<>]+)><([^|<>]+)\|_(\d+)")
+
+
+def _latex_kind(kind: str) -> str:
+    r"""A coupling kind for LaTeX: X-operators ``|a><b|_i`` of a string as
+    ``$|a\rangle\langle b|_{i}$``."""
+    head, _, operator = kind.partition(" ")
+    if not operator:
+        return kind
+    factors = X_OPERATOR.sub(lambda m: f"|{m[1]}\\rangle\\langle {m[2]}|_{{{m[3]}}}", operator)
+    return f"{head} ${factors}$"
 
 
 def print_series(out: Console, err: Console, title: str, result: StateSeries) -> None:
@@ -324,4 +343,4 @@ def print_series(out: Console, err: Console, title: str, result: StateSeries) ->
 
 def _warn(err: Console, warnings) -> None:
     for warning in warnings:
-        err.print(f"warning: {one_line(warning)}", markup=False)
+        err.print(f"warning: {one_line(warning)}", markup=False, soft_wrap=True)  # one line each

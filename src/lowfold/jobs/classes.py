@@ -43,6 +43,8 @@ from lowfold.results.effective import COUPLING_TOL
 __all__ = ["group_into_classes"]
 
 _RTOL = 1e-6
+_SYMMETRIC_LOCAL = ("hopping", "density", "biquadratic", "particle-hopping", "hole-hopping",
+                    "particle-interaction", "hole-interaction")
 
 
 def _group(generators: list[np.ndarray], n: int) -> list[np.ndarray]:
@@ -77,6 +79,10 @@ def _canonical(kind: str, sites: tuple, letters: tuple | None) -> tuple[tuple, t
         rotations = [sites[r:] + sites[:r] for r in range(4)]
         rotations += [tuple(reversed(c)) for c in rotations]
         return min(rotations), letters, 1.0
+    if kind in _SYMMETRIC_LOCAL:          # local-operator readout (readout/local_names.py)
+        return tuple(sorted(sites)), letters, 1.0
+    if kind == "three-site":              # (i, j, k) with middle j is also (k, j, i)
+        return min(tuple(sites), tuple(reversed(sites))), letters, 1.0
     if kind == "pauli":
         pairs = sorted(zip(sites, letters))
         return tuple(s for s, _ in pairs), tuple(x for _, x in pairs), 1.0
@@ -87,6 +93,8 @@ def _members(couplings, residual, n_orders):
     """``{(kind, sites, letters): per-order array}`` of the named couplings and pauli strings."""
     members = {}
     for c in couplings:
+        if c.kind == "string":            # X-operator strings without a name: no class
+            continue
         values = np.zeros((n_orders,) + np.shape(c.value))
         for m, v in c.orders.items():
             values[int(m)] = np.asarray(v, dtype=float)

@@ -35,6 +35,7 @@ from lowfold.perturbation.manifold import (Manifold, diagonal_energies, find_man
 from lowfold.perturbation.orders import MAX_SCHRIEFFER_WOLFF_ORDER, validate_order
 from lowfold.perturbation.schrieffer_wolff import (effective_hamiltonian_orders,
                                                    second_order_matrix_free)
+from lowfold.readout.local_form import read_local_form
 from lowfold.readout.rationals import recognise_couplings
 from lowfold.readout.spin_form import read_spin_form
 from lowfold.results import (EffectiveModel, ManifoldDiagnostics, ManifoldSummary, PauliTerm,
@@ -128,6 +129,7 @@ def derive(model: Model, order: int | None = None, *, compare_exact: bool = True
     warnings += list(diagnostics.warnings)
     labels = state_labels(model, manifold.states) if dim <= 4096 else []
     readout = _read_out(model, manifold.states, orders)
+    warnings += readout.get("warnings", [])
     classes = group_into_classes(model, readout["couplings"], readout["residual"], warnings=warnings)
     check = scaling = None
     if compare_exact:
@@ -232,13 +234,26 @@ def _embed(rows: sp.csr_matrix, p_index, size) -> sp.csr_matrix:
 def _read_out(model: Model, states: np.ndarray, orders: list) -> dict:
     """Spin-1/2 readout of the orders (Pauli terms, named couplings, recognised rationals),
     or the reason there is none."""
-    form, reason = read_spin_form(model, orders, states)
+    form, _ = read_spin_form(model, orders, states)
     if form is None:
-        return {"readout": f"matrix (no spin form: {reason})", "terms": (), "couplings": (),
-                "recognised": {}, "residual": {}}
+        return _read_out_local(model, states, orders)
     pauli = tuple(PauliTerm(op, float(sum(cs)), {m: float(c) for m, c in enumerate(cs)})
                   for op, cs in form.terms.items())
     scale, found = recognise_couplings(model, form.couplings)
     recognised = {key: Recognised(scale, coefficients) for key, coefficients in found.items()}
     return {"readout": "spin-1/2", "terms": pauli, "couplings": tuple(form.couplings),
             "recognised": recognised, "residual": form.residual}
+
+
+def _read_out_local(model: Model, states: np.ndarray, orders: list) -> dict:
+    """Local-operator readout of a product manifold (readout/local_form.py), or the matrix
+    and one warning saying why there is no named readout."""
+    local = read_local_form(model, orders, states)
+    pauli = tuple(PauliTerm(op, float(sum(cs)), {m: float(c) for m, c in enumerate(cs)})
+                  for op, cs in local["terms"].items())
+    scale, found = recognise_couplings(model, local["couplings"])
+    recognised = {key: Recognised(scale, coefficients) for key, coefficients in found.items()}
+    return {"readout": local["readout"], "terms": pauli, "couplings": tuple(local["couplings"]),
+            "recognised": recognised,
+            "residual": local["residual"] if local["terms"] else {},   # Pauli strings only
+            "warnings": local["warnings"]}

@@ -62,6 +62,12 @@ def export_text(result) -> str:
         The result has no spin form (no named couplings to write), or no model.
     """
     model = result.model
+    if result.manifold.readout.startswith("local operators"):
+        raise ModelError("the effective model has no spin-1/2 form: it is read out in local "
+                         "operators of the kept states (projected hopping, three-site terms, "
+                         "X-operator strings): "
+                         "model files have no term types for operators projected onto those "
+                         "states, so it cannot be exported; use --json for its couplings")
     if not result.spin_form or model is None:
         why = result.readout_note or "no model attached"
         raise ModelError(f"the effective model has no spin-1/2 form ({why}); only spin "
@@ -79,6 +85,8 @@ def export_text(result) -> str:
     lines = [f"title = {_toml(f'effective model of {model.title} (order {result.order})')}",
              "# written by lowfold derive --export: the couplings summed to order "
              f"{result.order}"]
+    if result.manifold.readout.startswith("pseudo-spin-1/2"):
+        lines.append(f"# each spin-1/2 is a pseudo-spin of the derived model: {result.manifold.readout}")
     if per_site and not constant:
         lines.append(f"# constant per site (not written as a term): {_toml(per_site[0])}")
     lines += ["", _lattice_table(model.lattice),

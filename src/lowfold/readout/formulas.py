@@ -201,8 +201,32 @@ def _where(name: str) -> str:
     return rf"\text{{{name}}}"
 
 
+# kinds of the local-operator readout (readout/local_names.py): symbol and summand
+_LOCAL_SYMBOL = {"hopping": "t", "three-site": "K_3", "density": "V", "single-ion": "D",
+                 "biquadratic": "B", "particle-hopping": "t_p", "hole-hopping": "t_h",
+                 "particle-energy": r"\epsilon_p", "hole-energy": r"\epsilon_h",
+                 "particle-interaction": "W_{pp}", "hole-interaction": "W_{hh}",
+                 "particle-hole-interaction": "W_{ph}"}
+_LOCAL_BODY = {
+    "hopping": r"(-1) \sum_\sigma P (c^\dagger_{i\sigma} c_{j\sigma} + \mathrm{h.c.}) P",
+    "three-site": r"(-1) \sum_\sigma P (c^\dagger_{i\sigma} n_{j\bar\sigma} c_{k\sigma} "
+                  r"- c^\dagger_{i\sigma} c^\dagger_{j\bar\sigma} c_{j\sigma} c_{k\bar\sigma}"
+                  r" + \mathrm{h.c.}) P",
+    "density": r"n_i n_j",
+    "single-ion": r"(S^z_i)^2",
+    "biquadratic": r"(\mathbf{S}_i \cdot \mathbf{S}_j)^2",
+    "particle-hopping": r"(-1) (X^{pb}_i X^{bp}_j + \mathrm{h.c.})",
+    "hole-hopping": r"(-1) (X^{hb}_i X^{bh}_j + \mathrm{h.c.})",
+    "particle-energy": r"X^{pp}_i", "hole-energy": r"X^{hh}_i",
+    "particle-interaction": r"X^{pp}_i X^{pp}_j", "hole-interaction": r"X^{hh}_i X^{hh}_j",
+    "particle-hole-interaction": r"X^{pp}_i X^{hh}_j",
+}
+
+
 def _operator(kind: str, name: str, letters: str | None) -> str:
     i, j, k, l = (_S[x] for x in "ijkl")
+    if kind in _LOCAL_BODY:
+        return rf"\sum_{{{_where(name)}}} {_LOCAL_BODY[kind]}"
     if kind == "field":
         return rf"\sum_i {_SYMBOL['field']} \cdot {i}"
     body = {
@@ -238,8 +262,10 @@ def latex_hamiltonian(model: Model, classes) -> str:
         readout does not import results).
     """
     terms, definitions, used = [], [], {}
+    electrons_local = model.site.type == "electron" and any(c.kind in _LOCAL_BODY
+                                                            for c in classes)
     for c in classes:
-        symbol = _SYMBOL.get(c.kind, "c")
+        symbol = _SYMBOL.get(c.kind, _LOCAL_SYMBOL.get(c.kind, "c"))
         if c.kind == "exchange":
             symbol = f"J_{{{_PAIR_INDEX.get(c.name, c.name)}}}" if c.name in _PAIR_INDEX \
                 else rf"J_{{\text{{{c.name}}}}}"
@@ -251,6 +277,11 @@ def latex_hamiltonian(model: Model, classes) -> str:
             terms.append(f"N {symbol}")
         elif c.kind in ("field", "dm", "anisotropy"):
             terms.append(_operator(c.kind, c.name, c.operator).replace(_SYMBOL[c.kind], symbol))
+        elif c.kind == "exchange" and electrons_local:      # t-J: with its density part
+            spin = r"\mathbf{S}_i \cdot \mathbf{S}_j"
+            body = _operator(c.kind, c.name, c.operator).replace(spin,
+                                                                  f"({spin} - n_i n_j / 4)")
+            terms.append(f"{symbol} {body}")
         else:
             terms.append(f"{symbol} {_operator(c.kind, c.name, c.operator)}")
         value = formula if formula is not None else _latex_value(c.value)

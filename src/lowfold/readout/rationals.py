@@ -24,7 +24,10 @@ if TYPE_CHECKING:
 
 __all__ = ["RECOGNISED_KINDS", "recognise_couplings", "recognise_rational", "single_ratio"]
 
-RECOGNISED_KINDS = ("exchange", "ring", "chirality", "constant")
+RECOGNISED_KINDS = ("exchange", "ring", "chirality", "constant",
+                    # scalar kinds of the local-operator readout (readout/local_names.py)
+                    "hopping", "three-site", "density", "single-ion", "biquadratic",
+                    "particle-hopping", "hole-hopping", "particle-energy", "hole-energy")
 
 
 def recognise_rational(value: float, scale: float, *, max_denominator: int = 1000,
@@ -134,7 +137,7 @@ def recognise_couplings(model: Model, couplings: list[Coupling]
             continue
         found = {}
         for m, value in c.orders.items():
-            if abs(value) > 1e-12:
+            if isinstance(value, (int, float)) and abs(value) > 1e-12:
                 fraction = recognise_rational(value, t**m / u ** (m - 1), max_denominator=64,
                                               rtol=1e-7)
                 if fraction is not None:

@@ -41,7 +41,7 @@ class ManifoldSummary:
 
     @property
     def spin_form(self) -> bool:
-        return self.readout == "spin-1/2"
+        return self.readout == "spin-1/2" or self.readout.startswith("pseudo-spin-1/2")
 
     def to_dict(self) -> dict:
         return {"dimension": int(self.dimension), "energy": float(self.energy),
@@ -130,6 +130,10 @@ def _coupling_to_dict(coupling: Coupling, recognised: Recognised | None) -> dict
 
 
 def _coupling_from_dict(data: Mapping) -> Coupling:
+    if "operator" in data:            # a string of the local-operator readout
+        from lowfold.readout.local_names import LocalCoupling
+        return LocalCoupling(data["kind"], tuple(int(s) for s in data["sites"]), data["value"],
+                             orders_from_json(data["orders"]), data["operator"])
     return Coupling(data["kind"], tuple(int(s) for s in data["sites"]), data["value"],
                     orders_from_json(data["orders"]))
 
@@ -306,7 +310,7 @@ class EffectiveModel:
     def readout_note(self) -> str:
         """Why there is no spin form ("" when there is one)."""
         text = self.manifold.readout
-        return "" if self.spin_form else text[len("matrix ("):-1]
+        return text[len("matrix ("):-1] if text.startswith("matrix (") else ""
 
     @property
     def gap(self) -> float | None:
