@@ -25,7 +25,7 @@ import pytest
 
 import lowfold
 from helpers import reference as ref
-from helpers.cli import one_json_object, run_all
+from helpers.cli import one_json_object, run_all, succeeded
 from helpers.exact import heisenberg
 from lowfold.jobs.lattice_check import check_cluster, lattice_check
 
@@ -157,7 +157,8 @@ def cli(tmp_path_factory):
     path = tmp_path_factory.mktemp("lattice_check") / "chain.toml"
     path.write_text(chain_text(1.0, 10.0, 2))
     return run_all({"checked": ["derive", path, "--json", "--check-levels", "2"],
-                    "unchecked": ["derive", path, "--json", "--no-check"]})
+                    "unchecked": ["derive", path, "--json", "--no-check"],
+                    "screen": ["derive", path, "--check-levels", "2"]})
 
 
 def test_cli_json_is_strict_and_names_the_cluster(cli):
@@ -172,3 +173,10 @@ def test_cli_no_check_gives_null(cli):
     data = one_json_object(cli["unchecked"])
     assert data["check"] is None
     assert data["classes"]
+
+
+def test_screen_shows_classes_and_names_the_cluster(cli):
+    text = succeeded(cli["screen"])
+    assert "coupling classes" in text and "next-nearest" not in text    # order 2: J1 only
+    assert "exchange nearest: 4 t^2/U" in text
+    assert "on the periodic chain, 10 sites" in text

@@ -121,6 +121,8 @@ def print_derive(out: Console, err: Console, title: str, result: EffectiveModel)
                           *([user_text(formula)] if any(formulas) else []))
         out.print(table)
         _print_classes(out, result)
+    elif result.classes:          # an infinite lattice: classes only
+        _print_classes(out, result)
     elif not result.spin_form:
         _print_matrices(out, result)
     if result.check is not None:
@@ -131,11 +133,17 @@ def print_derive(out: Console, err: Console, title: str, result: EffectiveModel)
             table.add_row(str(n), f"{error:.3e}")
         out.print(table)
         out.print(f"check: {result.check.describe()}", markup=False)
+        if result.check.cluster is not None:
+            out.print(f"check of the infinite lattice's couplings on the {result.check.cluster}",
+                      markup=False)
     if result.scaling:
         powers = ", ".join(f"{n}: {fit.power:.2f}" if fit.power is not None else f"{n}: -"
                            for n, fit in result.scaling.items())
         out.print(f"fitted power of the error per order (must be >= n+1): {powers}")
     diag = result.diagnostics
+    if diag is None:              # an infinite lattice: no one manifold to diagnose
+        _warn(err, result.warnings)
+        return
     ratio = diag.validity_ratio
     out.print(f"validity ratio |V_PQ|/gap = {ratio:.3g}" if ratio is not None else "validity ratio: -",
               f", smallest denominator {diag.smallest_denominator:.6g}"
