@@ -180,3 +180,18 @@ def test_screen_shows_classes_and_names_the_cluster(cli):
     assert "coupling classes" in text and "next-nearest" not in text    # order 2: J1 only
     assert "exchange nearest: 4 t^2/U" in text
     assert "on the periodic chain, 10 sites" in text
+
+
+def test_order_6_on_a_ring_equals_the_rings_own_check():
+    # below the winding loop (8 bonds) the ring's own Schrieffer-Wolff orders are the
+    # infinite chain's couplings put on it, four-spin terms (exported as patterns) included
+    result = infinite_chain(1.0, 10.0, 6)
+    assert any(c.kind == "pauli" for c in result.classes)
+    check, _, warnings = lattice_check(result, size=8)
+    assert not warnings
+    ring = lowfold.parse_model(tomllib.loads(chain_text(1.0, 10.0, 6)))
+    ring = ring.with_lattice(size=[8], boundary="periodic")
+    own = lowfold.derive(ring, 6).check
+    for m in range(7):
+        assert check.max_abs_error[m] == pytest.approx(own.max_abs_error[m], rel=1e-6, abs=1e-9)
+    assert check.max_abs_error[6] < check.max_abs_error[4] < check.max_abs_error[2]
