@@ -4,8 +4,8 @@ exact ground-state energies.
 Chain: the half-filled Hubbard chain (H0 = U n_up n_dn - (U/2) n, V = hopping t = 1) at
 U/t = 8, 12, 16, 20.  For each U, ``derive`` of the infinite chain at orders 2, 4, 6
 (linked clusters), ``--export``-ed as a model file (``lowfold.jobs.export``), run on
-periodic chains of L = 8 ... 24 sites (``with_lattice``, as ``--size``) and its ground-state
-energy per site, the constant per site of the classes added (the export writes it as a
+periodic chains of L = 8 ... 22 sites (``with_lattice``, as ``--size``; L = 24 with
+``--lengths``, 40-80 s a model there) and its ground-state energy per site, the constant per site of the classes added (the export writes it as a
 comment only: ``-U/2`` at order 0, ``-J/4`` per bond and beyond), compared with
 
 (a) Lanczos of the Hubbard model itself on the same periodic chain (L <= ``--hubbard-max``);
@@ -285,7 +285,7 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--us", type=float, nargs="+", default=[8.0, 12.0, 16.0, 20.0])
     parser.add_argument("--orders", type=int, nargs="+", default=[2, 4, 6])
-    parser.add_argument("--lengths", type=int, nargs="+", default=list(range(8, 25, 2)))
+    parser.add_argument("--lengths", type=int, nargs="+", default=list(range(8, 23, 2)))
     parser.add_argument("--hubbard-max", type=int, default=12)
     parser.add_argument("--no-square", action="store_true")
     parser.add_argument("--square-hubbard", nargs="+", default=["2x2", "2x4", "3x4"])

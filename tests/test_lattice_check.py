@@ -13,6 +13,10 @@
   t (the order-(n+2) term is t^(n+2)/U^(n+1)); common practice of the t/U expansion.
 - Winding: on a ring of L sites the shortest loop around it has L bonds, so orders >= L are
   not compared (lowfold.jobs.check_winding).
+- Below that loop the cluster's own Schrieffer-Wolff orders are the infinite lattice's
+  couplings put on it (linked-cluster picture, Gelfand, Singh & Huse, J. Stat. Phys. 59,
+  1093 (1990)): the check equals the finite check of the cluster itself (an 8-site ring at
+  order 6, the 2x2 periodic honeycomb cluster at order 3).
 """
 
 from __future__ import annotations
@@ -195,3 +199,19 @@ def test_order_6_on_a_ring_equals_the_rings_own_check():
     for m in range(7):
         assert check.max_abs_error[m] == pytest.approx(own.max_abs_error[m], rel=1e-6, abs=1e-9)
     assert check.max_abs_error[6] < check.max_abs_error[4] < check.max_abs_error[2]
+
+
+def test_honeycomb_check_equals_the_clusters_own_below_the_winding_loop():
+    # two sites per cell: the 2x2 periodic honeycomb cluster (8 sites, shortest loop around
+    # it 4 bonds); at orders 0..3 its own derive and the infinite couplings put on it agree
+    text = chain_text(1.0, 10.0, 3).replace('"chain"', '"honeycomb"')
+    infinite = lowfold.parse_model(tomllib.loads(text))
+    result = lowfold.derive(infinite, 3, compare_exact=False)
+    check, _, _ = lattice_check(result)
+    assert check.cluster == "periodic honeycomb 2x2, 8 sites" and check.winding_loop == 4
+    cluster = infinite.with_lattice(size=[2, 2], boundary="periodic")
+    own = lowfold.derive(cluster, 3).check
+    for m in range(4):
+        assert check.max_abs_error[m] == pytest.approx(own.max_abs_error[m], rel=1e-6, abs=1e-9)
+        assert check.ground_state_error[m] == pytest.approx(own.ground_state_error[m],
+                                                            rel=1e-6, abs=1e-9)
