@@ -5,8 +5,9 @@ Chain: the half-filled Hubbard chain (H0 = U n_up n_dn - (U/2) n, V = hopping t 
 U/t = 8, 12, 16, 20.  For each U, ``derive`` of the infinite chain at orders 2, 4, 6
 (linked clusters), ``--export``-ed as a model file (``lowfold.jobs.export``), run on
 periodic chains of L = 8 ... 22 sites (``with_lattice``, as ``--size``; L = 24 with
-``--lengths``, 40-80 s a model there) and its ground-state energy per site, the constant per site of the classes added (the export writes it as a
-comment only: ``-U/2`` at order 0, ``-J/4`` per bond and beyond), compared with
+``--lengths``, 40-80 s a model there) and its ground-state energy per site, the constant
+per site of the classes added (the export writes it as a comment only: ``-U/2`` at order 0,
+``-J/4`` per bond and beyond), compared with
 
 (a) Lanczos of the Hubbard model itself on the same periodic chain (L <= ``--hubbard-max``);
 (b) the Heisenberg limit J = 4t^2/U alone: ``-J ln 2 - U/2`` per site on the infinite chain
