@@ -215,3 +215,10 @@ def test_honeycomb_check_equals_the_clusters_own_below_the_winding_loop():
         assert check.max_abs_error[m] == pytest.approx(own.max_abs_error[m], rel=1e-6, abs=1e-9)
         assert check.ground_state_error[m] == pytest.approx(own.ground_state_error[m],
                                                             rel=1e-6, abs=1e-9)
+
+
+def test_kagome_has_no_cluster_within_the_cost_limit_and_says_so():
+    text = chain_text(1.0, 10.0, 2).replace('"chain"', '"kagome"')
+    result = lowfold.derive(lowfold.parse_model(tomllib.loads(text)), 2)
+    assert result.check is None and result.classes
+    assert any("exact check skipped" in w and "kagome" in w for w in result.warnings)
