@@ -236,12 +236,30 @@ def print_tables(data: dict) -> None:
         cells = [u, "J only"] + [""] * len(hub) + ["", f"{row['heisenberg_limit'] - row['bethe_ansatz']:+.3e}"]
         print("  ".join(f"{c:>11}" for c in cells))
     print("\n(BA: Bethe ansatz, Lieb & Wu 1968; 'J only': Heisenberg limit -J ln2 - U/2)")
+    for order, slope in slopes(chain).items():
+        print(f"order {order}: error vs Hubbard L={hub[-1]} falls like U^{slope:.2f} "
+              f"(expected U^-{int(order) + 1}: the next non-zero order, t^{int(order) + 2}"
+              f"/U^{int(order) + 1})")
     if data.get("square"):
         print("\nSquare lattice, order 4: E/N of the exported model minus Hubbard Lanczos")
         for u, row in data["square"].items():
             cells = [f"{k}: {v:+.3e}" for k, v in row["error"].items()]
             eff = [f"{k}: {v:.6f}" for k, v in row["effective"].items()]
             print(f"  U={u:>4}  errors {'  '.join(cells)}   effective E/N {'  '.join(eff)}")
+
+
+def slopes(chain: dict) -> dict:
+    """Power of U in the error against the Hubbard model on the largest L computed (a
+    least-squares line in log-log over the U values)."""
+    hub = max((int(n) for row in chain.values() for n in row["hubbard"]), default=None)
+    out = {}
+    if hub is None or len(chain) < 2:
+        return out
+    for order in sorted({o for row in chain.values() for o in row["orders"]}, key=int):
+        us = [float(u) for u in chain]
+        errors = [abs(row["orders"][order]["error_vs_hubbard"][str(hub)]) for row in chain.values()]
+        out[order] = float(np.polyfit(np.log(us), np.log(errors), 1)[0])
+    return out
 
 
 def figure(data: dict, path: Path) -> None:
@@ -291,7 +309,14 @@ def main() -> None:
     parser.add_argument("--no-square", action="store_true")
     parser.add_argument("--square-hubbard", nargs="+", default=["2x2", "2x4", "3x4"])
     parser.add_argument("--out", type=Path, default=RESULTS / "bench_lattice_loop.json")
+    parser.add_argument("--from", dest="saved", type=Path,
+                        help="print the table and draw the figure of a JSON written before")
     args = parser.parse_args()
+    if args.saved is not None:
+        data = json.loads(args.saved.read_text())
+        print_tables(data)
+        figure(data, args.saved.with_suffix(".png"))
+        return
     folder = RESULTS / "lattice_loop"
     folder.mkdir(parents=True, exist_ok=True)
     say = lambda text: print(text, flush=True)           # noqa: E731
@@ -302,6 +327,7 @@ def main() -> None:
         spin = [(2, 2), (2, 4), (3, 4), (4, 4)]
         hubbard = [tuple(int(x) for x in s.split("x")) for s in args.square_hubbard]
         data["square"] = run_square(args.us, spin, hubbard, folder, say)
+    data["slopes_vs_hubbard"] = slopes(data["chain"])
     data["seconds"] = time.perf_counter() - start
     args.out.parent.mkdir(parents=True, exist_ok=True)
     args.out.write_text(json.dumps(data, indent=1, allow_nan=False) + "\n")
