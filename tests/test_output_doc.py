@@ -22,6 +22,7 @@ import numpy as np
 import pytest
 
 from lowfold import load_model
+from helpers.lattice_models import hubbard_text as lattice_hubbard_text
 from helpers.modelfiles import hubbard_text
 from lowfold.jobs.tasks import parse_lambda_range, run_task
 from lowfold.results import EffectiveModel, Spectrum, StateSeries
@@ -93,6 +94,9 @@ TRANSVERSE = SPIN_PAIR.format(h0_type="field", h0_body='axis = "z"\nstrength = -
                               v_type="product", v_body='operators = ["X", "X"]\nstrength = -0.3\nbonds = "nearest"',
                               order=12)
 
+# an infinite chain: coupling classes and the check on a periodic cluster (check.cluster)
+INFINITE_CHAIN = lattice_hubbard_text("chain", order=2)
+
 # (task, model text, options, result class)
 RUNS = {
     "spectrum": ("spectrum", HUBBARD_DIMER, {"levels": 3}, Spectrum),
@@ -100,6 +104,7 @@ RUNS = {
     "derive-matrix": ("derive", ISING_FIELD, {"check_scaling": True}, EffectiveModel),
     "derive-unchecked": ("derive", HUBBARD_DIMER, {"check": False}, EffectiveModel),
     "derive-classes": ("derive", HUBBARD_RING, {"check": False}, EffectiveModel),
+    "derive-infinite": ("derive", INFINITE_CHAIN, {"check_levels": 2}, EffectiveModel),
     "series-avoided": ("series", ONE_SPIN, {"sweep": "lambda=0:4:41"}, StateSeries),
     "series-crossing": ("series", ZEEMAN, {"sweep": "lambda=0:2:41"}, StateSeries),
     "series-plain": ("series", TRANSVERSE, {}, StateSeries),

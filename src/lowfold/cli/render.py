@@ -141,6 +141,9 @@ def print_derive(out: Console, err: Console, title: str, result: EffectiveModel)
             table.add_row(str(n), f"{error:.3e}")
         out.print(table)
         out.print(f"check: {result.check.describe()}", markup=False)
+        if result.check.cluster is not None:
+            out.print(f"check of the infinite lattice's couplings on the {result.check.cluster}",
+                      markup=False)
     if result.scaling:
         powers = ", ".join(f"{n}: {fit.power:.2f}" if fit.power is not None else f"{n}: -"
                            for n, fit in result.scaling.items())

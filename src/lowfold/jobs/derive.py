@@ -88,7 +88,8 @@ def derive(model: Model, order: int | None = None, *, compare_exact: bool = True
         check_exact_size(model, [])      # the ModelError that says why
     if model.lattice.infinite:       # linked-cluster expansion (jobs/lattice.py)
         from lowfold.jobs.lattice import derive_infinite
-        return derive_infinite(model, order, progress=progress)
+        return derive_infinite(model, order, progress=progress, compare_exact=compare_exact,
+                               check_levels=check_levels, fit_scaling=fit_scaling)
     say = progress or (lambda message: None)
     spec = model.perturbation
     if spec is None:

@@ -25,6 +25,7 @@ with ``repr`` (shortest round trip), so reading the file back gives the same flo
 from __future__ import annotations
 
 import json
+import math
 from pathlib import Path
 
 import numpy as np
@@ -164,6 +165,9 @@ def _class_groups(classes, lattice):
     """One group per coupling class: bond classes and cycles by name, else a pattern of the
     member at the class's positions."""
     out = []
+    if getattr(lattice, "infinite", False):   # patterns are read on a patch holding the members
+        reach = max([abs(float(x)) for c in classes for p in c.positions for x in p] or [0.0])
+        lattice = lattice.patch(2 * math.ceil(reach) + 3)
     coords = np.asarray(lattice.coordinates)
     for c in classes:
         if c.kind == "constant":

@@ -310,8 +310,10 @@ def series_infinite(model: Model, order: int | None = None, *, state: str | None
 
 
 def derive_infinite(model: Model, order: int | None = None, *, prune: bool = True,
-                    progress=None) -> EffectiveModel:
-    """The effective spin-1/2 model of an infinite lattice as coupling classes."""
+                    progress=None, compare_exact: bool = False, check_levels=8,
+                    fit_scaling: bool = False) -> EffectiveModel:
+    """The effective spin-1/2 model of an infinite lattice as coupling classes; with
+    ``compare_exact``, checked on a periodic cluster (:mod:`lowfold.jobs.lattice_check`)."""
     if model.perturbation is None:
         model.unperturbed_labels
     order = validate_order(model.perturbation.order if order is None else order, maximum=MAX_ORDER)
@@ -324,7 +326,12 @@ def derive_infinite(model: Model, order: int | None = None, *, prune: bool = Tru
     note = (f"infinite lattice: linked-cluster expansion, {run.total.clusters} clusters per "
             f"unit cell, {run.total.distinct} distinct graphs computed")
     notes = (note,) if run.filling_note is None else (note, run.filling_note)
-    return EffectiveModel(order, summary, warnings=notes, model=model, classes=classes)
+    result = EffectiveModel(order, summary, warnings=notes, model=model, classes=classes)
+    if compare_exact:
+        from lowfold.jobs.lattice_check import attach_check
+        result = attach_check(result, levels=check_levels, fit_scaling=fit_scaling,
+                              progress=progress)
+    return result
 
 
 def read_classes(run: LinkedClusterRun, order: int, model: Model | None = None

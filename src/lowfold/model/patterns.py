@@ -32,6 +32,9 @@ def _is_int(x) -> bool:
 def translated_pattern(pattern, lattice, *, where: str = "pattern") -> list[tuple[int, ...]]:
     """Site groups of ``pattern`` translated over ``lattice`` (see the module docstring).
 
+    An infinite lattice (no sites of its own, as for bond classes) gives no group; its
+    pattern is checked against the unit cell.
+
     Raises
     ------
     ModelError
@@ -40,6 +43,9 @@ def translated_pattern(pattern, lattice, *, where: str = "pattern") -> list[tupl
     """
     if lattice.shape == "graph":
         raise ModelError(f"{where}: a graph lattice has no translations; list the sites")
+    if getattr(lattice, "infinite", False):      # no sites of its own: checked, none placed
+        _members(pattern, len(lattice.translations), len(lattice.unit_cell), where)
+        return []
     dim = len(lattice.size)
     n_basis = lattice.n_sites // math.prod(lattice.size)
     members = _members(pattern, dim, n_basis, where)

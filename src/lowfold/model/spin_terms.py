@@ -86,8 +86,8 @@ def term_groups(term, lattice) -> list[tuple[int, ...]]:
         return [tuple(int(x) for x in b) for b in lattice.bonds(term.bonds or "nearest")]
     if chosen == "pattern":
         groups = translated_pattern(term.pattern, lattice, where=f"term {term.label!r}")
-        if len(groups[0]) != width:
-            raise ModelError(f"term {term.label!r}: the pattern has {len(groups[0])} sites, "
+        if len(term.pattern) != width:
+            raise ModelError(f"term {term.label!r}: the pattern has {len(term.pattern)} sites, "
                              f"the term acts on {width}")
         return _distinct_groups(term, groups)
     return _explicit_groups(term, lattice, width)

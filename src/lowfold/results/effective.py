@@ -165,6 +165,10 @@ class DeriveCheck:
     ``requested`` is the number of lowest levels asked for per block (or ``"all"``);
     ``blocks`` says per block how many were compared; ``ground_state_error`` is the error
     of the lowest level of the whole manifold at each order (it is always compared).
+    ``cluster`` names the periodic cluster of the check of an infinite lattice's couplings
+    (``lowfold.jobs.lattice_check``; None for a finite cluster, and then not in the JSON);
+    ``winding_loop`` is the number of bonds of the shortest loop around that cluster (orders
+    from it on are not compared).
     """
 
     exact: tuple[float, ...]
@@ -172,6 +176,8 @@ class DeriveCheck:
     requested: int | str = "all"
     blocks: tuple[CheckedBlock, ...] = ()
     ground_state_error: Mapping[int, float] = field(default_factory=dict)
+    cluster: str | None = None
+    winding_loop: int | None = None
 
     @property
     def compared(self) -> int:
@@ -189,13 +195,17 @@ class DeriveCheck:
                 "(all in blocks with fewer), the ground state among them")
 
     def to_dict(self) -> dict:
-        return {"exact": [float(e) for e in self.exact],
-                "by_order": {str(m): {"max_abs_error": float(e)}
-                             for m, e in self.max_abs_error.items()},
-                "ground_state_error": {str(m): float(e)
-                                       for m, e in self.ground_state_error.items()},
-                "levels": {"requested": self.requested,
-                           "blocks": [b.to_dict() for b in self.blocks]}}
+        out = {"exact": [float(e) for e in self.exact],
+               "by_order": {str(m): {"max_abs_error": float(e)}
+                            for m, e in self.max_abs_error.items()},
+               "ground_state_error": {str(m): float(e)
+                                      for m, e in self.ground_state_error.items()},
+               "levels": {"requested": self.requested,
+                          "blocks": [b.to_dict() for b in self.blocks]}}
+        if self.cluster is not None:
+            out["cluster"] = self.cluster
+            out["winding_loop"] = None if self.winding_loop is None else int(self.winding_loop)
+        return out
 
     @classmethod
     def from_dict(cls, data: Mapping) -> "DeriveCheck":
@@ -206,7 +216,8 @@ class DeriveCheck:
                    levels.get("requested", "all"),
                    tuple(CheckedBlock.from_dict(b) for b in levels.get("blocks", ())),
                    {m: float(v) for m, v in
-                    orders_from_json(data.get("ground_state_error") or {}).items()})
+                    orders_from_json(data.get("ground_state_error") or {}).items()},
+                   data.get("cluster"), data.get("winding_loop"))
 
 
 @dataclass(frozen=True)
