@@ -17,6 +17,7 @@ import numba
 import numpy as np
 import pytest
 import scipy.linalg as la
+from scipy.sparse.linalg import eigsh
 
 import lowfold
 from helpers.cli import one_line_error, run
@@ -108,6 +109,19 @@ def test_product_spectrum_and_vectors_equal_dense(case):
     residual = matrix @ found.vectors - found.vectors * found.energies
     assert np.abs(residual).max() < 1e-7
     np.testing.assert_allclose(found.vectors.T @ found.vectors, np.eye(3), atol=1e-9)
+
+
+def test_degenerate_levels_come_with_their_multiplicity():
+    # the 8-site ring: levels at momenta +k and -k are degenerate pairs, which one Krylov
+    # space would give once; the product Lanczos finds them one by one by deflation
+    model = cluster_model("chain", [8], "periodic", 8, 0, "", t=1.0, U=4.0)
+    matrix = Hamiltonian.of(model).to_csr()
+    reference = np.sort(eigsh(matrix, k=10, which="SA", ncv=40, tol=0,
+                              return_eigenvectors=False))[:6]
+    assert np.min(np.diff(reference)) < 1e-9                 # a degenerate pair among them
+    found = lowfold.spectrum(model, levels=6)
+    assert found.method == "product"
+    np.testing.assert_allclose(found.energies, reference, rtol=0, atol=1e-9)
 
 
 # --------------------------------------------------------------------------------------

@@ -148,6 +148,10 @@ class ProductHamiltonian:
                                     float(beta), _tile(*self.shape2d, out.itemsize))
             return float(kernels.inner_real(x, out))
 
+    def diagonal(self) -> np.ndarray:
+        """``<i|H|i>`` in the order of the two-species basis (a flat view of :attr:`diag`)."""
+        return self.diag.reshape(-1)
+
     def matvec(self, x: np.ndarray) -> np.ndarray:
         """``H x`` for a flat vector of the two-species basis (a new array)."""
         psi = np.ascontiguousarray(np.asarray(x).reshape(self.shape2d), dtype=self.dtype)
