@@ -126,7 +126,10 @@ class ProductHamiltonian:
         t_up, d_up, t_dn, d_dn, up, dn = _species_matrices(model, operator)
         dtype = np.result_type(operator.dtype, t_up.dtype, t_dn.dtype, np.float64)
         diag = _diagonal(operator, up, dn, n)
-        diag += d_up.real[None, :] + d_dn.real[:, None]
+        if np.any(d_up):
+            diag += d_up.real[None, :]           # in place: no temporary of the sector's size
+        if np.any(d_dn):
+            diag += d_dn.real[:, None]
         return cls(t_up.astype(dtype), t_dn.astype(dtype), up, dn, diag, np.dtype(dtype), n)
 
     @property
