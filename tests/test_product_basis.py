@@ -124,6 +124,24 @@ def test_degenerate_levels_come_with_their_multiplicity():
     np.testing.assert_allclose(found.energies, reference, rtol=0, atol=1e-9)
 
 
+def test_h0_plus_scaled_v_equals_the_model_at_scaled_couplings():
+    # what the exact check of derive needs: H0 + lambda V from the two sets of terms
+    text = hubbard_text("square", [3, 2], boundary="open", t=0.7, U=3.1, particles=6, sz=0,
+                        order=2, terms=POTENTIAL)
+    model = model_of(text)
+    h0 = ProductHamiltonian.of(model, model.unperturbed_labels)
+    v = ProductHamiltonian.of(model, model.perturbation_labels)
+    h = Hamiltonian.of(model)
+    positions = h.basis.index(h0.encoded_states())
+    csr0 = Hamiltonian.of(model, model.unperturbed_labels).to_csr()[positions][:, positions]
+    csr_v = Hamiltonian.of(model, model.perturbation_labels).to_csr()[positions][:, positions]
+    combined = h0.plus(v, 0.64)
+    assert abs(combined.to_csr() - (csr0 + 0.64 * csr_v)).max() < 1e-13
+    x = np.random.default_rng(4).standard_normal(combined.size)
+    np.testing.assert_allclose(combined.matvec(x), (csr0 + 0.64 * csr_v) @ x, atol=1e-12)
+    np.testing.assert_allclose(combined.diagonal(), (csr0 + 0.64 * csr_v).diagonal())
+
+
 # --------------------------------------------------------------------------------------
 # free fermions at U = 0
 

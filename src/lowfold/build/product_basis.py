@@ -151,6 +151,21 @@ class ProductHamiltonian:
                                     float(beta), _tile(*self.shape2d, out.itemsize))
             return float(kernels.inner_real(x, out))
 
+    def plus(self, other: "ProductHamiltonian", factor: float = 1.0) -> "ProductHamiltonian":
+        """``self + factor * other`` on the same sector (``H0 + lambda V`` from the terms of
+        H0 and of V, as the exact check of ``derive`` scales them); a new diagonal is made."""
+        if self.shape2d != other.shape2d or self.n_sites != other.n_sites:
+            raise ModelError("the two product-basis Hamiltonians live on different sectors")
+        dtype = np.result_type(self.dtype, other.dtype)
+        t_up = (self.t_up + factor * other.t_up).astype(dtype).tocsr()
+        t_dn = (self.t_dn + factor * other.t_dn).astype(dtype).tocsr()
+        for t in (t_up, t_dn):
+            t.sort_indices()
+            t.indptr, t.indices = t.indptr.astype(np.int64), t.indices.astype(np.int64)
+        diag = self.diag + factor * other.diag
+        return ProductHamiltonian(t_up, t_dn, self.up_states, self.dn_states, diag,
+                                  np.dtype(dtype), self.n_sites)
+
     def diagonal(self) -> np.ndarray:
         """``<i|H|i>`` in the order of the two-species basis (a flat view of :attr:`diag`)."""
         return self.diag.reshape(-1)
