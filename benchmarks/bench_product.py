@@ -78,12 +78,13 @@ def run_product(shape: str, size: list) -> dict:
     model = lowfold_model(shape, size)
     if not wants_product(model, "auto"):
         raise SystemExit("the auto route does not take the product basis for this model")
-    start = time.perf_counter()
+    start, cpu = time.perf_counter(), time.process_time()
     hamiltonian = ProductHamiltonian.of(model)
     built = time.perf_counter()
     found = product_lowest(hamiltonian, 1)
     done = time.perf_counter()
     return {"states": hamiltonian.size, "method": "product", "total_s": done - start,
+            "cpu_s": time.process_time() - cpu,
             "build_s": built - start, "ground_state_s": done - built,
             "steps": int(found.steps[0]), "matvecs": int(found.matvecs),
             "energies": [float(e) for e in found.energies]}
@@ -95,7 +96,7 @@ def run_quspin(L: int) -> dict:
     from quspin.operators import hamiltonian
     from scipy.sparse.linalg import eigsh
 
-    start = time.perf_counter()
+    start, cpu = time.perf_counter(), time.process_time()
     bonds = [(i, (i + 1) % L) for i in range(L)]
     basis = spinful_fermion_basis_1d(L, Nf=(L // 2, L // 2))
     hop = [[-1.0, i, j] for i, j in bonds] + [[-1.0, j, i] for i, j in bonds]
@@ -107,6 +108,7 @@ def run_quspin(L: int) -> dict:
     energies = eigsh(matrix, k=1, which="SA", v0=v0, ncv=20, tol=0, return_eigenvectors=False)
     done = time.perf_counter()
     return {"states": int(basis.Ns), "nnz": int(matrix.nnz), "total_s": done - start,
+            "cpu_s": time.process_time() - cpu,
             "build_s": built - start, "ground_state_s": done - built,
             "energies": [float(e) for e in energies]}
 
@@ -154,13 +156,15 @@ def summarise(results: list[dict]) -> list[dict]:
             continue
         q = quspin.get(r["cluster"], {})
         row = {"cluster": r["cluster"], "states": r.get("states"), "error": r.get("error"),
-               "total_s": r.get("total_s"), "build_s": r.get("build_s"),
+               "total_s": r.get("total_s"), "cpu_s": r.get("cpu_s"), "build_s": r.get("build_s"),
                "ground_state_s": r.get("ground_state_s"), "steps": r.get("steps"),
                "peak_mb": r.get("peak_mb"), "energy": (r.get("energies") or [None])[0],
-               "quspin_total_s": q.get("total_s"), "quspin_peak_mb": q.get("peak_mb"),
+               "quspin_total_s": q.get("total_s"), "quspin_cpu_s": q.get("cpu_s"),
+               "quspin_peak_mb": q.get("peak_mb"), "load": r.get("load"),
                "quspin_error": next((x.get("error") for x in results if x["tool"] == "quspin"
                                      and x["cluster"] == r["cluster"] and "error" in x), None)}
         row["speedup"] = (q["total_s"] / r["total_s"]) if q and r.get("total_s") else None
+        row["cpu_speedup"] = (q["cpu_s"] / r["cpu_s"]) if q.get("cpu_s") and r.get("cpu_s") else None
         row["energy_difference"] = (abs(q["energies"][0] - row["energy"])
                                     if q and row["energy"] is not None else None)
         rows.append(row)
@@ -172,9 +176,9 @@ def fmt(value, spec):
 
 
 def print_table(rows: list[dict]) -> None:
-    header = (f"{'cluster':<10} {'states':>12} {'total s':>8} {'build s':>8} {'Lanczos s':>9} "
-              f"{'steps':>5} {'peak MB':>8} {'QuSpin s':>9} {'QuSpin MB':>9} {'x':>6} {'dE':>8}"
-              f"  {'E0':>16}")
+    header = (f"{'cluster':<10} {'states':>12} {'total s':>8} {'CPU s':>8} {'build s':>8} "
+              f"{'Lanczos s':>9} {'steps':>5} {'peak MB':>8} {'QuSpin s':>9} {'CPU s':>8} "
+              f"{'QuSpin MB':>9} {'x':>6} {'x CPU':>6} {'dE':>8} {'load':>5}  {'E0':>16}")
     print(header)
     print("-" * len(header))
     for r in rows:
@@ -182,13 +186,17 @@ def print_table(rows: list[dict]) -> None:
             print(f"{r['cluster']:<10} error: {r['error']}")
             continue
         print(f"{r['cluster']:<10} {r['states']:>12,} {fmt(r['total_s'], '.2f'):>8} "
-              f"{fmt(r['build_s'], '.2f'):>8} {fmt(r['ground_state_s'], '.2f'):>9} "
-              f"{fmt(r['steps'], 'd'):>5} {fmt(r['peak_mb'], '.0f'):>8} "
-              f"{fmt(r['quspin_total_s'], '.2f'):>9} {fmt(r['quspin_peak_mb'], '.0f'):>9} "
-              f"{fmt(r['speedup'], '.2f'):>6} {fmt(r['energy_difference'], '.1e'):>8}"
+              f"{fmt(r['cpu_s'], '.2f'):>8} {fmt(r['build_s'], '.2f'):>8} "
+              f"{fmt(r['ground_state_s'], '.2f'):>9} {fmt(r['steps'], 'd'):>5} "
+              f"{fmt(r['peak_mb'], '.0f'):>8} {fmt(r['quspin_total_s'], '.2f'):>9} "
+              f"{fmt(r['quspin_cpu_s'], '.2f'):>8} {fmt(r['quspin_peak_mb'], '.0f'):>9} "
+              f"{fmt(r['speedup'], '.2f'):>6} {fmt(r['cpu_speedup'], '.2f'):>6} "
+              f"{fmt(r['energy_difference'], '.1e'):>8} {fmt(r['load'], '.1f'):>5}"
               f"  {fmt(r['energy'], '.10f'):>16}")
         if r["quspin_error"]:
             print(f"{'':<10} QuSpin: {r['quspin_error']}")
+    print("CPU s: process time of all threads (the machine is shared: wall time / CPU time "
+          "shows the contention; load: 1-min load average after the run)")
     print("total s: build + Lanczos of the product route (lowfold.spectrum's auto route); x = QuSpin total / lowfold total "
           "(same run); peak MB: ru_maxrss of the child")
 

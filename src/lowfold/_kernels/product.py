@@ -23,7 +23,8 @@ from numba import njit, prange
 
 @njit(cache=True, parallel=True)
 def lanczos_product(diag, a_ptr, a_idx, a_val, b_ptr, b_idx, b_val, x, out, beta, tile):
-    """``out <- H x - beta out`` (``out`` not read when ``beta == 0``)."""
+    """``out <- H x - beta out`` (``out`` not read when ``beta == 0``); returns
+    ``Re x^H out`` (the Lanczos alpha), summed tile by tile while the tile is in cache."""
     size_b, size_a = x.shape
     for r in prange(size_b):
         for u in range(size_a):
@@ -33,24 +34,21 @@ def lanczos_product(diag, a_ptr, a_idx, a_val, b_ptr, b_idx, b_val, x, out, beta
             if beta != 0.0:
                 acc -= beta * out[r, u]
             out[r, u] = acc
+    total = 0.0
     for start in range(0, size_a, tile):
         stop = min(start + tile, size_a)
+        part = 0.0
         for r in prange(size_b):
             for p in range(b_ptr[r], b_ptr[r + 1]):
                 value = b_val[p]
                 c = b_idx[p]
                 for u in range(start, stop):
                     out[r, u] += value * x[c, u]
-
-
-@njit(cache=True, parallel=True)
-def inner_real(x, y):
-    """``Re x^H y`` (flattened views)."""
-    a = x.reshape(-1)
-    b = y.reshape(-1)
-    total = 0.0
-    for i in prange(a.shape[0]):
-        total += (np.conj(a[i]) * b[i]).real
+            local = 0.0
+            for u in range(start, stop):
+                local += (np.conj(x[r, u]) * out[r, u]).real
+            part += local
+        total += part
     return total
 
 

@@ -146,10 +146,9 @@ class ProductHamiltonian:
         ``Re x^H out`` (the Lanczos alpha)."""
         t_up, t_dn = self.t_up, self.t_dn
         with product_threads(self.size):
-            kernels.lanczos_product(self.diag, t_up.indptr, t_up.indices, t_up.data,
-                                    t_dn.indptr, t_dn.indices, t_dn.data, x, out,
-                                    float(beta), _tile(*self.shape2d, out.itemsize))
-            return float(kernels.inner_real(x, out))
+            return float(kernels.lanczos_product(
+                self.diag, t_up.indptr, t_up.indices, t_up.data, t_dn.indptr, t_dn.indices,
+                t_dn.data, x, out, float(beta), _tile(*self.shape2d, out.itemsize)))
 
     def plus(self, other: "ProductHamiltonian", factor: float = 1.0) -> "ProductHamiltonian":
         """``self + factor * other`` on the same sector (``H0 + lambda V`` from the terms of
