@@ -80,7 +80,7 @@ def test_the_basis_order_is_the_product_order():
 
 def test_parallel_tiled_kernel_matches_the_matrix():
     # the numba kernel on two threads with tiles narrower than a row, and the two-vector
-    # recurrence form out <- H x - beta out
+    # recurrence form out <- s H x - beta out with the Lanczos alpha x . out
     product, csr = permuted_csr(cluster_model("square", [3, 2], "open", 6, 0, INTERACTION))
     rng = np.random.default_rng(8)
     x = rng.standard_normal(product.shape2d)
@@ -90,12 +90,14 @@ def test_parallel_tiled_kernel_matches_the_matrix():
     numba.set_num_threads(min(2, numba.config.NUMBA_NUM_THREADS))
     try:
         t_up, t_dn = product.t_up, product.t_dn
-        kernels.lanczos_product(product.diag, t_up.indptr, t_up.indices, t_up.data, t_dn.indptr,
-                                t_dn.indices, t_dn.data, x, out, 0.75, 3)
+        alpha = kernels.lanczos_product(product.diag, t_up.indptr, t_up.indices, t_up.data,
+                                        t_dn.indptr, t_dn.indices, t_dn.data, x, 1.3, out,
+                                        0.75, 3)
     finally:
         numba.set_num_threads(previous)
-    expected = (csr @ x.reshape(-1)) - 0.75 * old.reshape(-1)
+    expected = 1.3 * (csr @ x.reshape(-1)) - 0.75 * old.reshape(-1)
     np.testing.assert_allclose(out.reshape(-1), expected, rtol=0, atol=1e-12)
+    assert abs(alpha - x.reshape(-1) @ expected) < 1e-10
 
 
 @pytest.mark.parametrize("case", CLUSTERS[:6], ids=lambda c: f"{c[0]}{c[1]}-N{c[3]}")

@@ -22,15 +22,18 @@ from numba import njit, prange
 
 
 @njit(cache=True, parallel=True)
-def lanczos_product(diag, a_ptr, a_idx, a_val, b_ptr, b_idx, b_val, x, out, beta, tile):
-    """``out <- H x - beta out`` (``out`` not read when ``beta == 0``); returns
-    ``Re x^H out`` (the Lanczos alpha), summed tile by tile while the tile is in cache."""
+def lanczos_product(diag, a_ptr, a_idx, a_val, b_ptr, b_idx, b_val, x, x_scale, out, beta,
+                    tile):
+    """``out <- x_scale H x - beta out`` (``out`` not read when ``beta == 0``); returns
+    ``Re x^H out`` (``x`` as stored), summed tile by tile while the tile is in cache.
+    ``x_scale`` lets the Lanczos keep its vectors unnormalised (no sweep to scale them)."""
     size_b, size_a = x.shape
     for r in prange(size_b):
         for u in range(size_a):
             acc = diag[r, u] * x[r, u]
             for p in range(a_ptr[u], a_ptr[u + 1]):
                 acc += a_val[p] * x[r, a_idx[p]]
+            acc = x_scale * acc
             if beta != 0.0:
                 acc -= beta * out[r, u]
             out[r, u] = acc
@@ -40,7 +43,7 @@ def lanczos_product(diag, a_ptr, a_idx, a_val, b_ptr, b_idx, b_val, x, out, beta
         part = 0.0
         for r in prange(size_b):
             for p in range(b_ptr[r], b_ptr[r + 1]):
-                value = b_val[p]
+                value = x_scale * b_val[p]
                 c = b_idx[p]
                 for u in range(start, stop):
                     out[r, u] += value * x[c, u]

@@ -141,14 +141,16 @@ class ProductHamiltonian:
     def size(self) -> int:
         return int(self.diag.size)
 
-    def product_into(self, x: np.ndarray, out: np.ndarray, beta: float = 0.0) -> float:
-        """``out <- H x - beta out`` on wave functions of shape :attr:`shape2d`; returns
-        ``Re x^H out`` (the Lanczos alpha)."""
+    def product_into(self, x: np.ndarray, out: np.ndarray, beta: float = 0.0,
+                     x_scale: float = 1.0) -> float:
+        """``out <- x_scale H x - beta out`` on wave functions of shape :attr:`shape2d`;
+        returns ``Re x^H out`` (``x`` as given, without ``x_scale``)."""
         t_up, t_dn = self.t_up, self.t_dn
         with product_threads(self.size):
             return float(kernels.lanczos_product(
                 self.diag, t_up.indptr, t_up.indices, t_up.data, t_dn.indptr, t_dn.indices,
-                t_dn.data, x, out, float(beta), _tile(*self.shape2d, out.itemsize)))
+                t_dn.data, x, float(x_scale), out, float(beta),
+                _tile(*self.shape2d, out.itemsize)))
 
     def plus(self, other: "ProductHamiltonian", factor: float = 1.0) -> "ProductHamiltonian":
         """``self + factor * other`` on the same sector (``H0 + lambda V`` from the terms of

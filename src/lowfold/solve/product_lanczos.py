@@ -57,9 +57,9 @@ class _Lanczos:
         self.say = say
         self.count = 0
 
-    def product(self, x, out, beta=0.0) -> float:
+    def product(self, x, out, beta=0.0, x_scale=1.0) -> float:
         self.count += 1
-        return self.h.product_into(x, out, beta)
+        return self.h.product_into(x, out, beta, x_scale)
 
     def deflate(self, w) -> None:
         """Remove the locked levels from ``w`` (twice: Kahan's rule, Parlett 1980)."""
@@ -67,30 +67,33 @@ class _Lanczos:
             for y in self.locked:
                 kernels.add_scaled(w, y, -np.vdot(y.reshape(-1), w.reshape(-1)))
 
-    def normalise(self, w) -> float:
-        norm = float(np.sqrt(kernels.subtract_norm(w, w, 0.0)))
-        if norm == 0 or not np.isfinite(norm):
-            raise ModelError("the start vector vanishes on the space still to be searched")
-        kernels.scale(w, 1.0 / norm)
-        return norm
+    def norm(self, w) -> float:
+        return float(np.sqrt(max(kernels.subtract_norm(w, w, 0.0), 0.0)))
 
-    def start(self, seed: int, out: np.ndarray) -> np.ndarray:
-        """A random unit wave function (deflated) from ``seed``, written into ``out``."""
+    def start(self, seed: int, out: np.ndarray) -> float:
+        """A random wave function (deflated) from ``seed``, written into ``out``; returns
+        the factor that normalises it (the vector itself is not scaled)."""
         gen = np.random.default_rng(seed)
         gen.standard_normal(out=out.view(np.float64))
         self.deflate(out)
-        self.normalise(out)
-        return out
+        norm = self.norm(out)
+        if norm == 0 or not np.isfinite(norm):
+            raise ModelError("the start vector vanishes on the space still to be searched")
+        return 1.0 / norm
 
-    def first_pass(self, v, w, *, tol: float, maxiter: int):
-        """Recurrence from ``v`` until the lowest Ritz pair converges: ``(energy, ritz,
-        alphas, betas)``; ``v`` and ``w`` are overwritten."""
+    def first_pass(self, v, v_scale, w, *, tol: float, maxiter: int):
+        """Recurrence from ``v_scale * v`` until the lowest Ritz pair converges: ``(energy,
+        ritz, alphas, betas, scale)``; ``v`` and ``w`` are overwritten.
+
+        Vectors are kept unnormalised, each with its factor: the true Lanczos vector is
+        ``v_scale * v`` and the previous one ``w_scale * w``; the product folds the factors
+        in, so no sweep scales a vector."""
         alphas, betas = [], []
-        beta, scale, theta = 0.0, np.finfo(float).tiny, np.nan
+        beta, w_scale, scale, theta = 0.0, 0.0, np.finfo(float).tiny, np.nan
         residual = np.inf
         for step in range(maxiter):
-            alpha = self.product(v, w, beta)
-            squared = kernels.subtract_norm(w, v, alpha)
+            alpha = v_scale * self.product(v, w, beta * w_scale, v_scale)
+            squared = kernels.subtract_norm(w, v, alpha * v_scale)
             if self.locked:
                 self.deflate(w)
                 squared = kernels.subtract_norm(w, w, 0.0)
@@ -104,28 +107,26 @@ class _Lanczos:
                 self.say(f"Lanczos step {step + 1}: E = {theta:.12g}, residual {residual:.1e}")
             if residual <= tol * scale or beta <= 8 * np.finfo(float).eps * scale:
                 return theta, ritz, np.array(alphas), np.array(betas), scale
-            kernels.scale(w, 1.0 / beta)
-            v, w = w, v
+            v, w, v_scale, w_scale = w, v, 1.0 / beta, v_scale
         raise ConvergenceError(
             f"Lanczos did not converge in {maxiter} steps (lowest Ritz value {theta:.12g}, "
             f"residual {residual:.3g} > {tol:.1e} x {scale:.3g})", partial=np.array([theta]))
 
-    def second_pass(self, v, w, y, ritz, alphas, betas) -> None:
-        """``y <- sum_j ritz[j] v_j`` by the recurrence from ``v`` (the start) with the
-        known coefficients, normalised; ``v`` and ``w`` are overwritten."""
+    def second_pass(self, v, v_scale, w, y, ritz, alphas, betas) -> None:
+        """``y <- sum_j ritz[j] v_j`` by the recurrence from ``v_scale * v`` (the start)
+        with the known coefficients, normalised; ``v`` and ``w`` are overwritten."""
         y[...] = v
-        kernels.scale(y, ritz[0])
-        beta = 0.0
+        kernels.scale(y, ritz[0] * v_scale)
+        beta, w_scale = 0.0, 0.0
         for j in range(alphas.size - 1):
-            self.product(v, w, beta)
-            kernels.subtract_norm(w, v, alphas[j])
+            self.product(v, w, beta * w_scale, v_scale)
+            kernels.subtract_norm(w, v, alphas[j] * v_scale)
             self.deflate(w)
-            kernels.scale(w, 1.0 / betas[j])
-            kernels.add_scaled(y, w, ritz[j + 1])
             beta = betas[j]
-            v, w = w, v
+            kernels.add_scaled(y, w, ritz[j + 1] / beta)
+            v, w, v_scale, w_scale = w, v, 1.0 / beta, v_scale
         self.deflate(y)
-        self.normalise(y)
+        kernels.scale(y, 1.0 / self.norm(y))
 
     def residual(self, y, scratch) -> tuple[float, float]:
         """``(Rayleigh quotient, ||H y - E y||)`` of the unit wave function ``y``."""
@@ -176,10 +177,10 @@ def _lowest(hamiltonian, levels, vectors, tol, maxiter, seed, say) -> ProductLan
         level_seed = int(rng.integers(2**63))
         v, w = np.empty(shape, dtype=dtype), np.empty(shape, dtype=dtype)
         energy, ritz, alphas, betas, scale = solver.first_pass(
-            solver.start(level_seed, v), w, tol=tol, maxiter=maxiter)
+            v, solver.start(level_seed, v), w, tol=tol, maxiter=maxiter)
         if level < kept:
             y = columns[:, level].reshape(shape)
-            solver.second_pass(solver.start(level_seed, v), w, y, ritz, alphas, betas)
+            solver.second_pass(v, solver.start(level_seed, v), w, y, ritz, alphas, betas)
             energy, residual = solver.residual(y, w)
             if residual > 10 * tol * scale:
                 raise ConvergenceError(
