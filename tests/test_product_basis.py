@@ -142,6 +142,11 @@ def test_h0_plus_scaled_v_equals_the_model_at_scaled_couplings():
     x = np.random.default_rng(4).standard_normal(combined.size)
     np.testing.assert_allclose(combined.matvec(x), (csr0 + 0.64 * csr_v) @ x, atol=1e-12)
     np.testing.assert_allclose(combined.diagonal(), (csr0 + 0.64 * csr_v).diagonal())
+    operator = combined.as_linear_operator()           # as the check's eigensolvers take it
+    block = np.random.default_rng(5).standard_normal((combined.size, 3))
+    np.testing.assert_allclose(operator @ block, (csr0 + 0.64 * csr_v) @ block, atol=1e-12)
+    np.testing.assert_allclose(operator.toarray(), (csr0 + 0.64 * csr_v).toarray(), atol=1e-13)
+    np.testing.assert_allclose(operator.diagonal(), combined.diagonal())
 
 
 # --------------------------------------------------------------------------------------

@@ -36,8 +36,8 @@ from lowfold.errors import ModelError
 from lowfold.model.model import Model
 from lowfold.model.sector import sector_totals
 
-__all__ = ["ProductHamiltonian", "product_species", "product_route_reason", "product_size",
-           "check_product_hermitian", "product_threads"]
+__all__ = ["ProductHamiltonian", "ProductOperator", "product_species", "product_route_reason",
+           "product_size", "check_product_hermitian", "product_threads"]
 
 CACHE_BLOCK = 16 << 20     # bytes of one column tile of Psi (all rows), kept in cache
 _DIAGONAL_CHUNK = 1 << 22  # encoded states made at once while the diagonal is filled
@@ -178,9 +178,11 @@ class ProductHamiltonian:
         self.product_into(psi, out)
         return out.reshape(np.shape(x))
 
-    def as_linear_operator(self) -> LinearOperator:
-        """H as a ``LinearOperator`` on flat vectors of the two-species basis."""
-        return LinearOperator((self.size, self.size), matvec=self.matvec, dtype=self.dtype)
+    def as_linear_operator(self) -> "ProductOperator":
+        """H as a ``LinearOperator`` on flat vectors of the two-species basis, with the
+        ``diagonal()`` and ``toarray()`` of a sparse matrix (what the eigensolvers of the
+        exact check ask of their matrix)."""
+        return ProductOperator(self)
 
     def to_csr(self) -> sp.csr_matrix:
         """The CSR matrix in the two-species basis order (small sectors: tests)."""
@@ -192,6 +194,30 @@ class ProductHamiltonian:
     def encoded_states(self) -> np.ndarray:
         """The encoded states in wave-function order, ``up + (down << L)`` (small sectors)."""
         return (self.up_states[None, :] + (self.dn_states[:, None] << self.n_sites)).reshape(-1)
+
+
+class ProductOperator(LinearOperator):
+    """A :class:`ProductHamiltonian` as a scipy ``LinearOperator`` on flat vectors."""
+
+    def __init__(self, hamiltonian: ProductHamiltonian):
+        super().__init__(dtype=hamiltonian.dtype, shape=(hamiltonian.size, hamiltonian.size))
+        self.hamiltonian = hamiltonian
+
+    def _matvec(self, x):
+        return self.hamiltonian.matvec(np.asarray(x).reshape(-1))
+
+    def _matmat(self, block):
+        block = np.asarray(block)
+        return np.column_stack([self._matvec(block[:, j]) for j in range(block.shape[1])])
+
+    def _adjoint(self):
+        return self                                   # H is Hermitian (checked on reading)
+
+    def diagonal(self) -> np.ndarray:
+        return self.hamiltonian.diagonal()
+
+    def toarray(self) -> np.ndarray:
+        return self.hamiltonian.to_csr().toarray()
 
 
 def check_product_hermitian(model: Model, labels=None) -> None:
