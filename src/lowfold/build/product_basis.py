@@ -37,7 +37,8 @@ from lowfold.model.model import Model
 from lowfold.model.sector import sector_totals
 
 __all__ = ["ProductHamiltonian", "ProductOperator", "product_species", "product_route_reason",
-           "product_size", "check_product_hermitian", "product_threads"]
+           "product_size", "check_product_hermitian", "product_threads", "subtract_and_norm",
+           "add_scaled", "scale"]
 
 CACHE_BLOCK = 16 << 20     # bytes of one column tile of Psi (all rows), kept in cache
 _DIAGONAL_CHUNK = 1 << 22  # encoded states made at once while the diagonal is filled
@@ -194,6 +195,22 @@ class ProductHamiltonian:
     def encoded_states(self) -> np.ndarray:
         """The encoded states in wave-function order, ``up + (down << L)`` (small sectors)."""
         return (self.up_states[None, :] + (self.dn_states[:, None] << self.n_sites)).reshape(-1)
+
+
+def subtract_and_norm(out: np.ndarray, x: np.ndarray, alpha: float) -> float:
+    """``out <- out - alpha x`` on wave functions; returns ``||out||^2`` (for the Lanczos of
+    ``lowfold.solve.product_lanczos``, which reaches the kernels through here)."""
+    return float(kernels.subtract_norm(out, x, alpha))
+
+
+def add_scaled(y: np.ndarray, x: np.ndarray, factor) -> None:
+    """``y <- y + factor x`` on wave functions."""
+    kernels.add_scaled(y, x, factor)
+
+
+def scale(out: np.ndarray, factor: float) -> None:
+    """``out <- factor out`` on a wave function."""
+    kernels.scale(out, factor)
 
 
 class ProductOperator(LinearOperator):

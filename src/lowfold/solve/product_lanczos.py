@@ -22,7 +22,7 @@ from typing import Callable
 import numpy as np
 from scipy.linalg import eigh_tridiagonal
 
-from lowfold._kernels import product as kernels
+from lowfold.build import product_basis as waves
 from lowfold.build.product_basis import ProductHamiltonian, product_threads
 from lowfold.errors import ConvergenceError, ModelError
 
@@ -65,10 +65,10 @@ class _Lanczos:
         """Remove the locked levels from ``w`` (twice: Kahan's rule, Parlett 1980)."""
         for _ in range(2 if self.locked else 0):
             for y in self.locked:
-                kernels.add_scaled(w, y, -np.vdot(y.reshape(-1), w.reshape(-1)))
+                waves.add_scaled(w, y, -np.vdot(y.reshape(-1), w.reshape(-1)))
 
     def norm(self, w) -> float:
-        return float(np.sqrt(max(kernels.subtract_norm(w, w, 0.0), 0.0)))
+        return float(np.sqrt(max(waves.subtract_and_norm(w, w, 0.0), 0.0)))
 
     def start(self, seed: int, out: np.ndarray) -> float:
         """A random wave function (deflated) from ``seed``, written into ``out``; returns
@@ -93,10 +93,10 @@ class _Lanczos:
         residual = np.inf
         for step in range(maxiter):
             alpha = v_scale * self.product(v, w, beta * w_scale, v_scale)
-            squared = kernels.subtract_norm(w, v, alpha * v_scale)
+            squared = waves.subtract_and_norm(w, v, alpha * v_scale)
             if self.locked:
                 self.deflate(w)
-                squared = kernels.subtract_norm(w, w, 0.0)
+                squared = waves.subtract_and_norm(w, w, 0.0)
             beta = float(np.sqrt(max(squared, 0.0)))
             alphas.append(float(alpha))
             betas.append(beta)
@@ -116,23 +116,23 @@ class _Lanczos:
         """``y <- sum_j ritz[j] v_j`` by the recurrence from ``v_scale * v`` (the start)
         with the known coefficients, normalised; ``v`` and ``w`` are overwritten."""
         y[...] = v
-        kernels.scale(y, ritz[0] * v_scale)
+        waves.scale(y, ritz[0] * v_scale)
         beta, w_scale = 0.0, 0.0
         for j in range(alphas.size - 1):
             self.product(v, w, beta * w_scale, v_scale)
-            kernels.subtract_norm(w, v, alphas[j] * v_scale)
+            waves.subtract_and_norm(w, v, alphas[j] * v_scale)
             self.deflate(w)
             beta = betas[j]
-            kernels.add_scaled(y, w, ritz[j + 1] / beta)
+            waves.add_scaled(y, w, ritz[j + 1] / beta)
             v, w, v_scale, w_scale = w, v, 1.0 / beta, v_scale
         self.deflate(y)
-        kernels.scale(y, 1.0 / self.norm(y))
+        waves.scale(y, 1.0 / self.norm(y))
 
     def residual(self, y, scratch) -> tuple[float, float]:
         """``(Rayleigh quotient, ||H y - E y||)`` of the unit wave function ``y``."""
         energy = self.product(y, scratch)
         self.deflate(scratch)
-        return energy, float(np.sqrt(max(kernels.subtract_norm(scratch, y, energy), 0.0)))
+        return energy, float(np.sqrt(max(waves.subtract_and_norm(scratch, y, energy), 0.0)))
 
 
 def _lowest_ritz(alphas, betas):
