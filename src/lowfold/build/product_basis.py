@@ -40,12 +40,10 @@ __all__ = ["ProductHamiltonian", "ProductOperator", "product_species", "product_
            "product_size", "check_product_hermitian", "product_threads", "subtract_and_norm",
            "add_scaled", "scale"]
 
-CACHE_BLOCK = 16 << 20     # bytes of one column tile of Psi (all rows), kept in cache
-_DIAGONAL_CHUNK = 1 << 22  # encoded states made at once while the diagonal is filled
-
-
-PARALLEL_MIN_STATES = 1 << 20   # below this, the sweeps of a step take microseconds and
-                                # waking the thread pool (on shared cores) costs more
+CACHE_BLOCK = 16 << 20           # bytes of one column tile of Psi (all rows), kept in cache
+PARALLEL_MIN_STATES = 1 << 20    # below this, a step's sweeps take microseconds and waking
+                                 # the thread pool (on shared cores) costs more
+_DIAGONAL_CHUNK = 1 << 22        # encoded states made at once while the diagonal is filled
 
 
 @contextlib.contextmanager
