@@ -17,8 +17,10 @@ def spectrum(model: Model, levels: int = 4, *, vectors: bool = False, method: st
              progress: Callable[[str], None] | None = None) -> Spectrum:
     """The ``levels`` lowest energies of the model in its sector.
 
-    ``method``: ``"auto"`` (dense for small spaces, then Lanczos on a CSR matrix if it fits in
-    memory, else matrix-free Lanczos), ``"csr"``, ``"matrix-free"`` or ``"dense"``.  Raises
+    ``method``: ``"auto"`` (dense for small spaces, the product basis for electrons at fixed
+    N_up, N_dn whose terms act on one spin species, else Lanczos on a CSR matrix if it fits
+    in memory, else matrix-free Lanczos), ``"csr"``, ``"matrix-free"``, ``"dense"`` or
+    ``"product"``.  Raises
     ``SizeError`` before building anything that would not fit in ``memory_limit`` bytes
     (default: 80 % of the available memory).  See :func:`lowfold.solve.exact.spectrum`.
     """

@@ -11,11 +11,14 @@ import scipy.sparse as sp
 from scipy.sparse.linalg import ArpackNoConvergence, LinearOperator, eigsh
 
 from lowfold.build.hamiltonian import Hamiltonian
+from lowfold.build.product_basis import ProductHamiltonian, check_product_hermitian
 from lowfold.build.sparse import available_memory
 from lowfold.errors import ConvergenceError, ModelError, SizeError
 from lowfold.model.model import Model
 from lowfold.solve.lanczos import lanczos_lowest
-from lowfold.solve.method import DENSE_LIMIT, METHODS, choose_method, lanczos_bytes, operator_for
+from lowfold.solve.method import (DENSE_LIMIT, METHODS, check_product_memory, choose_method,
+                                  lanczos_bytes, operator_for, wants_product)
+from lowfold.solve.product_lanczos import product_lowest
 
 __all__ = ["SpectrumResult", "lowest_eigenpairs", "spectrum"]
 
@@ -94,8 +97,10 @@ def spectrum(model: Model, levels: int = 4, *, vectors: bool = False, method: st
              progress: Callable[[str], None] | None = None) -> SpectrumResult:
     """The ``levels`` lowest energies of the model in its sector.
 
-    ``method``: ``"auto"`` (dense for small spaces, then Lanczos on a CSR matrix if it fits in
-    memory, else matrix-free Lanczos), ``"csr"``, ``"matrix-free"`` or ``"dense"``.
+    ``method``: ``"auto"`` (dense for small spaces; the product basis for electrons at
+    fixed N_up, N_dn whose terms each act on one spin species; else Lanczos on a CSR matrix
+    if it fits in memory, else matrix-free Lanczos), ``"csr"``, ``"matrix-free"``,
+    ``"dense"`` or ``"product"`` (see ``lowfold.solve.method``).
     Raises ``SizeError`` before building anything that would not fit in ``memory_limit`` bytes
     (default: 80 % of the available memory).
     """
@@ -105,6 +110,8 @@ def spectrum(model: Model, levels: int = 4, *, vectors: bool = False, method: st
         raise ModelError(f"unknown method {method!r}")
     say = progress or (lambda message: None)
     limit = int(0.8 * available_memory()) if memory_limit is None else memory_limit
+    if wants_product(model, method):
+        return _product_spectrum(model, levels, vectors, limit, say)
     hamiltonian = Hamiltonian.of(model, max_states=max(limit // 96, 1))
     vectors_bytes = lanczos_bytes(levels, hamiltonian.size, hamiltonian.dtype)
     if vectors_bytes >= limit:
@@ -122,6 +129,19 @@ def spectrum(model: Model, levels: int = 4, *, vectors: bool = False, method: st
     else:
         energies, vecs = lowest_eigenpairs(matrix, levels, vectors=vectors)
     return SpectrumResult(hamiltonian.size, energies, vecs, chosen)
+
+
+def _product_spectrum(model: Model, levels: int, vectors: bool, limit: int,
+                      say: Callable[[str], None]) -> SpectrumResult:
+    """The lowest levels in the product basis (memory checked before anything is built)."""
+    check_product_memory(model, levels, vectors, limit)
+    check_product_hermitian(model)
+    hamiltonian = ProductHamiltonian.of(model)
+    size = hamiltonian.size
+    say(f"diagonalising ({size:,} states as {hamiltonian.shape2d[0]:,} x "
+        f"{hamiltonian.shape2d[1]:,} product wave functions, {min(levels, size)} levels)")
+    found = product_lowest(hamiltonian, min(levels, size), vectors=vectors, progress=say)
+    return SpectrumResult(size, found.energies, found.vectors, "product")
 
 
 def _dense(matrix, levels, vectors):
