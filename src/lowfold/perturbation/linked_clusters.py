@@ -58,14 +58,35 @@ def canonical_form(n_sites: int, edges) -> tuple[ClusterGraph, list[int]]:
     g.add_edges([(a, n_sites + k) for k, (a, _, _) in enumerate(edges)]
                 + [(b, n_sites + k) for k, (_, b, _) in enumerate(edges)])
     colours = [0] * n_sites + [1 + c for _, _, c in edges]
-    perm = g.canonical_permutation(color=colours)
-    order = sorted(range(n_sites), key=lambda a: perm[a])
+    position = _positions(g.canonical_permutation(color=colours))
+    order = sorted(range(n_sites), key=lambda a: position[a])
     label = [0] * n_sites
     for rank, a in enumerate(order):
         label[a] = rank
     canon = tuple(sorted((min(label[a], label[b]), max(label[a], label[b]), c)
                          for a, b, c in edges))
     return (n_sites, canon), label
+
+
+def _permutes_forward() -> bool:
+    """Whether igraph's ``permute_vertices(perm)`` sends vertex ``v`` to ``perm[v]`` (else
+    new vertex ``i`` is old vertex ``perm[i]``; igraph 1.0 does the latter).  The canonical
+    graph is ``permute_vertices(canonical_permutation(...))`` in either convention."""
+    moved = igraph.Graph(n=3, edges=[(0, 1)]).permute_vertices([2, 0, 1])
+    return {tuple(sorted(e)) for e in moved.get_edgelist()} == {(0, 2)}
+
+
+_FORWARD = _permutes_forward()
+
+
+def _positions(perm) -> list[int]:
+    """Canonical position of each vertex for igraph's canonical permutation ``perm``."""
+    if _FORWARD:
+        return list(perm)
+    position = [0] * len(perm)
+    for new, old in enumerate(perm):
+        position[old] = new
+    return position
 
 
 def connected_edge_sets(adjacent: list[list[int]], seeds, max_edges: int) -> list[frozenset]:
