@@ -148,6 +148,17 @@ def spectrum(model: Path = typer.Argument(..., metavar="MODEL", help="model file
     render.print_spectrum(out, m.title, result)
 
 
+@contextlib.contextmanager
+def _graph_map(scheduler: Optional[str]):
+    """The Dask graph map of ``--scheduler`` (None: the graphs are computed here)."""
+    if scheduler is None:
+        yield None
+        return
+    from lowfold.scans.graphs import scheduler_graph_map
+    with scheduler_graph_map(scheduler) as graph_map:
+        yield graph_map
+
+
 def _parse_check_levels(text: Optional[str]):
     """``--check-levels all|K`` -> ``"all"``, an int, or None (the default)."""
     if text is None:
@@ -173,17 +184,23 @@ def derive(model: Path = typer.Argument(..., metavar="MODEL",
            export: Optional[Path] = typer.Option(None, "--export",
                                                  help="write the effective spin model as a model file"),
            size: Optional[str] = typer.Option(None, "--size", help=_SIZE_HELP),
-           boundary: Optional[str] = typer.Option(None, "--boundary", help=_BOUNDARY_HELP)):
+           boundary: Optional[str] = typer.Option(None, "--boundary", help=_BOUNDARY_HELP),
+           scheduler: Optional[str] = typer.Option(
+               None, "--scheduler", metavar="ADDRESS",
+               help="Dask scheduler (address or scheduler JSON file) for the cluster graphs of an infinite lattice")):
     """Effective low-energy model of MODEL, order by order, checked against exact spectra."""
     levels = _parse_check_levels(check_levels)
     m = _sized(model, size, boundary)
+    if scheduler is not None and not m.lattice.infinite:
+        raise ModelError("--scheduler sends the cluster graphs of an infinite lattice to Dask; "
+                         "this lattice is finite (use lowfold scan for many finite clusters)")
     if export is not None:
         check_writable(export, "--export")
     options = {"order": order, "check": not no_check, "check_scaling": check_scaling}
     if levels is not None:
         options["check_levels"] = levels
-    with _progress(not (json_out or latex)) as progress:
-        result = run_task("derive", m, options, progress=progress)
+    with _progress(not (json_out or latex)) as progress, _graph_map(scheduler) as graph_map:
+        result = run_task("derive", m, options, progress=progress, graph_map=graph_map)
     if export is not None:
         from lowfold.jobs.export import write_export
         try:

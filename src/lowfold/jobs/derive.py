@@ -47,7 +47,8 @@ MAX_WORKING_STATES = 2_000_000  # intermediate states of one block for orders ab
 
 def derive(model: Model, order: int | None = None, *, compare_exact: bool = True,
            fit_scaling: bool = False, check_levels: int | str = DEFAULT_CHECK_LEVELS,
-           progress: Callable[[str], None] | None = None) -> EffectiveModel:
+           progress: Callable[[str], None] | None = None,
+           graph_map: Callable | None = None) -> EffectiveModel:
     """Effective Hamiltonian of ``model`` on the low-energy manifold of H0, order by order.
 
     Parameters
@@ -68,6 +69,9 @@ def derive(model: Model, order: int | None = None, *, compare_exact: bool = True
         How many of the lowest levels of each S^z block the check compares (default 8; every
         level of a block with no more manifold states than that or a dense-sized sector);
         ``"all"`` compares every level of the manifold.  The result's ``check`` says which.
+    graph_map : callable, optional
+        Infinite lattice: how the distinct cluster graphs are computed
+        (:func:`lowfold.jobs.lattice.linked_cluster_sum`; e.g. on Dask).
 
     Returns
     -------
@@ -76,7 +80,7 @@ def derive(model: Model, order: int | None = None, *, compare_exact: bool = True
     """
     if model.lattice.infinite:       # linked-cluster expansion (jobs/lattice.py)
         from lowfold.jobs.lattice import derive_infinite
-        return derive_infinite(model, order, progress=progress)
+        return derive_infinite(model, order, progress=progress, graph_map=graph_map)
     say = progress or (lambda message: None)
     spec = model.perturbation
     if spec is None:
