@@ -75,6 +75,14 @@ def _emit_json(data: dict) -> None:
     sys.stdout.write(json.dumps(data, allow_nan=False) + "\n")
 
 
+def _parse_size(size: str) -> list[int]:
+    """``--size N[,M]`` as a list of integers."""
+    try:
+        return [int(n) for n in size.split(",")]
+    except ValueError:
+        raise ModelError(f"--size: give N or N,M (integers), got {size!r}") from None
+
+
 def _sized(path: Path, size: Optional[str], boundary: Optional[str]):
     """Load a model file, on a lattice of ``--size N[,M]`` / ``--boundary`` when given
     (an infinite lattice given a size becomes periodic unless ``--boundary`` says otherwise;
@@ -82,12 +90,7 @@ def _sized(path: Path, size: Optional[str], boundary: Optional[str]):
     m = load_model(path)
     if size is None and boundary is None:
         return m
-    cells = None
-    if size is not None:
-        try:
-            cells = [int(n) for n in size.split(",")]
-        except ValueError:
-            raise ModelError(f"--size: give N or N,M (integers), got {size!r}") from None
+    cells = None if size is None else _parse_size(size)
     if boundary is not None and boundary not in ("open", "periodic"):
         raise ModelError(f"--boundary: must be open or periodic, got {boundary!r}")
     if boundary is None and "infinite" in m.lattice.boundary:
@@ -263,11 +266,22 @@ def scan(scan_file: Path = typer.Argument(..., metavar="SCAN", help="scan file (
          out: Optional[Path] = typer.Option(None, "--out", help="results directory (default: next to the scan file)"),
          workers: Optional[int] = typer.Option(None, "--workers", help="local workers (default: one per core)"),
          retry_failed: bool = typer.Option(False, "--retry-failed", help="recompute points stored as errors"),
-         json_out: bool = typer.Option(False, "--json", help="print one JSON summary")):
+         json_out: bool = typer.Option(False, "--json", help="print one JSON summary"),
+         size: Optional[str] = typer.Option(None, "--size", help=_SIZE_HELP + ", at every point"),
+         boundary: Optional[str] = typer.Option(None, "--boundary", help=_BOUNDARY_HELP + ", at every point")):
     """Run a parameter / size scan on Dask, storing every finished point as it completes."""
     from lowfold.scans.run import ScanInterrupted, format_summary, run_scan
+    spec = scan_file
+    if size is not None or boundary is not None:
+        from lowfold.scans.scanfile import load_scan, with_lattice
+        cells = _parse_size(size) if size is not None else None
+        spec = load_scan(scan_file)
+        try:
+            spec = with_lattice(spec, cells, boundary)
+        except ModelError as exc:
+            raise ModelError(f"{'--size' if size is not None else '--boundary'}: {exc}") from None
     try:
-        summary = run_scan(scan_file, out=out, scheduler=scheduler, workers=workers,
+        summary = run_scan(spec, out=out, scheduler=scheduler, workers=workers,
                            retry_failed=retry_failed, progress=False if json_out else None)
     except ScanInterrupted as exc:      # typer turns Ctrl-C into a silent exit 130
         err.print(f"lowfold: interrupted: {exc.stored} of {exc.total} points are stored in "
