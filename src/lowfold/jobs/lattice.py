@@ -421,6 +421,7 @@ def formula_model(model: Model) -> Model | None:
 
 def _member(groups, kind, sites, orders, operator, coords, patch, shells) -> None:
     name = class_name(patch, [coords[s] for s in sites], shells=shells)
-    rounded = tuple(tuple(np.round(np.ravel(np.asarray(v, dtype=float)), 9).tolist())
-                    for _, v in sorted(orders.items()))
+    values = [np.ravel(np.asarray(v, dtype=float)) for _, v in sorted(orders.items())]
+    flat = np.round(np.concatenate(values), 9) if values else np.zeros(0)
+    rounded = (tuple(len(v) for v in values), tuple(flat.tolist()))     # rounded once
     groups.setdefault((kind, name, operator, rounded), []).append((sites, dict(orders)))

@@ -313,20 +313,22 @@ def lattice_sum(n_sites: int, bonds, colours, cell_of, reference: int, n_basis: 
     reference : int
         Cell index of the reference cell (far enough from the edges of the patch).
     """
+    bonds = [(int(i), int(j)) for i, j in bonds]          # plain ints: fast in the loops below
+    cell_of = [int(c) for c in cell_of]
     keep = [k for k, (i, j) in enumerate(bonds) if min(cell_of[i], cell_of[j]) >= reference]
     at = {}
     for k in keep:
         for s in bonds[k]:
-            at.setdefault(int(s), []).append(k)
-    adjacent = {k: sorted({f for s in bonds[k] for f in at[int(s)] if f != k}) for k in keep}
+            at.setdefault(s, []).append(k)
+    adjacent = {k: sorted({f for s in bonds[k] for f in at[s] if f != k}) for k in keep}
     seeds = [k for k in keep if reference in (cell_of[bonds[k][0]], cell_of[bonds[k][1]])]
     index = {k: n for n, k in enumerate(keep)}
     sets = connected_edge_sets([[index[f] for f in adjacent[k]] for k in keep],
                                [index[k] for k in seeds], max_bonds) if max_bonds else []
     clusters = [((s,), ()) for s in range(reference * n_basis, (reference + 1) * n_basis)]
-    clusters += [(tuple(sorted({int(s) for n in es for s in bonds[keep[n]]})),
-                  tuple((int(bonds[keep[n]][0]), int(bonds[keep[n]][1]), colours[keep[n]])
-                        for n in es)) for es in sets]
+    edge = [(*bonds[k], int(colours[k])) for k in keep]
+    clusters += [(tuple(sorted({s for n in es for s in edge[n][:2]})),
+                  tuple(edge[n] for n in es)) for es in sets]
     total = sum_embeddings(clusters, weights)
     return LatticeSum(_translate(total, cell_of, reference, n_basis), len(clusters),
                       weights.computed)
