@@ -137,12 +137,14 @@ def cli(tmp_path_factory, client):
     d = tmp_path_factory.mktemp("lattice_dask")
     (d / "square.toml").write_text(hubbard_text("square", order=4))
     (d / "open.toml").write_text(hubbard_text("chain", boundary="open", size=[4], order=2))
+    (d / "ising.toml").write_text(ising_chain_text(8))
     address = client.scheduler.address
     return run_all({
         "serial": ["derive", d / "square.toml", "--json"],
         "dask": ["derive", d / "square.toml", "--json", "--scheduler", address],
         "finite": ["derive", d / "open.toml", "--scheduler", address],
         "nowhere": ["derive", d / "square.toml", "--scheduler", "tcp://127.0.0.1:9"],
+        "series": ["series", d / "ising.toml", "--json", "--scheduler", address],
     })
 
 
@@ -154,3 +156,9 @@ def test_derive_scheduler_gives_the_serial_json(cli):
 def test_derive_scheduler_bad_input_is_one_line(cli):
     assert "infinite lattice" in one_line_error(cli["finite"])
     assert "Dask scheduler" in one_line_error(cli["nowhere"])
+
+
+def test_series_scheduler_is_pfeuty(cli):
+    data = one_json_object(cli["series"])
+    want = [float(c) for c in pfeuty_per_site(8)]                 # Pfeuty (1970)
+    np.testing.assert_allclose([data["orders"][str(m)] for m in range(9)], want, atol=1e-10)

@@ -151,6 +151,12 @@ def spectrum(model: Path = typer.Argument(..., metavar="MODEL", help="model file
     render.print_spectrum(out, m.title, result)
 
 
+def _check_scheduler(scheduler: Optional[str], m) -> None:
+    if scheduler is not None and not m.lattice.infinite:
+        raise ModelError("--scheduler sends the cluster graphs of an infinite lattice to Dask; "
+                         "this lattice is finite (use lowfold scan for many finite clusters)")
+
+
 @contextlib.contextmanager
 def _graph_map(scheduler: Optional[str]):
     """The Dask graph map of ``--scheduler`` (None: the graphs are computed here)."""
@@ -194,9 +200,7 @@ def derive(model: Path = typer.Argument(..., metavar="MODEL",
     """Effective low-energy model of MODEL, order by order, checked against exact spectra."""
     levels = _parse_check_levels(check_levels)
     m = _sized(model, size, boundary)
-    if scheduler is not None and not m.lattice.infinite:
-        raise ModelError("--scheduler sends the cluster graphs of an infinite lattice to Dask; "
-                         "this lattice is finite (use lowfold scan for many finite clusters)")
+    _check_scheduler(scheduler, m)
     if export is not None:
         check_writable(export, "--export")
     options = {"order": order, "check": not no_check, "check_scaling": check_scaling}
@@ -229,9 +233,13 @@ def series(model: Path = typer.Argument(..., metavar="MODEL",
            sweep: Optional[str] = typer.Option(None, "--sweep", help="lambda=START:STOP:COUNT"),
            plot: Optional[Path] = typer.Option(None, "--plot", help="figure of the sweep (.png/.svg/.pdf)"),
            size: Optional[str] = typer.Option(None, "--size", help=_SIZE_HELP),
-           boundary: Optional[str] = typer.Option(None, "--boundary", help=_BOUNDARY_HELP)):
+           boundary: Optional[str] = typer.Option(None, "--boundary", help=_BOUNDARY_HELP),
+           scheduler: Optional[str] = typer.Option(
+               None, "--scheduler", metavar="ADDRESS",
+               help="Dask scheduler (address or scheduler JSON file) for the cluster graphs of an infinite lattice")):
     """Perturbation series of one state of H0: energies by order, convergence, validity."""
     m = _sized(model, size, boundary)
+    _check_scheduler(scheduler, m)
     if plot is not None and sweep is None:
         sweep = "lambda=0:1:41"
     if plot is not None and plot.suffix.lower() not in (".png", ".svg", ".pdf"):
@@ -240,8 +248,8 @@ def series(model: Path = typer.Argument(..., metavar="MODEL",
         check_writable(plot, "--plot")
     options = {"order": order, "state": state, "sweep": parse_sweep(sweep) if sweep else None}
     try:
-        with _progress(not json_out) as progress:
-            result = run_task("series", m, options, progress=progress)
+        with _progress(not json_out) as progress, _graph_map(scheduler) as graph_map:
+            result = run_task("series", m, options, progress=progress, graph_map=graph_map)
     except ModelError as exc:
         if state is not None and str(exc).startswith("state "):
             raise ModelError(f"--{exc}") from None
