@@ -99,7 +99,7 @@ def test_not_on_a_worker_here():
 
 # ------------------------------------------------------------------ inside a scan
 def test_scan_point_on_an_infinite_lattice_equals_derive(tmp_path, client, monkeypatch):
-    import lowfold.scans.graphs as graphs
+    from lowfold.scans import graphs
     from lowfold.scans.run import run_scan
     sent = []                # the workers are threads of this process: the patch reaches them
 

@@ -17,8 +17,8 @@ error raised by a graph is raised again here, with its type.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from contextlib import contextmanager
-from typing import Callable
 
 from lowfold.errors import ModelError
 from lowfold.scans.cluster import limit_threads
