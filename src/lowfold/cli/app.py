@@ -346,7 +346,8 @@ def demo(json_out: bool = typer.Option(False, "--json", help="print one JSON obj
             out.print(f"[bold]lowfold demo[/bold]: {render.user_text(file.name)} "
                       "(built-in example)\n")
         derive(file, order=None, json_out=json_out, latex=False, no_check=False,
-               check_scaling=False, check_levels=None, export=None, size=None, boundary=None)
+               check_scaling=False, check_levels=None, export=None, size=None, boundary=None,
+               scheduler=None)
 
 
 def main() -> None:
