@@ -10,6 +10,7 @@ LocalCluster (``lowfold.scans.graphs``), through ``derive --scheduler`` and insi
 from __future__ import annotations
 
 import json
+import os
 
 import numpy as np
 import pytest
@@ -26,10 +27,24 @@ distributed = pytest.importorskip("distributed")
 
 @pytest.fixture(scope="module")
 def client():
-    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
-                                  protocol="tcp", dashboard_address=":0") as cluster, \
-            distributed.Client(cluster) as c:
-        yield c
+    # The workers are threads of this process, and a graph task pins the thread settings of
+    # its process (lowfold.scans.cluster.limit_threads).  NUMBA_NUM_THREADS is set here to
+    # the count numba has (or will launch) its threads with, so that it stays consistent for
+    # the tests that follow (numba refuses a later change), and both are restored after.
+    import numba
+    saved, threads = os.environ.get("NUMBA_NUM_THREADS"), numba.get_num_threads()
+    os.environ["NUMBA_NUM_THREADS"] = str(numba.config.NUMBA_NUM_THREADS)
+    try:
+        with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
+                                      protocol="tcp", dashboard_address=":0") as cluster, \
+                distributed.Client(cluster) as c:
+            yield c
+    finally:
+        if saved is None:
+            os.environ.pop("NUMBA_NUM_THREADS", None)
+        else:
+            os.environ["NUMBA_NUM_THREADS"] = saved
+        numba.set_num_threads(threads)
 
 
 def classes(result):
