@@ -10,16 +10,22 @@ Per lattice and order, in its own subprocess (standard library probe, one BLAS t
 * ``subgraphs``: connected clusters enumerated per unit cell (single sites included);
 * ``distinct``: distinct graphs whose effective Hamiltonian was computed (after pruning);
 * ``seconds``: wall time of the sum and the readout (numba compilation warmed up first on
-  the chain at order 2);
+  the chain at order 2); ``cpu_s``: CPU time of the child over the same span (on a shared,
+  loaded machine the wall time grows with the load, the CPU time much less);
 * ``peak_mb``: peak resident memory of the child (``resource.getrusage(RUSAGE_SELF)``).
 
 A lattice stops at the first order that exceeds ``--timeout`` seconds (default 150).
 Results go to ``benchmarks/results/bench_lattice.json``.
 
+Speed goals (issue 11): each lattice to order 6 in under 30 s; the chain to order 10 and the
+square lattice to order 8 in under 10 minutes, under 2 GB.  ``--goals`` measures exactly
+those (and marks each row ``ok`` or ``SLOW``).
+
 Usage::
 
     python benchmarks/bench_lattice.py                  # orders 2, 4, 6
     python benchmarks/bench_lattice.py --orders 2 4     # fewer
+    python benchmarks/bench_lattice.py --goals          # the speed goals
 """
 
 from __future__ import annotations
@@ -72,14 +78,14 @@ from lowfold.jobs.lattice import linked_cluster_sum, read_classes
 shape, order, text = sys.argv[1], int(sys.argv[2]), sys.argv[3]
 lowfold.derive(lowfold.parse_model(tomllib.loads(text.format(shape="chain", order=2))))
 model = lowfold.parse_model(tomllib.loads(text.format(shape=shape, order=order)))
-start = time.perf_counter()
+start, cpu = time.perf_counter(), time.process_time()
 run = linked_cluster_sum(model, order)
 classes = read_classes(run, order, model)
-seconds = time.perf_counter() - start
+seconds, cpu = time.perf_counter() - start, time.process_time() - cpu
 peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
 print(json.dumps({"shape": shape, "order": order, "subgraphs": run.total.clusters,
                   "distinct": run.total.distinct, "classes": len(classes),
-                  "seconds": seconds, "peak_mb": peak}))
+                  "seconds": seconds, "cpu_s": cpu, "peak_mb": peak}))
 """
 
 
@@ -96,28 +102,44 @@ def measure(shape: str, order: int, timeout: float) -> dict:
     return json.loads(proc.stdout.strip().splitlines()[-1])
 
 
+GOALS = [(shape, 6, 30.0) for shape in SHAPES] + [("chain", 10, 600.0), ("square", 8, 600.0)]
+GOAL_MB = 2048
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--orders", type=int, nargs="+", default=[2, 4, 6])
     parser.add_argument("--shapes", nargs="+", default=list(SHAPES))
     parser.add_argument("--timeout", type=float, default=150.0)
+    parser.add_argument("--goals", action="store_true", help="measure the speed goals only")
     parser.add_argument("--out", type=Path, default=DEFAULT_OUT)
     args = parser.parse_args()
+    plan = ([(shape, order, limit) for shape, order, limit in GOALS] if args.goals else
+            [(shape, order, None) for shape in args.shapes for order in args.orders])
     rows = []
     print(f"{'lattice':<11} {'order':>5} {'subgraphs':>10} {'distinct':>9} {'classes':>8} "
-          f"{'seconds':>9} {'peak MB':>8}")
-    for shape in args.shapes:
-        for order in args.orders:
-            row = measure(shape, order, args.timeout)
-            rows.append(row)
-            if "error" in row:
-                print(f"{shape:<11} {order:>5} {row['error']}", flush=True)
-                break
-            print(f"{shape:<11} {order:>5} {row['subgraphs']:>10,} {row['distinct']:>9} "
-                  f"{row['classes']:>8} {row['seconds']:>9.2f} {row['peak_mb']:>8.0f}",
-                  flush=True)
+          f"{'seconds':>9} {'cpu s':>8} {'peak MB':>8}" + ("  goal" if args.goals else ""))
+    stopped = set()
+    for shape, order, limit in plan:
+        if shape in stopped:
+            continue
+        row = measure(shape, order, max(args.timeout, 2 * (limit or 0)))
+        rows.append(row)
+        if "error" in row:
+            print(f"{shape:<11} {order:>5} {row['error']}", flush=True)
+            stopped.add(shape)
+            continue
+        verdict = ""
+        if limit is not None:
+            row["goal_s"] = limit
+            good = row["seconds"] < limit and row["peak_mb"] < GOAL_MB
+            verdict = f"  {'ok' if good else 'SLOW'} (< {limit:g} s)"
+        print(f"{shape:<11} {order:>5} {row['subgraphs']:>10,} {row['distinct']:>9} "
+              f"{row['classes']:>8} {row['seconds']:>9.2f} {row['cpu_s']:>8.2f} "
+              f"{row['peak_mb']:>8.0f}{verdict}", flush=True)
     args.out.parent.mkdir(parents=True, exist_ok=True)
     args.out.write_text(json.dumps({"machine": platform.platform(), "cpus": os.cpu_count(),
+                                    "load": os.getloadavg()[0],
                                     "date": time.strftime("%Y-%m-%d %H:%M:%S"),
                                     "model": "half-filled Hubbard, t = 1, U = 10",
                                     "rows": rows}, indent=1) + "\n")

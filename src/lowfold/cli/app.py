@@ -75,6 +75,14 @@ def _emit_json(data: dict) -> None:
     sys.stdout.write(json.dumps(data, allow_nan=False) + "\n")
 
 
+def _parse_size(size: str) -> list[int]:
+    """``--size N[,M]`` as a list of integers."""
+    try:
+        return [int(n) for n in size.split(",")]
+    except ValueError:
+        raise ModelError(f"--size: give N or N,M (integers), got {size!r}") from None
+
+
 def _sized(path: Path, size: Optional[str], boundary: Optional[str]):
     """Load a model file, on a lattice of ``--size N[,M]`` / ``--boundary`` when given
     (an infinite lattice given a size becomes periodic unless ``--boundary`` says otherwise;
@@ -82,12 +90,7 @@ def _sized(path: Path, size: Optional[str], boundary: Optional[str]):
     m = load_model(path)
     if size is None and boundary is None:
         return m
-    cells = None
-    if size is not None:
-        try:
-            cells = [int(n) for n in size.split(",")]
-        except ValueError:
-            raise ModelError(f"--size: give N or N,M (integers), got {size!r}") from None
+    cells = None if size is None else _parse_size(size)
     if boundary is not None and boundary not in ("open", "periodic"):
         raise ModelError(f"--boundary: must be open or periodic, got {boundary!r}")
     if boundary is None and "infinite" in m.lattice.boundary:
@@ -148,6 +151,23 @@ def spectrum(model: Path = typer.Argument(..., metavar="MODEL", help="model file
     render.print_spectrum(out, m.title, result)
 
 
+def _check_scheduler(scheduler: Optional[str], m) -> None:
+    if scheduler is not None and not m.lattice.infinite:
+        raise ModelError("--scheduler sends the cluster graphs of an infinite lattice to Dask; "
+                         "this lattice is finite (use lowfold scan for many finite clusters)")
+
+
+@contextlib.contextmanager
+def _graph_map(scheduler: Optional[str]):
+    """The Dask graph map of ``--scheduler`` (None: the graphs are computed here)."""
+    if scheduler is None:
+        yield None
+        return
+    from lowfold.scans.graphs import scheduler_graph_map
+    with scheduler_graph_map(scheduler) as graph_map:
+        yield graph_map
+
+
 def _parse_check_levels(text: Optional[str]):
     """``--check-levels all|K`` -> ``"all"``, an int, or None (the default)."""
     if text is None:
@@ -176,18 +196,22 @@ def derive(model: Path = typer.Argument(..., metavar="MODEL",
                                                 help="also give each coupling its exact value on the "
                                                      "cluster (direct rotation of the exact states)"),
            size: Optional[str] = typer.Option(None, "--size", help=_SIZE_HELP),
-           boundary: Optional[str] = typer.Option(None, "--boundary", help=_BOUNDARY_HELP)):
+           boundary: Optional[str] = typer.Option(None, "--boundary", help=_BOUNDARY_HELP),
+           scheduler: Optional[str] = typer.Option(
+               None, "--scheduler", metavar="ADDRESS",
+               help="Dask scheduler (address or scheduler JSON file) for the cluster graphs of an infinite lattice")):
     """Effective low-energy model of MODEL, order by order, checked against exact spectra."""
     levels = _parse_check_levels(check_levels)
     m = _sized(model, size, boundary)
+    _check_scheduler(scheduler, m)
     if export is not None:
         check_writable(export, "--export")
     options = {"order": order, "check": not no_check, "check_scaling": check_scaling,
                "exact_couplings": exact_couplings}
     if levels is not None:
         options["check_levels"] = levels
-    with _progress(not (json_out or latex)) as progress:
-        result = run_task("derive", m, options, progress=progress)
+    with _progress(not (json_out or latex)) as progress, _graph_map(scheduler) as graph_map:
+        result = run_task("derive", m, options, progress=progress, graph_map=graph_map)
     if export is not None:
         from lowfold.jobs.export import write_export
         try:
@@ -213,9 +237,13 @@ def series(model: Path = typer.Argument(..., metavar="MODEL",
            sweep: Optional[str] = typer.Option(None, "--sweep", help="lambda=START:STOP:COUNT"),
            plot: Optional[Path] = typer.Option(None, "--plot", help="figure of the sweep (.png/.svg/.pdf)"),
            size: Optional[str] = typer.Option(None, "--size", help=_SIZE_HELP),
-           boundary: Optional[str] = typer.Option(None, "--boundary", help=_BOUNDARY_HELP)):
+           boundary: Optional[str] = typer.Option(None, "--boundary", help=_BOUNDARY_HELP),
+           scheduler: Optional[str] = typer.Option(
+               None, "--scheduler", metavar="ADDRESS",
+               help="Dask scheduler (address or scheduler JSON file) for the cluster graphs of an infinite lattice")):
     """Perturbation series of one state of H0: energies by order, convergence, validity."""
     m = _sized(model, size, boundary)
+    _check_scheduler(scheduler, m)
     if plot is not None and sweep is None:
         sweep = "lambda=0:1:41"
     if plot is not None and plot.suffix.lower() not in (".png", ".svg", ".pdf"):
@@ -224,8 +252,8 @@ def series(model: Path = typer.Argument(..., metavar="MODEL",
         check_writable(plot, "--plot")
     options = {"order": order, "state": state, "sweep": parse_sweep(sweep) if sweep else None}
     try:
-        with _progress(not json_out) as progress:
-            result = run_task("series", m, options, progress=progress)
+        with _progress(not json_out) as progress, _graph_map(scheduler) as graph_map:
+            result = run_task("series", m, options, progress=progress, graph_map=graph_map)
     except ModelError as exc:
         if state is not None and str(exc).startswith("state "):
             raise ModelError(f"--{exc}") from None
@@ -250,11 +278,22 @@ def scan(scan_file: Path = typer.Argument(..., metavar="SCAN", help="scan file (
          out: Optional[Path] = typer.Option(None, "--out", help="results directory (default: next to the scan file)"),
          workers: Optional[int] = typer.Option(None, "--workers", help="local workers (default: one per core)"),
          retry_failed: bool = typer.Option(False, "--retry-failed", help="recompute points stored as errors"),
-         json_out: bool = typer.Option(False, "--json", help="print one JSON summary")):
+         json_out: bool = typer.Option(False, "--json", help="print one JSON summary"),
+         size: Optional[str] = typer.Option(None, "--size", help=_SIZE_HELP + ", at every point"),
+         boundary: Optional[str] = typer.Option(None, "--boundary", help=_BOUNDARY_HELP + ", at every point")):
     """Run a parameter / size scan on Dask, storing every finished point as it completes."""
     from lowfold.scans.run import ScanInterrupted, format_summary, run_scan
+    spec = scan_file
+    if size is not None or boundary is not None:
+        from lowfold.scans.scanfile import load_scan, with_lattice
+        cells = _parse_size(size) if size is not None else None
+        spec = load_scan(scan_file)
+        try:
+            spec = with_lattice(spec, cells, boundary)
+        except ModelError as exc:
+            raise ModelError(f"{'--size' if size is not None else '--boundary'}: {exc}") from None
     try:
-        summary = run_scan(scan_file, out=out, scheduler=scheduler, workers=workers,
+        summary = run_scan(spec, out=out, scheduler=scheduler, workers=workers,
                            retry_failed=retry_failed, progress=False if json_out else None)
     except ScanInterrupted as exc:      # typer turns Ctrl-C into a silent exit 130
         err.print(f"lowfold: interrupted: {exc.stored} of {exc.total} points are stored in "
@@ -312,7 +351,7 @@ def demo(json_out: bool = typer.Option(False, "--json", help="print one JSON obj
                       "(built-in example)\n")
         derive(file, order=None, json_out=json_out, latex=False, no_check=False,
                check_scaling=False, check_levels=None, export=None, exact_couplings=False,
-               size=None, boundary=None)
+               size=None, boundary=None, scheduler=None)
 
 
 def main() -> None:

@@ -52,7 +52,8 @@ MAX_WORKING_STATES = 2_000_000  # intermediate states of one block for orders ab
 def derive(model: Model, order: int | None = None, *, compare_exact: bool = True,
            fit_scaling: bool = False, check_levels: int | str = DEFAULT_CHECK_LEVELS,
            progress: Callable[[str], None] | None = None,
-           exact_couplings: bool = False) -> EffectiveModel:
+           exact_couplings: bool = False,
+           graph_map: Callable | None = None) -> EffectiveModel:
     """Effective Hamiltonian of ``model`` on the low-energy manifold of H0, order by order.
 
     Parameters
@@ -78,6 +79,9 @@ def derive(model: Model, order: int | None = None, *, compare_exact: bool = True
         (``lowfold.jobs.exact_couplings``): the result's ``exact``.  SizeError before anything
         is computed when the exact eigenvectors would not fit; ManifoldError when the exact
         states of the manifold are not separated from the rest.
+    graph_map : callable, optional
+        Infinite lattice: how the distinct cluster graphs are computed
+        (:func:`lowfold.jobs.lattice.linked_cluster_sum`; e.g. on Dask).
 
     Returns
     -------
@@ -89,7 +93,8 @@ def derive(model: Model, order: int | None = None, *, compare_exact: bool = True
     if model.lattice.infinite:       # linked-cluster expansion (jobs/lattice.py)
         from lowfold.jobs.lattice import derive_infinite
         return derive_infinite(model, order, progress=progress, compare_exact=compare_exact,
-                               check_levels=check_levels, fit_scaling=fit_scaling)
+                               check_levels=check_levels, fit_scaling=fit_scaling,
+                               graph_map=graph_map)
     say = progress or (lambda message: None)
     spec = model.perturbation
     if spec is None:

@@ -25,9 +25,9 @@ from lowfold.model.lattice import Lattice, make_lattice
 from lowfold.model.model import Model, PerturbationSpec
 from lowfold.model.sector import Sector
 from lowfold.model.terms import ONE_SITE_TYPES, Term
-from lowfold.perturbation.linked_clusters import (ClusterWeights, LatticeSum, add_embedded,
-                                                  canonical_form, connected_edge_sets,
-                                                  lattice_sum)
+from lowfold.perturbation.linked_clusters import (ClusterWeights, LatticeSum,
+                                                  connected_edge_sets, lattice_sum,
+                                                  sum_embeddings)
 from lowfold.perturbation.orders import validate_order
 from lowfold.readout.classes import class_name, lattice_shells
 from lowfold.readout.couplings import spin_couplings
@@ -152,14 +152,25 @@ def _cluster_model(model: Model, labels: dict, graph, order: int,
                  model.title, model.source)
 
 
-def _solver(model: Model, labels: dict, order: int, energy: bool, filling: int | None = None):
-    from lowfold.jobs.derive import derive
+@dataclass(frozen=True)
+class GraphSolver:
+    """The effective Hamiltonian of one canonical cluster graph, as a Pauli operator with
+    coefficients per order ``0..order`` (or, with ``energy``, the ground-state energy of a
+    non-degenerate reference as the identity's coefficients).  A plain picklable object:
+    distinct graphs may be solved on Dask workers (``graph_map``)."""
 
-    def solve(graph):
-        sector = None if filling is None else Sector(particles=filling * graph[0])
-        result = derive(_cluster_model(model, labels, graph, order, sector), order,
-                        compare_exact=False)
-        if energy:
+    model: Model
+    labels: dict
+    order: int
+    energy: bool = False
+    filling: int | None = None
+
+    def __call__(self, graph):
+        from lowfold.jobs.derive import derive
+        sector = None if self.filling is None else Sector(particles=self.filling * graph[0])
+        result = derive(_cluster_model(self.model, self.labels, graph, self.order, sector),
+                        self.order, compare_exact=False)
+        if self.energy:
             if result.manifold.dimension != 1:
                 raise ModelError(f"the ground state of H0 is {result.manifold.dimension}-fold "
                                  "degenerate on a cluster; the energy series needs a "
@@ -172,9 +183,12 @@ def _solver(model: Model, labels: dict, order: int, energy: bool, filling: int |
         out = {}
         for term in result.terms:
             key = tuple(sorted(parse_pauli_string(term.operator)))
-            out[key] = np.array([term.orders.get(m, 0.0) for m in range(order + 1)])
+            out[key] = np.array([term.orders.get(m, 0.0) for m in range(self.order + 1)])
         return out
-    return solve
+
+
+def _solver(model: Model, labels: dict, order: int, energy: bool, filling: int | None = None):
+    return GraphSolver(model, labels, order, energy, filling)
 
 
 def _even_trees(model: Model) -> bool:
@@ -187,8 +201,12 @@ def _even_trees(model: Model) -> bool:
 
 
 def linked_cluster_sum(model: Model, order: int, *, energy: bool = False,
-                       prune: bool = True) -> LinkedClusterRun:
-    """The linked-cluster sum per unit cell of ``model`` (an infinite lattice) to ``order``."""
+                       prune: bool = True, graph_map=None) -> LinkedClusterRun:
+    """The linked-cluster sum per unit cell of ``model`` (an infinite lattice) to ``order``.
+
+    ``graph_map(function, graphs) -> list`` computes the distinct graphs (independent
+    calculations; default: one after the other here, a Dask client's map on a cluster).
+    """
     start = time.perf_counter()
     check_linked_cluster_model(model)
     lat = model.lattice
@@ -204,7 +222,7 @@ def linked_cluster_sum(model: Model, order: int, *, energy: bool = False,
     bond_list, colours, labels = _coloured_bonds(model, patch)
     filling, filling_note = one_site_filling(model)
     weights = ClusterWeights(_solver(model, labels, order, energy, filling), order,
-                             even_trees=prune and _even_trees(model))
+                             even_trees=prune and _even_trees(model), mapper=graph_map)
     cell_of = np.arange(patch.n_sites) // n_basis
     total = lattice_sum(patch.n_sites, np.array(bond_list, dtype=np.int64).reshape(-1, 2),
                         colours, cell_of, reference, n_basis, weights, order)
@@ -246,16 +264,10 @@ def open_cluster_sum(model: Model, cluster: Lattice, order: int, *, energy: bool
         at.setdefault(j, []).append(k)
     adjacent = [sorted({f for s in bonds[k] for f in at[s] if f != k}) for k in range(len(bonds))]
     sets = connected_edge_sets(adjacent, range(len(bonds)), min(order, len(bonds)))
-    total: dict = {}
     clusters = [((s,), ()) for s in range(cluster.n_sites)]
     clusters += [(tuple(sorted({s for n in es for s in bonds[n]})),
                   tuple((*bonds[n], colours[n]) for n in es)) for es in sets]
-    for sites, edges in clusters:
-        index = {s: k for k, s in enumerate(sites)}
-        canon, label = canonical_form(len(sites), [(index[a], index[b], c) for a, b, c in edges])
-        inverse = {label[k]: sites[k] for k in range(len(sites))}
-        add_embedded(total, weights.weight(canon), inverse)
-    return total
+    return sum_embeddings(clusters, weights)
 
 
 def _cell_reach(patch: Lattice, bond_class: str) -> int:
@@ -270,16 +282,17 @@ def _cell_reach(patch: Lattice, bond_class: str) -> int:
     return int(np.abs(coords[0][:, 0] - coords[0][:, 1]).max())
 
 
-def energy_per_site(model: Model, order: int | None = None, *, prune: bool = True) -> np.ndarray:
+def energy_per_site(model: Model, order: int | None = None, *, prune: bool = True,
+                    graph_map=None) -> np.ndarray:
     """Ground-state energy per site of an infinite lattice, coefficient of each order
     ``0..order`` (non-degenerate product reference state of H0)."""
     order = validate_order(model.perturbation.order if order is None else order, maximum=MAX_ORDER)
-    run = linked_cluster_sum(model, order, energy=True, prune=prune)
+    run = linked_cluster_sum(model, order, energy=True, prune=prune, graph_map=graph_map)
     return run.total.terms.get((), np.zeros(order + 1)) / run.n_basis
 
 
 def series_infinite(model: Model, order: int | None = None, *, state: str | None = None,
-                    sweep=None, progress=None) -> StateSeries:
+                    sweep=None, progress=None, graph_map=None) -> StateSeries:
     """The series job on an infinite lattice: the ground-state energy **per site**.
 
     ``energies[m]`` is the order-``m`` coefficient of :func:`energy_per_site` (their sum is
@@ -298,7 +311,7 @@ def series_infinite(model: Model, order: int | None = None, *, state: str | None
                            maximum=MAX_ORDER)
     if progress:
         progress(f"linked clusters to order {order} (energy per site)")
-    run = linked_cluster_sum(model, order, energy=True)
+    run = linked_cluster_sum(model, order, energy=True, graph_map=graph_map)
     energies = run.total.terms.get((), np.zeros(order + 1)) / run.n_basis
     note = (f"infinite lattice: energies are per site (linked-cluster expansion, "
             f"{run.total.clusters} clusters per unit cell, {run.total.distinct} distinct graphs "
@@ -311,15 +324,16 @@ def series_infinite(model: Model, order: int | None = None, *, state: str | None
 
 def derive_infinite(model: Model, order: int | None = None, *, prune: bool = True,
                     progress=None, compare_exact: bool = False, check_levels=8,
-                    fit_scaling: bool = False) -> EffectiveModel:
-    """The effective spin-1/2 model of an infinite lattice as coupling classes; with
-    ``compare_exact``, checked on a periodic cluster (:mod:`lowfold.jobs.lattice_check`)."""
+                    fit_scaling: bool = False, graph_map=None) -> EffectiveModel:
+    """The effective spin-1/2 model of an infinite lattice as coupling classes (``graph_map``:
+    see :func:`linked_cluster_sum`); with ``compare_exact``, checked on a periodic cluster
+    (:mod:`lowfold.jobs.lattice_check`)."""
     if model.perturbation is None:
         model.unperturbed_labels
     order = validate_order(model.perturbation.order if order is None else order, maximum=MAX_ORDER)
     if progress:
         progress(f"linked clusters to order {order}")
-    run = linked_cluster_sum(model, order, prune=prune)
+    run = linked_cluster_sum(model, order, prune=prune, graph_map=graph_map)
     classes = read_classes(run, order, model)
     energy = float(run.total.terms.get((), np.zeros(1))[0]) / run.n_basis
     summary = ManifoldSummary(2, energy, None, "spin-1/2")
@@ -414,6 +428,7 @@ def formula_model(model: Model) -> Model | None:
 
 def _member(groups, kind, sites, orders, operator, coords, patch, shells) -> None:
     name = class_name(patch, [coords[s] for s in sites], shells=shells)
-    rounded = tuple(tuple(np.round(np.ravel(np.asarray(v, dtype=float)), 9).tolist())
-                    for _, v in sorted(orders.items()))
+    values = [np.ravel(np.asarray(v, dtype=float)) for _, v in sorted(orders.items())]
+    flat = np.round(np.concatenate(values), 9) if values else np.zeros(0)
+    rounded = (tuple(len(v) for v in values), tuple(flat.tolist()))     # rounded once
     groups.setdefault((kind, name, operator, rounded), []).append((sites, dict(orders)))

@@ -60,7 +60,8 @@ def _reference_index(model: Model, basis: Basis, h0_diag: np.ndarray, state: str
 
 def state_series(model: Model, order: int | None = None, *, state: str | None = None,
                  sweep: np.ndarray | None = None,
-                 progress: Callable[[str], None] | None = None) -> StateSeries:
+                 progress: Callable[[str], None] | None = None,
+                 graph_map: Callable | None = None) -> StateSeries:
     """Rayleigh-Schroedinger series of one state of H0 with convergence analysis.
 
     Parameters
@@ -74,10 +75,14 @@ def state_series(model: Model, order: int | None = None, *, state: str | None = 
         for the K-th distinct H0 level; default the lowest H0 state.
     sweep : array, optional
         Coupling factors lambda at which to follow the lowest exact levels.
+    graph_map : callable, optional
+        Infinite lattice: how the distinct cluster graphs are computed
+        (:func:`lowfold.jobs.lattice.linked_cluster_sum`; e.g. on Dask).
     """
     if model.lattice.infinite:       # energy per site by linked clusters (jobs/lattice.py)
         from lowfold.jobs.lattice import series_infinite
-        return series_infinite(model, order, state=state, sweep=sweep, progress=progress)
+        return series_infinite(model, order, state=state, sweep=sweep, progress=progress,
+                               graph_map=graph_map)
     say = progress or (lambda message: None)
     spec = model.perturbation
     if spec is None:

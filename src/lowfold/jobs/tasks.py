@@ -50,25 +50,25 @@ def _integer_option(options: dict, name: str, default: int) -> int:
     return int(value)
 
 
-def _spectrum_task(model: Model, options: dict, progress) -> Spectrum:
+def _spectrum_task(model: Model, options: dict, progress, graph_map=None) -> Spectrum:
     return spectrum(model, _integer_option(options, "levels", 4), progress=progress)
 
 
-def _derive_task(model: Model, options: dict, progress) -> EffectiveModel:
+def _derive_task(model: Model, options: dict, progress, graph_map=None) -> EffectiveModel:
     exact = options.get("exact_couplings", False)
     if not isinstance(exact, (bool, np.bool_)):
         raise ModelError(f"exact_couplings must be true or false, got {exact!r}")
     return derive(model, options.get("order"), compare_exact=options.get("check", True),
                   fit_scaling=options.get("check_scaling", False),
                   check_levels=options.get("check_levels", DEFAULT_CHECK_LEVELS), progress=progress,
-                  exact_couplings=bool(exact))
+                  exact_couplings=bool(exact), graph_map=graph_map)
 
 
-def _series_task(model: Model, options: dict, progress) -> StateSeries:
+def _series_task(model: Model, options: dict, progress, graph_map=None) -> StateSeries:
     sweep = options.get("sweep")
     return state_series(model, options.get("order"), state=options.get("state"),
                         sweep=parse_lambda_range(sweep) if isinstance(sweep, str) else sweep,
-                        progress=progress)
+                        progress=progress, graph_map=graph_map)
 
 
 TASKS: dict[str, Callable] = {"spectrum": _spectrum_task, "derive": _derive_task,
@@ -76,11 +76,14 @@ TASKS: dict[str, Callable] = {"spectrum": _spectrum_task, "derive": _derive_task
 
 
 def run_task(task: str, model: Model, options: dict | None = None, *,
-             progress: Callable[[str], None] | None = None):
+             progress: Callable[[str], None] | None = None, graph_map: Callable | None = None):
     """Run ``task`` (``"spectrum"``, ``"derive"``, ``"series"``) on ``model``; the result is
     a :class:`~lowfold.results.Spectrum`, :class:`~lowfold.results.EffectiveModel` or
     :class:`~lowfold.results.StateSeries` (``RESULT_TYPES[task]``), whose ``to_dict()`` is
-    what ``lowfold TASK MODEL --json`` prints."""
+    what ``lowfold TASK MODEL --json`` prints.  ``graph_map``: how an infinite lattice's
+    distinct cluster graphs are computed (:func:`lowfold.jobs.lattice.linked_cluster_sum`;
+    :mod:`lowfold.scans.graphs` for Dask)."""
     if task not in TASKS:
         raise ModelError(f"unknown task {task!r} (known: {', '.join(TASKS)})")
-    return TASKS[task](model, dict(options or {}), progress)
+    extra = {} if graph_map is None else {"graph_map": graph_map}
+    return TASKS[task](model, dict(options or {}), progress, **extra)

@@ -35,7 +35,8 @@ import igraph
 import numpy as np
 
 __all__ = ["ClusterGraph", "LatticeSum", "canonical_form", "connected_edge_sets",
-           "ClusterWeights", "lattice_sum", "add_embedded"]
+           "ClusterWeights", "lattice_sum", "add_embedded", "sum_embeddings", "prunable",
+           "serial_map"]
 
 ClusterGraph = tuple[int, tuple[tuple[int, int, int], ...]]
 Operator = dict[tuple, np.ndarray]
@@ -58,14 +59,35 @@ def canonical_form(n_sites: int, edges) -> tuple[ClusterGraph, list[int]]:
     g.add_edges([(a, n_sites + k) for k, (a, _, _) in enumerate(edges)]
                 + [(b, n_sites + k) for k, (_, b, _) in enumerate(edges)])
     colours = [0] * n_sites + [1 + c for _, _, c in edges]
-    perm = g.canonical_permutation(color=colours)
-    order = sorted(range(n_sites), key=lambda a: perm[a])
+    position = _positions(g.canonical_permutation(color=colours))
+    order = sorted(range(n_sites), key=lambda a: position[a])
     label = [0] * n_sites
     for rank, a in enumerate(order):
         label[a] = rank
     canon = tuple(sorted((min(label[a], label[b]), max(label[a], label[b]), c)
                          for a, b, c in edges))
     return (n_sites, canon), label
+
+
+def _permutes_forward() -> bool:
+    """Whether igraph's ``permute_vertices(perm)`` sends vertex ``v`` to ``perm[v]`` (else
+    new vertex ``i`` is old vertex ``perm[i]``; igraph 1.0 does the latter).  The canonical
+    graph is ``permute_vertices(canonical_permutation(...))`` in either convention."""
+    moved = igraph.Graph(n=3, edges=[(0, 1)]).permute_vertices([2, 0, 1])
+    return {tuple(sorted(e)) for e in moved.get_edgelist()} == {(0, 2)}
+
+
+_FORWARD = _permutes_forward()
+
+
+def _positions(perm) -> list[int]:
+    """Canonical position of each vertex for igraph's canonical permutation ``perm``."""
+    if _FORWARD:
+        return list(perm)
+    position = [0] * len(perm)
+    for new, old in enumerate(perm):
+        position[old] = new
+    return position
 
 
 def connected_edge_sets(adjacent: list[list[int]], seeds, max_edges: int) -> list[frozenset]:
@@ -88,15 +110,39 @@ def connected_edge_sets(adjacent: list[list[int]], seeds, max_edges: int) -> lis
     return found
 
 
-def _is_tree(graph: ClusterGraph) -> bool:
-    n, edges = graph
-    return len(edges) == n - 1
+def serial_map(function: Callable, items: list) -> list:
+    """``[function(x) for x in items]``: the default way of computing the distinct graphs."""
+    return [function(item) for item in items]
 
 
-def _bridges(graph: ClusterGraph) -> int:
+def _bridges(n_sites: int, edges) -> int:
     """Number of bonds whose removal disconnects the cluster (bonds on no cycle)."""
-    n, edges = graph
-    return len(igraph.Graph(n=n, edges=[(a, b) for a, b, _ in edges]).bridges()) if edges else 0
+    return len(igraph.Graph(n=n_sites, edges=[(a, b) for a, b, _ in edges]).bridges())
+
+
+def prunable(n_sites: int, edges, order: int, even_trees: bool) -> bool:
+    """Whether a cluster (any labelling) has zero weight to ``order`` by the pruning rules.
+
+    Always: more bonds than ``order`` (a process of order n moves across at most n bonds,
+    and a cluster's weight holds only processes that use all its bonds).  With
+    ``even_trees`` (see :class:`ClusterWeights`): ``bonds + bridges > order``; a tree has
+    ``bridges = bonds`` and every bond to a site of degree one is a bridge, so those are
+    decided without a bridge search.
+    """
+    bonds = len(edges)
+    if bonds > order:
+        return True
+    if not even_trees or not bonds:
+        return False
+    if bonds == n_sites - 1:
+        return 2 * bonds > order
+    degree = [0] * n_sites
+    for a, b, _ in edges:
+        degree[a] += 1
+        degree[b] += 1
+    if bonds + degree.count(1) > order:
+        return True
+    return bonds + _bridges(n_sites, edges) > order
 
 
 def _subgraphs(graph: ClusterGraph):
@@ -148,7 +194,8 @@ class ClusterWeights:
     ----------
     solve : callable
         ``solve(graph) -> Operator``: the effective Hamiltonian of the canonical cluster
-        ``graph`` (its own terms only), coefficients per order.
+        ``graph`` (its own terms only), coefficients per order ``0..order`` (each graph is
+        solved once, at the highest order; lower orders are the same run's coefficients).
     order : int
         Highest order: clusters with more bonds have zero weight.
     even_trees : bool
@@ -157,26 +204,61 @@ class ClusterWeights:
         process of a cluster's weight uses every bond, and it crosses a bridge, a bond on no
         cycle, an even number of times, as the particle numbers on either side of it return;
         for a tree, ``2 * bonds > order``).
+    mapper : callable, optional
+        ``mapper(solve, graphs) -> list`` of ``solve(graph)``; the graphs are independent
+        calculations (default :func:`serial_map`; a Dask client's map for a cluster).
     """
 
     def __init__(self, solve: Callable[[ClusterGraph], Operator], order: int, *,
-                 even_trees: bool = False):
+                 even_trees: bool = False, mapper: Callable | None = None):
         self._solve, self._order, self._even_trees = solve, order, even_trees
+        self._mapper = mapper or serial_map
         self._weights: dict[ClusterGraph, Operator] = {}
+        self._solved: dict[ClusterGraph, Operator] = {}
+        self._inside: dict[ClusterGraph, list] = {}
         self._contributes: dict[ClusterGraph, bool] = {}
         self.computed = 0          # graphs whose effective Hamiltonian was computed
         self.pruned = 0            # graphs skipped by a pruning rule
 
+    def prunable(self, n_sites: int, edges) -> bool:
+        """:func:`prunable` with this expansion's order and rules (any labelling)."""
+        return prunable(n_sites, edges, self._order, self._even_trees)
+
     def can_contribute(self, graph: ClusterGraph) -> bool:
-        bonds = len(graph[1])
-        if bonds > self._order:
-            return False
-        if not self._even_trees:
-            return True
         if graph not in self._contributes:
-            bridges = bonds if _is_tree(graph) else _bridges(graph)
-            self._contributes[graph] = bonds + bridges <= self._order
+            self._contributes[graph] = not self.prunable(*graph)
         return self._contributes[graph]
+
+    def subclusters(self, graph: ClusterGraph) -> list:
+        """``(canonical graph, site map)`` of each connected proper subcluster of ``graph``
+        that can contribute (memoised; pruned ones have zero weight and are left out)."""
+        if graph not in self._inside:
+            found = []
+            for sites, edges in _subgraphs(graph):
+                local = _local(sites, edges)
+                if self.prunable(*local):
+                    continue
+                canon, label = canonical_form(*local)
+                found.append((canon, {label[k]: sites[k] for k in range(len(sites))}))
+            self._inside[graph] = found
+        return self._inside[graph]
+
+    def prepare(self, graphs) -> None:
+        """Solve every graph that the weights of ``graphs`` need, in one call of the mapper
+        (biggest first): the graphs themselves and their subclusters that can contribute."""
+        todo, seen = [], set()
+        stack = [g for g in graphs if self.can_contribute(g)]
+        while stack:
+            graph = stack.pop()
+            if graph in seen or graph in self._weights or graph in self._solved:
+                continue
+            seen.add(graph)
+            todo.append(graph)
+            stack.extend(canon for canon, _ in self.subclusters(graph))
+        todo.sort(key=lambda g: (-g[0], -len(g[1]), g))
+        if todo:
+            self._solved.update(zip(todo, self._mapper(self._solve, todo)))
+            self.computed += len(todo)
 
     def weight(self, graph: ClusterGraph) -> Operator:
         """The weight of a canonical cluster (memoised)."""
@@ -186,12 +268,13 @@ class ClusterWeights:
             self.pruned += 1
             self._weights[graph] = {}
             return {}
-        self.computed += 1
-        total = {k: np.array(v, dtype=float) for k, v in self._solve(graph).items()}
-        for sites, edges in _subgraphs(graph):
-            canon, label = canonical_form(*_local(sites, edges))
-            inverse = {label[k]: sites[k] for k in range(len(sites))}
-            add_embedded(total, self.weight(canon), inverse, -1.0)
+        own = self._solved.pop(graph, None)
+        if own is None:
+            self.computed += 1
+            own = self._solve(graph)
+        total = {k: np.array(v, dtype=float) for k, v in own.items()}
+        for canon, site_of in self.subclusters(graph):
+            add_embedded(total, self.weight(canon), site_of, -1.0)
         self._weights[graph] = total
         return total
 
@@ -230,30 +313,49 @@ def lattice_sum(n_sites: int, bonds, colours, cell_of, reference: int, n_basis: 
     reference : int
         Cell index of the reference cell (far enough from the edges of the patch).
     """
+    bonds = [(int(i), int(j)) for i, j in bonds]          # plain ints: fast in the loops below
+    cell_of = [int(c) for c in cell_of]
     keep = [k for k, (i, j) in enumerate(bonds) if min(cell_of[i], cell_of[j]) >= reference]
     at = {}
     for k in keep:
         for s in bonds[k]:
-            at.setdefault(int(s), []).append(k)
-    adjacent = {k: sorted({f for s in bonds[k] for f in at[int(s)] if f != k}) for k in keep}
+            at.setdefault(s, []).append(k)
+    adjacent = {k: sorted({f for s in bonds[k] for f in at[s] if f != k}) for k in keep}
     seeds = [k for k in keep if reference in (cell_of[bonds[k][0]], cell_of[bonds[k][1]])]
     index = {k: n for n, k in enumerate(keep)}
     sets = connected_edge_sets([[index[f] for f in adjacent[k]] for k in keep],
                                [index[k] for k in seeds], max_bonds) if max_bonds else []
-    total: Operator = {}
     clusters = [((s,), ()) for s in range(reference * n_basis, (reference + 1) * n_basis)]
-    clusters += [(tuple(sorted({int(s) for n in es for s in bonds[keep[n]]})),
-                  tuple((int(bonds[keep[n]][0]), int(bonds[keep[n]][1]), colours[keep[n]])
-                        for n in es)) for es in sets]
-    for sites, edges in clusters:
-        canon, label = canonical_form(*_local(sites, edges))
-        if not weights.can_contribute(canon):
-            weights.pruned += 1
-            continue
-        inverse = {label[k]: sites[k] for k in range(len(sites))}
-        add_embedded(total, weights.weight(canon), inverse)
+    edge = [(*bonds[k], int(colours[k])) for k in keep]
+    clusters += [(tuple(sorted({s for n in es for s in edge[n][:2]})),
+                  tuple(edge[n] for n in es)) for es in sets]
+    total = sum_embeddings(clusters, weights)
     return LatticeSum(_translate(total, cell_of, reference, n_basis), len(clusters),
                       weights.computed)
+
+
+def sum_embeddings(clusters, weights: ClusterWeights) -> Operator:
+    """Sum of the weights of ``clusters`` (each ``(sites, edges)``), embedded on their sites.
+
+    Clusters are grouped by canonical graph (pruned ones skipped before canonical
+    labelling), the distinct graphs solved in one call of the weights' mapper, and each
+    graph's weight then added once per embedding.
+    """
+    groups: dict[ClusterGraph, list] = {}
+    for sites, edges in clusters:
+        local = _local(sites, edges)
+        if weights.prunable(*local):
+            weights.pruned += 1
+            continue
+        canon, label = canonical_form(*local)
+        groups.setdefault(canon, []).append({label[k]: sites[k] for k in range(len(sites))})
+    weights.prepare(list(groups))
+    total: Operator = {}
+    for canon, embeddings in groups.items():
+        weight = weights.weight(canon)
+        for site_of in embeddings:
+            add_embedded(total, weight, site_of)
+    return total
 
 
 def _translate(terms: Operator, cell_of, reference: int, n_basis: int) -> Operator:

@@ -66,7 +66,7 @@ def evaluate_point(task: str, model, options: Mapping[str, Any], compute: Callab
     """
     limit_threads()
     if compute is None:
-        from lowfold.jobs.tasks import run_task as compute
+        compute = _run_task_here
     started, clock = _now(), time.perf_counter()
     result, error = None, None
     try:
@@ -78,6 +78,17 @@ def evaluate_point(task: str, model, options: Mapping[str, Any], compute: Callab
               "host": socket.gethostname(), "pid": os.getpid()}
     return {"status": "ok" if error is None else "error", "result": result, "error": error,
             "timing": timing}
+
+
+def _run_task_here(task: str, model, options: dict):
+    """:func:`lowfold.jobs.tasks.run_task`; inside a Dask task, the distinct cluster graphs
+    of an infinite lattice go to the same cluster (:func:`lowfold.scans.graphs.worker_graph_map`)."""
+    from lowfold.jobs.tasks import run_task
+    from lowfold.scans.graphs import on_dask_worker, worker_graph_map
+
+    if getattr(model.lattice, "infinite", False) and on_dask_worker():
+        return run_task(task, model, options, graph_map=worker_graph_map)
+    return run_task(task, model, options)
 
 
 # --------------------------------------------------------------------------- execution

@@ -35,7 +35,8 @@ from __future__ import annotations
 
 import math
 import os
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
+from fractions import Fraction
 from pathlib import Path
 from typing import Any, Mapping
 
@@ -43,7 +44,8 @@ from lowfold.errors import ModelError
 from lowfold.model.model import Model
 from lowfold.model.modelfile import load_model, read_toml
 
-__all__ = ["TASK_NAMES", "SECTOR_AXES", "ScanSpec", "parse_scan", "load_scan", "scan_error"]
+__all__ = ["TASK_NAMES", "SECTOR_AXES", "ScanSpec", "parse_scan", "load_scan", "scan_error",
+           "with_lattice"]
 
 TASK_NAMES = ("spectrum", "derive", "series")
 SECTOR_AXES = ("particles", "filling", "sz")
@@ -308,3 +310,38 @@ def load_scan(path: str | os.PathLike) -> ScanSpec:
     """Read and validate a scan file (the model path is taken relative to it)."""
     path = Path(path)
     return parse_scan(read_toml(path), source=str(path), base_dir=path.parent)
+
+
+def with_lattice(spec: ScanSpec, size: tuple[int, ...] | None = None,
+                 boundary: str | None = None) -> ScanSpec:
+    """The scan with one lattice size and/or boundary at every point, replacing the model
+    file's (``lowfold scan --size/--boundary``, as for the other commands).
+
+    They become grid axes of one value, so the records carry them.  An infinite lattice
+    given a size becomes periodic unless a boundary is given; when the model's sector fixes
+    the particle number and the scan sets no sector of its own, the filling (particles per
+    site) is kept.  A :class:`~lowfold.errors.ModelError` if the grid already scans the
+    size or the boundary, or for a boundary other than ``open`` / ``periodic``.
+    """
+    names = [n for n, _ in spec.axes]
+    for name, value in (("size", size), ("boundary", boundary)):
+        if value is not None and name in names:
+            raise scan_error(spec.source, f"grid.{name}", f"the grid already scans the {name}; "
+                             "one value for the whole scan cannot replace it")
+    if boundary is not None and boundary not in ("open", "periodic"):
+        raise ModelError(f"a boundary is open or periodic, got {boundary!r}")
+    if size is None and boundary is None:
+        return spec
+    model = spec.base_model()
+    if size is not None and boundary is None and "boundary" not in names and model.lattice.infinite:
+        boundary = "periodic"
+    axes = list(spec.axes)
+    if size is not None:
+        axes.append(("size", (tuple(size),)))
+    if boundary is not None and "boundary" not in names:
+        axes.append(("boundary", (boundary,)))
+    sector = dict(spec.sector)
+    own = set(sector) | (set(names) & set(SECTOR_AXES))
+    if size is not None and model.sector.particles is not None and not own & {"particles", "filling"}:
+        sector["filling"] = float(Fraction(model.sector.particles, model.n_sites))
+    return replace(spec, axes=tuple(axes), sector=sector)
