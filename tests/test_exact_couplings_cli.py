@@ -88,9 +88,14 @@ def test_too_large_cluster_is_one_line_size_error(runs):
     assert "exact eigenvectors" in line and "more than the limit of" in line
 
 
-def test_matrix_readout_json_and_screen(runs):
+def test_local_readout_json_and_screen(runs):
+    """A doped chain ({0, up, down} per site at fixed N): its local-operator couplings and its
+    matrix both carry the exact values."""
     data = one_json_object(runs["doped_json"])
-    assert data["manifold"]["readout"].startswith("matrix") and "exact" in data["effective"]
+    assert data["manifold"]["readout"].startswith("local operators") and "exact" in data["effective"]
+    kinds = {c["kind"] for c in data["couplings"]}
+    assert {"hopping", "exchange", "three-site"} <= kinds
+    assert all(isinstance(c["exact"], float) for c in data["couplings"])
     assert "exact: direct rotation" in succeeded(runs["doped_screen"])
 
 

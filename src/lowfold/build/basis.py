@@ -9,12 +9,11 @@ space.  See ``lowfold._kernels.basis`` for the ranking scheme.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from fractions import Fraction
 
 import numpy as np
 
 from lowfold._kernels import basis as kernels
-from lowfold.errors import ModelError, SizeError
+from lowfold.errors import SizeError
 from lowfold.model.sites import Site
 from lowfold.model.sector import Sector, sector_totals
 

@@ -24,7 +24,7 @@ from lowfold.model.cycles import lattice_cycles
 from lowfold.model.lattice import Lattice, make_lattice
 from lowfold.model.model import Model, PerturbationSpec
 from lowfold.model.sector import Sector
-from lowfold.model.terms import ONE_SITE_TYPES, Term
+from lowfold.model.terms import ONE_SITE_TYPES
 from lowfold.perturbation.linked_clusters import (ClusterWeights, LatticeSum,
                                                   connected_edge_sets, lattice_sum,
                                                   sum_embeddings)
