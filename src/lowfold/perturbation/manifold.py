@@ -23,11 +23,11 @@ import scipy.sparse as sp
 from lowfold.build.basis import explicit_basis
 from lowfold.build.hamiltonian import build_basis
 from lowfold.build.compiled import CompiledOperator, compile_operator
-from lowfold.errors import ManifoldError, ModelError
+from lowfold.errors import ManifoldError, ModelError, SizeError
 from lowfold.model.model import Model
 
 __all__ = ["Manifold", "split_operators", "find_manifold", "reachable_from_states",
-           "restricted_operator", "diagonal_energies"]
+           "restricted_operator", "working_operator", "diagonal_energies"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -174,21 +174,106 @@ def _manifold_by_sites(model: Model, h0: CompiledOperator, spec):
     return states[done], energy[done] + constant
 
 
+def _sorted_unique(x: np.ndarray) -> np.ndarray:
+    """Ascending distinct values of an int array, by sorting (``np.unique`` of numpy 2.4
+    hashes, which is tens of times slower on millions of encoded states)."""
+    x = np.sort(np.asarray(x, dtype=np.int64), kind="stable")
+    if x.size < 2:
+        return x
+    keep = np.empty(x.size, dtype=bool)
+    keep[0] = True
+    np.not_equal(x[1:], x[:-1], out=keep[1:])
+    return x[keep]
+
+
+def _member(x: np.ndarray, sorted_set: np.ndarray) -> np.ndarray:
+    """``x[i] in sorted_set`` for each i (``sorted_set`` ascending and distinct)."""
+    if sorted_set.size == 0:
+        return np.zeros(x.shape, dtype=bool)
+    pos = np.minimum(np.searchsorted(sorted_set, x), sorted_set.size - 1)
+    return sorted_set[pos] == x
+
+
+def _new_states(images: np.ndarray, visited: np.ndarray) -> np.ndarray:
+    """The distinct images not yet visited, ascending."""
+    images = _sorted_unique(images)
+    return images[~_member(images, visited)]
+
+
 def reachable_from_states(v: CompiledOperator, p_states: np.ndarray, steps: int) -> np.ndarray:
     """The encoded states ``p_states`` together with every state reachable from them by at
     most ``steps`` applications of the compiled ``v``, ascending (breadth first).
 
     Compare ``lowfold.perturbation.schrieffer_wolff.reachable_indices``, the same search on
     basis indices with a matrix."""
-    visited = np.unique(p_states)
+    visited = _sorted_unique(p_states)
     frontier = visited
     for _ in range(steps):
         if frontier.size == 0 or v.offdiagonal_strings.size == 0:
             break
-        new = np.unique(v.apply_to_states(frontier, v.offdiagonal_strings).states)
-        frontier = new[~np.isin(new, visited, assume_unique=True)]
-        visited = np.union1d(visited, frontier)
+        frontier = _new_states(v.apply_to_states(frontier, v.offdiagonal_strings).states, visited)
+        visited = _sorted_unique(np.concatenate([visited, frontier]))
     return visited
+
+
+def working_operator(v: CompiledOperator, p_states: np.ndarray, steps: int, *,
+                     outer: bool, max_states: int | None = None
+                     ) -> tuple[np.ndarray, sp.csr_matrix]:
+    """The states reachable from ``p_states`` in at most ``steps`` applications of ``v``
+    (ascending, as :func:`reachable_from_states`) and the matrix of ``v`` among them, found
+    in one breadth-first pass.
+
+    ``v`` is applied to the states nearer than ``steps`` only; the entries between them and
+    the outermost shell follow from Hermiticity (``V_ij = conj(V_ji)``).  The entries inside
+    the outermost shell (by far the largest set) are built only when ``outer`` is true: an
+    order-n effective Hamiltonian with ``steps = n // 2`` needs them for odd n alone
+    (an order-1 quantity enters only with ``dist(i) + dist(j) <= n - 1``).
+
+    ``SizeError`` as soon as more than ``max_states`` states are reached.
+
+    Returns
+    -------
+    (1-d int64 array, CSR matrix)
+        The states and ``<i|V|j>`` on them (``V`` must be Hermitian).
+    """
+    visited = _sorted_unique(p_states)
+    frontier = visited
+    found = []          # (source states, image states, amplitudes) of each expanded shell
+    for _ in range(steps):
+        if frontier.size == 0:
+            break
+        rows, new, amps = v.apply_to_states(frontier)
+        found.append((frontier[rows], new, amps))
+        frontier = _new_states(new, visited)
+        visited = _sorted_unique(np.concatenate([visited, frontier]))
+        if max_states is not None and visited.size > max_states:
+            raise SizeError(f"{visited.size:,} intermediate states are reached within "
+                            f"{len(found)} steps of V (limit {max_states:,})")
+    shell = frontier if found else np.zeros(0, dtype=np.int64)
+    inner_entries = len(found)
+    if outer and shell.size:
+        rows, new, amps = v.apply_to_states(shell)
+        inside = _member(new, shell)
+        found.append((shell[rows[inside]], new[inside], amps[inside]))
+    row_parts, col_parts, data_parts = [], [], []
+    for number, (source, image, amp) in enumerate(found):
+        col, row = np.searchsorted(visited, source), np.searchsorted(visited, image)
+        row_parts.append(row)
+        col_parts.append(col)
+        data_parts.append(amp)
+        if number < inner_entries and shell.size:     # the partners in the outer shell
+            in_shell = _member(image, shell)
+            row_parts.append(col[in_shell])
+            col_parts.append(row[in_shell])
+            data_parts.append(np.conj(amp[in_shell]))
+    size = visited.size
+    if not data_parts:
+        return visited, sp.csr_matrix((size, size), dtype=v.dtype)
+    matrix = sp.csr_matrix((np.concatenate(data_parts),
+                            (np.concatenate(row_parts), np.concatenate(col_parts))),
+                           shape=(size, size))
+    matrix.sum_duplicates()
+    return visited, matrix
 
 
 def restricted_operator(op: CompiledOperator, states: np.ndarray, n_slots: int) -> sp.csr_matrix:
