@@ -203,14 +203,14 @@ def _block_orders(p_states, h0, v, order, n_slots):
     try:
         working, v_work = working_operator(v, p_states, max(1, order // 2),
                                            outer=order > 1 and order % 2 == 1,
-                                           max_states=MAX_WORKING_STATES)
+                                           max_states=MAX_WORKING_STATES, by_shell=True)
     except SizeError as exc:
         raise SizeError(f"order {order} in one S^z block: {exc}; use a lower order or a "
                         "smaller cluster") from None
     energies = diagonal_energies(h0, working)
-    p_index = np.searchsorted(working, p_states)
+    p_index = np.arange(p_states.size)          # P first, in the order of p_states
     diag = manifold_diagnostics(energies, v_work, p_index, working)
-    orders, costs = effective_orders(energies, v_work, p_index, order)
+    orders, costs = effective_orders(energies, v_work, p_index, order, check_v=False)
     return orders, diag, costs
 
 

@@ -217,7 +217,7 @@ def reachable_from_states(v: CompiledOperator, p_states: np.ndarray, steps: int)
 
 
 def working_operator(v: CompiledOperator, p_states: np.ndarray, steps: int, *,
-                     outer: bool, max_states: int | None = None
+                     outer: bool, max_states: int | None = None, by_shell: bool = False
                      ) -> tuple[np.ndarray, sp.csr_matrix]:
     """The states reachable from ``p_states`` in at most ``steps`` applications of ``v``
     (ascending, as :func:`reachable_from_states`) and the matrix of ``v`` among them, found
@@ -229,7 +229,9 @@ def working_operator(v: CompiledOperator, p_states: np.ndarray, steps: int, *,
     order-n effective Hamiltonian with ``steps = n // 2`` needs them for odd n alone
     (an order-1 quantity enters only with ``dist(i) + dist(j) <= n - 1``).
 
-    ``SizeError`` as soon as more than ``max_states`` states are reached.
+    ``SizeError`` as soon as more than ``max_states`` states are reached.  With ``by_shell``
+    the states come ordered by distance from P (P first, each shell ascending), the order
+    the Schrieffer-Wolff recursion works in, so that it needs no permuted copy of V.
 
     Returns
     -------
@@ -238,6 +240,7 @@ def working_operator(v: CompiledOperator, p_states: np.ndarray, steps: int, *,
     """
     visited = _sorted_unique(p_states)
     frontier = visited
+    shells = [visited]
     found = []          # (source states, image states, amplitudes) of each expanded shell
     for _ in range(steps):
         if frontier.size == 0:
@@ -245,6 +248,7 @@ def working_operator(v: CompiledOperator, p_states: np.ndarray, steps: int, *,
         rows, new, amps = v.apply_to_states(frontier)
         found.append((frontier[rows], new, amps))
         frontier = _new_states(new, visited)
+        shells.append(frontier)
         visited = _sorted_unique(np.concatenate([visited, frontier]))
         if max_states is not None and visited.size > max_states:
             raise SizeError(f"{visited.size:,} intermediate states are reached within "
@@ -255,9 +259,18 @@ def working_operator(v: CompiledOperator, p_states: np.ndarray, steps: int, *,
         rows, new, amps = v.apply_to_states(shell)
         inside = _member(new, shell)
         found.append((shell[rows[inside]], new[inside], amps[inside]))
+    size = visited.size
+    position = np.arange(size)
+    if by_shell:
+        ordered = np.concatenate(shells)
+        position[np.searchsorted(visited, ordered)] = np.arange(size)
+        visited_order = ordered
+    else:
+        visited_order = visited
     row_parts, col_parts, data_parts = [], [], []
     for number, (source, image, amp) in enumerate(found):
-        col, row = np.searchsorted(visited, source), np.searchsorted(visited, image)
+        col = position[np.searchsorted(visited, source)]
+        row = position[np.searchsorted(visited, image)]
         row_parts.append(row)
         col_parts.append(col)
         data_parts.append(amp)
@@ -266,14 +279,13 @@ def working_operator(v: CompiledOperator, p_states: np.ndarray, steps: int, *,
             row_parts.append(col[in_shell])
             col_parts.append(row[in_shell])
             data_parts.append(np.conj(amp[in_shell]))
-    size = visited.size
     if not data_parts:
-        return visited, sp.csr_matrix((size, size), dtype=v.dtype)
+        return visited_order, sp.csr_matrix((size, size), dtype=v.dtype)
     matrix = sp.csr_matrix((np.concatenate(data_parts),
                             (np.concatenate(row_parts), np.concatenate(col_parts))),
                            shape=(size, size))
     matrix.sum_duplicates()
-    return visited, matrix
+    return visited_order, matrix
 
 
 def restricted_operator(op: CompiledOperator, states: np.ndarray, n_slots: int) -> sp.csr_matrix:

@@ -117,7 +117,7 @@ def effective_hamiltonian_orders(h0_diag, v, p_index, order, *, gap_tol=1e-9, he
 
 
 def effective_orders(h0_diag, v, p_index, order, *, gap_tol=1e-9, herm_tol=1e-8,
-                     drop_tol=DROP_TOL, dense=False):
+                     drop_tol=DROP_TOL, dense=False, check_v=True):
     """The orders as CSR matrices and what each order kept in memory.
 
     Parameters are those of :func:`effective_hamiltonian_orders`, and
@@ -128,18 +128,21 @@ def effective_orders(h0_diag, v, p_index, order, *, gap_tol=1e-9, herm_tol=1e-8,
     dense : bool, keyword-only
         The slow twin (tests, benchmarks): no entry dropped, each order's P-P block made a
         dense array (the orders come back as ndarrays).
+    check_v : bool, keyword-only
+        Check that V is Hermitian (a caller whose V is Hermitian by construction, such as
+        ``derive``, skips the copy of V that the check takes).
 
     Returns
     -------
     (list of CSR matrices, list of :class:`lowfold.perturbation.sparse_orders.OrderCost`)
     """
-    e, vmat, p_index, order = _validate(h0_diag, v, p_index, order, herm_tol)
+    e, vmat, p_index, order = _validate(h0_diag, v, p_index, order, herm_tol, check_v)
     gap = _check_gap(e[p_index], np.delete(e, p_index), gap_tol)
     return sparse_orders(e, vmat, p_index, order, gap, generator_coefficients(order),
                          herm_tol=herm_tol, drop_tol=drop_tol, dense=dense)
 
 
-def _validate(h0_diag, v, p_index, order, herm_tol):
+def _validate(h0_diag, v, p_index, order, herm_tol, check_v=True):
     """Checked arrays (energies, CSR V, P indices, order) or ModelError."""
     e = np.asarray(h0_diag)
     if e.ndim != 1 or e.size == 0:
@@ -154,11 +157,13 @@ def _validate(h0_diag, v, p_index, order, herm_tol):
     vmat = sp.csr_matrix(v)
     if vmat.shape != (e.size, e.size):
         raise ModelError(f"v has shape {vmat.shape}; expected ({e.size}, {e.size}) like h0_diag")
-    vmat = vmat.astype(complex if np.iscomplexobj(vmat.data) else float)
+    # scipy sorts indices in place: share the caller's arrays only when they are canonical
+    shared = vmat.has_canonical_format and vmat.data.flags.c_contiguous
+    vmat = vmat.astype(complex if np.iscomplexobj(vmat.data) else float, copy=not shared)
     vmax = np.max(np.abs(vmat.data), initial=0.0)
     if not np.isfinite(vmax):
         raise ModelError("v contains inf or nan")
-    if np.max(np.abs((vmat - vmat.conj().T).data), initial=0.0) > herm_tol * vmax:
+    if check_v and np.max(np.abs((vmat - vmat.conj().T).data), initial=0.0) > herm_tol * vmax:
         raise ModelError("v is not Hermitian; pass the full Hermitian matrix, both triangles")
     p_index = _check_indices(p_index, e.size)
     return e, vmat, p_index, validate_order(order, minimum=0, maximum=MAX_SCHRIEFFER_WOLFF_ORDER)

@@ -125,8 +125,7 @@ def sparse_orders(e, vmat, p_index, order, gap, coefficients, *, herm_tol=1e-8,
     start = time.perf_counter()
     a, b = coefficients
     space = _Space(e, vmat, p_index, order, drop_tol)
-    v_d = space.restrict(space.select(space.v, offdiag=False), 1)
-    v_od = space.restrict(space.select(space.v, offdiag=True), 1)
+    v_d, v_od = space.v_parts()
     gens = [None, space.solve_l(v_od, 1)]  # gens[m] = S_m
     nested = {(0, 0): v_od}  # nested[k, m] = S^k_m(V_od), an order-(m+1) quantity
     costs[1] = OrderCost(1, costs[1].effective_bytes, matrix_bytes(gens[1]), matrix_bytes(v_od),
@@ -171,9 +170,18 @@ class _Space:
         q_index = np.delete(np.arange(e.size), p_index)
         q_index = q_index[np.argsort(dist[q_index], kind="stable")]
         perm = np.concatenate([p_index, q_index])
-        self.e, self.dist, self.order, self.n_p = e[perm], dist[perm], order, p_index.size
-        self.v = vmat[perm][:, perm].tocsr()
+        self.e, self.order, self.n_p = e[perm], order, p_index.size
+        self.dist = dist[perm].astype(np.int8)       # at most order // 2 + 1
         self.drop_tol = drop_tol
+        if not np.array_equal(perm, np.arange(perm.size)):    # a caller may order it so
+            vmat = vmat[perm][:, perm]
+        self.vmat = vmat.tocsr()
+
+    def v_parts(self):
+        """V_d and V_od (order 1), after which the space no longer holds V."""
+        v, self.vmat = self.vmat, None
+        return (self.restrict(self.select(v, offdiag=False), 1),
+                self.restrict(self.select(v, offdiag=True), 1))
 
     def size(self, m):
         """Number of states an order-m quantity can touch."""
@@ -184,12 +192,12 @@ class _Space:
         """Leading block of an order-m quantity, without the entries that cannot contribute
         and those at round-off level."""
         c = self.size(m)
-        x = x[:c, :c].tocsr()
+        x = x.tocsr() if x.shape == (c, c) else x[:c, :c].tocsr()
         row, col = _coordinates(x)
         keep = self.dist[row] + self.dist[col] <= self.order - m
         if self.drop_tol and x.nnz:
-            size = np.abs(x.data)
-            keep &= size > self.drop_tol * size.max()
+            cut = self.drop_tol * np.abs(x.data).max()
+            keep &= np.abs(x.data) > cut
         return _keep(x, row, keep)
 
     def commutator(self, s, x, m):
@@ -213,12 +221,15 @@ class _Space:
 def _product(a, b, c):
     """Leading c x c block of a @ b, for matrices stored as leading blocks of sizes."""
     inner = min(a.shape[1], b.shape[0])
-    return a[:c, :inner] @ b[:inner, :c]
+    a = a if a.shape == (c, inner) else a[:c, :inner]
+    b = b if b.shape == (inner, c) else b[:inner, :c]
+    return a @ b
 
 
 def _coordinates(x):
     """Row and column index of each stored entry of a CSR matrix."""
-    return np.repeat(np.arange(x.shape[0]), np.diff(x.indptr)), x.indices
+    rows = np.arange(x.shape[0], dtype=np.int32 if x.shape[0] < 2**31 else np.int64)
+    return np.repeat(rows, np.diff(x.indptr)), x.indices
 
 
 def _keep(x, row, keep):
