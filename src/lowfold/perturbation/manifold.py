@@ -260,16 +260,19 @@ def working_operator(v: CompiledOperator, p_states: np.ndarray, steps: int, *,
         inside = _member(new, shell)
         found.append((shell[rows[inside]], new[inside], amps[inside]))
     size = visited.size
-    position = np.arange(size)
+    index_type = np.int32 if size < 2**31 - 1 else np.int64
+    position = np.arange(size, dtype=index_type)
+    visited_order = visited
     if by_shell:
-        ordered = np.concatenate(shells)
-        position[np.searchsorted(visited, ordered)] = np.arange(size)
-        visited_order = ordered
-    else:
-        visited_order = visited
+        visited_order = np.concatenate(shells)
+        position[np.searchsorted(visited, visited_order)] = np.arange(size, dtype=index_type)
+    del shells
     row_parts, col_parts, data_parts = [], [], []
-    for number, (source, image, amp) in enumerate(found):
+    for number in range(len(found)):
+        source, image, amp = found[number]
+        found[number] = None                            # free each shell's images when read
         col = position[np.searchsorted(visited, source)]
+        del source
         row = position[np.searchsorted(visited, image)]
         row_parts.append(row)
         col_parts.append(col)
@@ -279,11 +282,16 @@ def working_operator(v: CompiledOperator, p_states: np.ndarray, steps: int, *,
             row_parts.append(col[in_shell])
             col_parts.append(row[in_shell])
             data_parts.append(np.conj(amp[in_shell]))
+        del image
     if not data_parts:
         return visited_order, sp.csr_matrix((size, size), dtype=v.dtype)
-    matrix = sp.csr_matrix((np.concatenate(data_parts),
-                            (np.concatenate(row_parts), np.concatenate(col_parts))),
-                           shape=(size, size))
+    rows, cols = np.concatenate(row_parts), np.concatenate(col_parts)
+    del row_parts, col_parts
+    data = np.concatenate(data_parts)
+    del data_parts
+    matrix = sp.coo_matrix((data, (rows, cols)), shape=(size, size))
+    del rows, cols, data
+    matrix = matrix.tocsr()
     matrix.sum_duplicates()
     return visited_order, matrix
 

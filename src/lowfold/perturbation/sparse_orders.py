@@ -143,16 +143,47 @@ def sparse_orders(e, vmat, p_index, order, gap, coefficients, *, herm_tol=1e-8,
         scale = vnorm * (vnorm / gap) ** m
         orders.append(_hermitian_part(h_m, scale, herm_tol, m + 1, drop_tol, dense))
         if not last:
-            rhs = space.commutator(gens[m], v_d, m + 1)
+            # only the P-Q part of the right-hand side enters L(.)
+            rhs = space.select(space.commutator(gens[m], v_d, m + 1), offdiag=True)
             for k in range(2, m + 1, 2):
-                rhs = rhs + a[k] * nested[k, m]
-            gens.append(space.solve_l(rhs, m + 1))
+                term = space.select(nested[k, m], offdiag=True)     # a fresh copy
+                term.data *= a[k]
+                rhs = rhs + term
+                del term
+            gens.append(space.solve_l(rhs, m + 1, selected=True))
+            del rhs
         kept = sum(matrix_bytes(x) for (k, j), x in nested.items() if j == m)
         generator = 0 if last else matrix_bytes(gens[m + 1])
         costs.append(OrderCost(m + 1, matrix_bytes(orders[-1]), generator, kept,
                                time.perf_counter() - start))
         start = time.perf_counter()
+        nested_later, gens_later = _needed_later(m, order)
+        for key in [key for key in nested if key not in nested_later]:
+            del nested[key]
+        gens = [g if n in gens_later else None for n, g in enumerate(gens)]
+        if m + 1 >= order - 1:
+            v_d = None            # the last iteration forms no generator
     return orders, costs
+
+
+def _needed_later(m, order):
+    """Keys of the nested commutators and indices of the generators that the iterations
+    after ``m`` of the loop in :func:`sparse_orders` read (the others may be freed)."""
+    last = order - 1
+    exists = lambda k, j: (k, j) == (0, 0) or (1 <= k <= j < last) \
+        or (1 <= k <= j == last and k % 2 == 1)                        # noqa: E731
+    nested, gens = set(), set()
+    for later in range(m + 1, order):
+        for k in range(1, later + 1):
+            if later == last and k % 2 == 0:
+                continue
+            for n in range(1, later - k + 2):
+                if exists(k - 1, later - n):
+                    nested.add((k - 1, later - n))
+                    gens.add(n)
+        if later != last:
+            gens.add(later)
+    return nested, gens
 
 
 class _Space:
@@ -198,6 +229,8 @@ class _Space:
         if self.drop_tol and x.nnz:
             cut = self.drop_tol * np.abs(x.data).max()
             keep &= np.abs(x.data) > cut
+        if keep.all():
+            return x
         return _keep(x, row, keep)
 
     def commutator(self, s, x, m):
@@ -210,9 +243,10 @@ class _Space:
         row, col = _coordinates(x)
         return _keep(x, row, ((row < self.n_p) != (col < self.n_p)) == offdiag)
 
-    def solve_l(self, x, m):
-        """S = L(X) for an order-m X: P-Q part of X divided by E_i - E_j, entry by entry."""
-        x = self.restrict(self.select(x, offdiag=True), m)
+    def solve_l(self, x, m, selected=False):
+        """S = L(X) for an order-m X: P-Q part of X divided by E_i - E_j, entry by entry
+        (``selected``: x holds only its P-Q part already, and may be overwritten)."""
+        x = self.restrict(x if selected else self.select(x, offdiag=True), m)
         row, col = _coordinates(x)
         x.data /= self.e[row] - self.e[col]
         return x
