@@ -17,7 +17,11 @@ the dimer first):
   otherwise the estimate is reported;
 * ``derive``: the whole ``derive(model, n, compare_exact=False)`` (the ``--no-check`` path);
 * ``check``: ``derive(model, 4)`` with its exact check (default levels), and ``check-before``
-  the same with the spin-reversal shortcut switched off (every S^z block's levels computed).
+  the same with the spin-reversal shortcut switched off (every S^z block's levels computed);
+* with ``--before-src DIR`` (the ``src`` folder of an earlier lowfold, e.g. from ``git archive
+  ce59d25 src | tar -x -C /tmp/before``): ``derive-old`` and ``check-old``, the same derive
+  and check run by that code (skipped for the 4x4 clusters, whose dense orders the issue
+  measured at 14.6-15.2 GB).
 
 The machine is shared: compare ratios of one run, and note the load average printed beside
 each point.  Results go to ``benchmarks/results/bench_orders.json``.
@@ -103,7 +107,8 @@ def run_derive(task: dict, check: bool, mirror: bool = True) -> dict:
     start = time.perf_counter()
     result = derive(model, task["order"], compare_exact=check)
     out = {"seconds": time.perf_counter() - start, "manifold": result.manifold.dimension,
-           "memory": result.diagnostics.memory, "warnings": list(result.warnings)}
+           "memory": getattr(result.diagnostics, "memory", None),
+           "warnings": list(result.warnings)}
     if result.check is not None:
         out["check_error"] = result.check.max_abs_error[task["order"]]
         out["levels_compared"] = len(result.check.exact)
@@ -115,23 +120,29 @@ def child(task: dict) -> dict:
     kind = task["kind"]
     if kind in ("orders", "orders-dense"):
         return run_orders(task, dense=kind == "orders-dense")
-    if kind == "derive":
+    if kind in ("derive", "derive-old"):
         return run_derive(task, check=False)
+    if kind == "check-old":
+        return run_derive(task, check=True)
     return run_derive(task, check=True, mirror=kind == "check")
 
 
 # --------------------------------------------------------------------------- parent side
 
-def run_child(task: dict, timeout: float, memory: int) -> dict:
+def run_child(task: dict, timeout: float, memory: int, source: str | None = None) -> dict:
     import resource
 
     def cap():
         resource.setrlimit(resource.RLIMIT_AS, (memory, memory))
 
+    env = dict(os.environ)
+    if task["kind"].endswith("-old"):
+        env["PYTHONPATH"] = source
+
     load_before = os.getloadavg()[0]
     with tempfile.TemporaryFile("w+") as out, tempfile.TemporaryFile("w+") as err:
         proc = subprocess.Popen([sys.executable, __file__, "--child", json.dumps(task)],
-                                stdout=out, stderr=err, preexec_fn=cap)
+                                stdout=out, stderr=err, preexec_fn=cap, env=env)
         deadline = time.monotonic() + timeout
         while True:
             pid, status, usage = os.wait4(proc.pid, os.WNOHANG)
@@ -164,7 +175,7 @@ def dense_estimate(size, order) -> int:
     return 5 * (order + 1) * 8 * block**2
 
 
-def plan(quick: bool) -> list[dict]:
+def plan(quick: bool, before: bool) -> list[dict]:
     geometries = [("chain", [8], "open", 6), ("square", [2, 3], "open", 6),
                   ("square", [3, 3], "open", 4)]
     if not quick:
@@ -175,8 +186,12 @@ def plan(quick: bool) -> list[dict]:
         base = {"shape": shape, "size": size, "boundary": boundary, "order": order}
         tasks += [dict(base, kind="orders"), dict(base, kind="orders-dense"),
                   dict(base, kind="derive")]
+        if before:
+            tasks.append(dict(base, kind="derive-old"))
     chain = {"shape": "chain", "size": [10 if quick else 12], "boundary": "open", "order": 4}
     tasks += [dict(chain, kind="check"), dict(chain, kind="check-before")]
+    if before:
+        tasks.append(dict(chain, kind="check-old"))
     return tasks
 
 
@@ -239,6 +254,7 @@ def main(argv=None) -> None:
     parser.add_argument("--memory-gb", type=float, default=None,
                         help="address-space cap of each measurement (default: 60%% of RAM)")
     parser.add_argument("--only", help="run only the tasks whose 'cluster kind' contains this")
+    parser.add_argument("--before-src", help="src folder of an earlier lowfold to run as 'old'")
     parser.add_argument("--out", type=Path, default=DEFAULT_OUT)
     parser.add_argument("--child", help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
@@ -248,16 +264,17 @@ def main(argv=None) -> None:
     memory = int(args.memory_gb * 2**30 if args.memory_gb else 0.6 * physical_memory())
     started = time.time()
     results = []
-    for t in plan(args.quick):
+    for t in plan(args.quick, bool(args.before_src)):
         if args.only and args.only not in f"{label(t)} {t['kind']}":
             continue
-        if t["kind"] == "orders-dense" and dense_estimate(t["size"], t["order"]) > memory:
+        if (t["kind"] in ("orders-dense", "derive-old")
+                and dense_estimate(t["size"], t["order"]) > memory):
             need = dense_estimate(t["size"], t["order"]) / 2**30
             r = dict(t, skipped=f"not run: estimated {need:.1f} GiB (cap {memory / 2**30:.1f} "
                                 f"GiB); the issue measured 14.6-15.2 GB for 4x4 order 4",
                      estimate_gib=need)
         else:
-            r = run_child(t, args.limit, memory)
+            r = run_child(t, args.limit, memory, args.before_src)
         results.append(r)
         status = r.get("error") or r.get("skipped") or f"{r['seconds']:.2f} s, {r['peak_mb']:.0f} MB"
         print(f"  {t['kind']:<13} {label(t):<22} order {t['order']}: {status}", file=sys.stderr,
