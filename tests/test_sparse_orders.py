@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import json
 from fractions import Fraction
+from math import comb
 
 import numpy as np
 import pytest
@@ -23,6 +24,7 @@ import scipy.sparse as sp
 
 import lowfold
 from lowfold.build.hamiltonian import build_basis, hamiltonian_matrix
+from lowfold.jobs.check_levels import levels_to_compare
 from lowfold.jobs.check_mirror import mirror_images, reversed_states
 from lowfold.jobs.derive import _blocks, _whole_manifold, derive
 from lowfold.model.sector import Sector
@@ -312,9 +314,24 @@ def _spec_with_field():
 
 def test_check_with_and_without_spin_reversal_agree(monkeypatch):
     """The exact check reusing the levels of spin-reversed blocks gives the same errors as
-    computing every block (8-site chain, order 4, blocks above the dense limit)."""
+    computing every block (8-site chain, order 4, blocks above the dense limit, so the
+    preconditioned LOBPCG runs), and its levels are those of ARPACK (scipy's eigsh) on each
+    S^z block, an independent Lanczos."""
+    from scipy.sparse.linalg import eigsh
+
     model = hubbard("chain", [8], "open")
     fast = derive(model, 4, check_levels=4)
+    reference = []
+    for sz in range(-4, 5):
+        _, (h0, v) = block_matrices(model, sz)
+        h = (h0 + v).tocsr()
+        count = levels_to_compare(4, comb(8, 4 + sz), h.shape[0])
+        if h.shape[0] <= 1200:
+            values = np.linalg.eigvalsh(h.toarray())[:count]
+        else:
+            values = eigsh(h, k=count, which="SA", tol=1e-12, return_eigenvectors=False)
+        reference += list(values)
+    assert fast.check.exact == pytest.approx(sorted(reference), abs=1e-9)
     import lowfold.jobs.check as check_module
     monkeypatch.setattr(check_module, "mirror_images", lambda *args: False)
     slow = derive(model, 4, check_levels=4)
