@@ -80,13 +80,14 @@ def run_orders(task: dict, dense: bool) -> dict:
         p_states = manifold.states[block.p_positions]
         largest = max(largest, p_states.size)
         tick = time.perf_counter()
-        working, v_work = working_operator(v, p_states, max(1, order // 2),
-                                           outer=order > 1 and order % 2 == 1)
+        working, v_work, distance = working_operator(v, p_states, max(1, order // 2),
+                                                     outer=order > 1 and order % 2 == 1,
+                                                     by_shell=True)
         space_seconds += time.perf_counter() - tick
         working_states = max(working_states, working.size)
         energies = diagonal_energies(h0, working)
-        _, costs = effective_orders(energies, v_work, np.searchsorted(working, p_states), order,
-                                    dense=dense)
+        _, costs = effective_orders(energies, v_work, np.arange(p_states.size), order,
+                                    dense=dense, check_v=False, distance=distance)
         for row, cost in zip(per_order, costs):
             row["seconds"] += cost.seconds
             row["effective_bytes"] += cost.effective_bytes

@@ -216,6 +216,16 @@ def test_working_operator_gives_the_orders_of_the_full_reachable_space(order):
     old = effective_hamiltonian_orders(e, v_old, p, order)
     for a, b in zip(new, old):
         assert np.max(np.abs(a - b), initial=0.0) <= TOL
+    # ordered by shells with their distances, as derive calls it: the same orders
+    shells, v_shells, distance = working_operator(v, p_states, order // 2,
+                                                  outer=order % 2 == 1, by_shell=True)
+    assert np.array_equal(np.sort(shells), working)
+    assert np.array_equal(shells[:p_states.size], p_states) and distance[0] == 0
+    e_shells = np.real(h0.diagonal(shells))
+    by_shell, _ = effective_orders(e_shells, v_shells, np.arange(p_states.size), order,
+                                   check_v=False, distance=distance)
+    for a, b in zip(by_shell, old):
+        assert np.max(np.abs(a.toarray() - b), initial=0.0) <= TOL
 
 
 # ----------------------------------------------------------------------------- the physics

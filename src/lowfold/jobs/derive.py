@@ -201,7 +201,7 @@ def _block_orders(p_states, h0, v, order, n_slots):
         return orders, diag, [OrderCost(m, matrix_bytes(h), seconds=seconds if m == 2 else 0.0)
                               for m, h in enumerate(orders)]
     try:
-        working, v_work = working_operator(v, p_states, max(1, order // 2),
+        working, v_work, distance = working_operator(v, p_states, max(1, order // 2),
                                            outer=order > 1 and order % 2 == 1,
                                            max_states=MAX_WORKING_STATES, by_shell=True)
     except SizeError as exc:
@@ -210,7 +210,8 @@ def _block_orders(p_states, h0, v, order, n_slots):
     energies = diagonal_energies(h0, working)
     p_index = np.arange(p_states.size)          # P first, in the order of p_states
     diag = manifold_diagnostics(energies, v_work, p_index, working)
-    orders, costs = effective_orders(energies, v_work, p_index, order, check_v=False)
+    orders, costs = effective_orders(energies, v_work, p_index, order, check_v=False,
+                                     distance=distance)
     return orders, diag, costs
 
 

@@ -231,12 +231,13 @@ def working_operator(v: CompiledOperator, p_states: np.ndarray, steps: int, *,
 
     ``SizeError`` as soon as more than ``max_states`` states are reached.  With ``by_shell``
     the states come ordered by distance from P (P first, each shell ascending), the order
-    the Schrieffer-Wolff recursion works in, so that it needs no permuted copy of V.
+    the Schrieffer-Wolff recursion works in, so that it needs no permuted copy of V, and
+    the distance of each state (its shell) is returned as a third item.
 
     Returns
     -------
-    (1-d int64 array, CSR matrix)
-        The states and ``<i|V|j>`` on them (``V`` must be Hermitian).
+    (1-d int64 array, CSR matrix[, 1-d int8 array])
+        The states and ``<i|V|j>`` on them (``V`` must be Hermitian)[, their distances].
     """
     visited = _sorted_unique(p_states)
     frontier = visited
@@ -266,6 +267,7 @@ def working_operator(v: CompiledOperator, p_states: np.ndarray, steps: int, *,
     if by_shell:
         visited_order = np.concatenate(shells)
         position[np.searchsorted(visited, visited_order)] = np.arange(size, dtype=index_type)
+        distance = np.repeat(np.arange(len(shells), dtype=np.int8), [x.size for x in shells])
     del shells
     row_parts, col_parts, data_parts = [], [], []
     for number in range(len(found)):
@@ -284,7 +286,8 @@ def working_operator(v: CompiledOperator, p_states: np.ndarray, steps: int, *,
             data_parts.append(np.conj(amp[in_shell]))
         del image
     if not data_parts:
-        return visited_order, sp.csr_matrix((size, size), dtype=v.dtype)
+        empty = sp.csr_matrix((size, size), dtype=v.dtype)
+        return (visited_order, empty, distance) if by_shell else (visited_order, empty)
     rows, cols = np.concatenate(row_parts), np.concatenate(col_parts)
     del row_parts, col_parts
     data = np.concatenate(data_parts)
@@ -293,7 +296,7 @@ def working_operator(v: CompiledOperator, p_states: np.ndarray, steps: int, *,
     del rows, cols, data
     matrix = matrix.tocsr()
     matrix.sum_duplicates()
-    return visited_order, matrix
+    return (visited_order, matrix, distance) if by_shell else (visited_order, matrix)
 
 
 def restricted_operator(op: CompiledOperator, states: np.ndarray, n_slots: int) -> sp.csr_matrix:

@@ -117,7 +117,7 @@ def effective_hamiltonian_orders(h0_diag, v, p_index, order, *, gap_tol=1e-9, he
 
 
 def effective_orders(h0_diag, v, p_index, order, *, gap_tol=1e-9, herm_tol=1e-8,
-                     drop_tol=DROP_TOL, dense=False, check_v=True):
+                     drop_tol=DROP_TOL, dense=False, check_v=True, distance=None):
     """The orders as CSR matrices and what each order kept in memory.
 
     Parameters are those of :func:`effective_hamiltonian_orders`, and
@@ -131,6 +131,10 @@ def effective_orders(h0_diag, v, p_index, order, *, gap_tol=1e-9, herm_tol=1e-8,
     check_v : bool, keyword-only
         Check that V is Hermitian (a caller whose V is Hermitian by construction, such as
         ``derive``, skips the copy of V that the check takes).
+    distance : 1-d int array, keyword-only
+        Steps of V from P to each state, when the caller knows them (e.g. from
+        ``manifold.working_operator``); a value may be smaller than the true distance (more
+        entries are then kept), never larger.  Default: found from the pattern of V.
 
     Returns
     -------
@@ -139,7 +143,7 @@ def effective_orders(h0_diag, v, p_index, order, *, gap_tol=1e-9, herm_tol=1e-8,
     e, vmat, p_index, order = _validate(h0_diag, v, p_index, order, herm_tol, check_v)
     gap = _check_gap(e[p_index], np.delete(e, p_index), gap_tol)
     return sparse_orders(e, vmat, p_index, order, gap, generator_coefficients(order),
-                         herm_tol=herm_tol, drop_tol=drop_tol, dense=dense)
+                         herm_tol=herm_tol, drop_tol=drop_tol, dense=dense, distance=distance)
 
 
 def _validate(h0_diag, v, p_index, order, herm_tol, check_v=True):

@@ -80,7 +80,7 @@ def matrix_bytes(x) -> int:
 
 
 def sparse_orders(e, vmat, p_index, order, gap, coefficients, *, herm_tol=1e-8,
-                  drop_tol=DROP_TOL, dense=False):
+                  drop_tol=DROP_TOL, dense=False, distance=None):
     """``[H_eff,0 .. H_eff,order]`` on P and the cost of each order.
 
     Parameters
@@ -102,6 +102,9 @@ def sparse_orders(e, vmat, p_index, order, gap, coefficients, *, herm_tol=1e-8,
         Entries at or below ``drop_tol`` times their matrix's largest entry are dropped.
     dense : bool
         The slow twin: no entry dropped, dense P-P blocks (ndarrays) out.
+    distance : (D,) int array or None
+        Steps of V from P to each state (at most the true ones; capped at order // 2 + 1),
+        when known; else found from the pattern of V.
 
     Returns
     -------
@@ -124,7 +127,7 @@ def sparse_orders(e, vmat, p_index, order, gap, coefficients, *, herm_tol=1e-8,
 
     start = time.perf_counter()
     a, b = coefficients
-    space = _Space(e, vmat, p_index, order, drop_tol)
+    space = _Space(e, vmat, p_index, order, drop_tol, distance)
     v_d, v_od = space.v_parts()
     gens = [None, space.solve_l(v_od, 1)]  # gens[m] = S_m
     nested = {(0, 0): v_od}  # nested[k, m] = S^k_m(V_od), an order-(m+1) quantity
@@ -196,8 +199,11 @@ class _Space:
     with the other entries dropped: intermediates stay small, truncated space or not.
     """
 
-    def __init__(self, e, vmat, p_index, order, drop_tol):
-        dist = distances(vmat, p_index, order // 2)
+    def __init__(self, e, vmat, p_index, order, drop_tol, distance=None):
+        if distance is None:
+            dist = distances(vmat, p_index, order // 2)
+        else:
+            dist = np.minimum(np.asarray(distance, dtype=np.int64), order // 2 + 1)
         q_index = np.delete(np.arange(e.size), p_index)
         q_index = q_index[np.argsort(dist[q_index], kind="stable")]
         perm = np.concatenate([p_index, q_index])
