@@ -3,7 +3,8 @@ low-lying levels of the same cluster, and optionally the fitted power of the err
 
 For each S^z block of the manifold the lowest levels of the block's sector are found (dense,
 or LOBPCG started from the effective eigenvectors: ``lowfold.jobs.check_levels`` says which
-and how many); the error of the sum to order n must fall
+and how many); a -S^z block that is the spin reversal of the S^z block, entry by entry,
+takes the S^z block's levels (``lowfold.jobs.check_mirror``); the error of the sum to order n must fall
 like lambda^(n+1) when the couplings of V are scaled by lambda (DESIGN.md, "Perturbation
 theory used"), which ``fit_scaling`` measures at lambda = 0.8, 0.64, 0.5, 0.4.
 """
@@ -19,6 +20,7 @@ import scipy.linalg as la
 from lowfold.build.basis import sector_size
 from lowfold.build.hamiltonian import available_memory, build_basis, compile_operator, hamiltonian_matrix
 from lowfold.errors import SizeError
+from lowfold.jobs.check_mirror import mirror_images
 from lowfold.jobs.check_levels import (DEFAULT_CHECK_LEVELS, check_levels_value, exact_lowest,
                                        levels_to_compare)
 from lowfold.model.model import Model
@@ -88,7 +90,10 @@ def exact_check(model: Model, states: np.ndarray, energies: np.ndarray, orders: 
                             f"({max(sizes):,} states), more than the {_gib(limit)} allowed")
     except SizeError as exc:
         return None, None, [f"exact check skipped: {exc}"]
-    for number, (block, k) in enumerate(zip(blocks, counts)):
+    described_by_block = {}
+    previous = None        # the last block computed, for its spin-reversed partner
+    for number in sorted(range(len(blocks)), key=lambda i: _mirror_key(blocks[i].sector)):
+        block, k = blocks[number], counts[number]
         say(f"exact check, block {number + 1}/{len(blocks)}: lowest {k} of "
             f"{block.p_positions.size} levels, {sizes[number]:,} states")
         block_model = model.with_sector(block.sector)
@@ -103,25 +108,37 @@ def exact_check(model: Model, states: np.ndarray, energies: np.ndarray, orders: 
                                 f"spectrum and the sector block has {basis.size:,} states"]
         if not at_bottom:
             k = idx.size        # levels matched by nearness: all of them
-        described.append(CheckedBlock(_sz_text(block.sector), k, idx.size))
+        described_by_block[number] = CheckedBlock(_sz_text(block.sector), k, idx.size)
         partial = [orders[m][idx][:, idx].toarray() for m in range(order + 1)]
+        mirror = None
+        if (previous is not None and block.sector.sz is not None and block.sector.sz != 0
+                and previous[0] == -block.sector.sz and previous[4] == (k, at_bottom)
+                and mirror_images(model, previous[1], previous[2], basis, (h0, v))):
+            mirror = previous[3]        # the same exact levels (check_mirror)
+        exact_by_factor = {}
         for factor in factors:
             effective = sum(factor**m * partial[m] for m in range(order + 1))
-            guess = np.zeros((basis.size, k), dtype=effective.dtype)
-            effective_levels, vectors = la.eigh(effective)
-            guess[p_in_basis] = vectors[:, :k]
-            exact = _exact_levels(h0 + factor * v, guess, effective_levels, at_bottom,
-                                  p_in_basis, effective)
+            if mirror is not None:
+                exact = mirror[factor]
+            else:
+                guess = np.zeros((basis.size, k), dtype=effective.dtype)
+                effective_levels, vectors = la.eigh(effective)
+                guess[p_in_basis] = vectors[:, :k]
+                exact = _exact_levels(h0 + factor * v, guess, effective_levels, at_bottom,
+                                      p_in_basis, effective)
+            exact_by_factor[factor] = exact
             if factor == 1.0:
                 exact_all.extend(exact.tolist())
             running = np.zeros_like(partial[0])
             for m in range(order + 1):
                 running = running + factor**m * partial[m]
-                error = float(np.max(np.abs(la.eigvalsh(running)[:k] - exact)))
+                values = la.eigvalsh(running, subset_by_index=[0, k - 1])
+                error = float(np.max(np.abs(values - exact)))
                 scaled[(factor, m)] = max(scaled.get((factor, m), 0.0), error)
                 if factor == 1.0:
-                    ground.setdefault(m, []).append(
-                        (float(exact[0]), float(la.eigvalsh(running, subset_by_index=[0, 0])[0])))
+                    ground.setdefault(m, []).append((float(exact[0]), float(values[0])))
+        previous = (block.sector.sz, basis, (h0, v), exact_by_factor, (k, at_bottom))
+    described = [described_by_block[number] for number in range(len(blocks))]
     lowest = {m: min(pairs) for m, pairs in ground.items()}
     check = DeriveCheck(tuple(sorted(exact_all)), {m: scaled[(1.0, m)] for m in range(order + 1)},
                         levels, tuple(described),
@@ -136,11 +153,20 @@ def check_memory_estimate(model: Model, sizes: list[int], counts: list[int]) -> 
     Per sector block of ``s`` states: the basis (8 bytes a state and as much for its
     index), two CSR matrices (H0 and V: 12 bytes an entry, at most one entry per operator
     string acting on a state, plus the diagonal) and their sum, and 8 vectors per level
-    compared (the LOBPCG blocks and the start), 16 bytes an entry (complex in general).
+    compared (the LOBPCG blocks and the start), 16 bytes an entry (complex in general); the
+    basis and matrices of the previous block are kept beside them (its spin-reversed
+    partner may follow).
     """
     op = compile_operator(model, check_sector=False)
     per_row = 1 + int(op.offdiagonal_strings.size)
-    return max(16 * s + 3 * 12 * per_row * s + 8 * 16 * k * s for s, k in zip(sizes, counts))
+    stored = [16 * s + 3 * 12 * per_row * s for s in sizes]
+    return max(2 * stored[i] + 8 * 16 * k * s for i, (s, k) in enumerate(zip(sizes, counts)))
+
+
+def _mirror_key(sector: Sector):
+    """Blocks ordered by |S^z|, -S^z before S^z: spin-reversed partners come one after the
+    other."""
+    return (0, 0) if sector.sz is None else (abs(sector.sz), sector.sz)
 
 
 def _gib(n: int) -> str:

@@ -10,6 +10,7 @@ order with the exact low-lying spectrum of the same cluster.
 from __future__ import annotations
 
 import dataclasses
+import time
 from fractions import Fraction
 from typing import Callable
 
@@ -30,11 +31,11 @@ from lowfold.model.sector import sz_note
 from lowfold.perturbation.diagnostics import (check_divergence, manifold_diagnostics,
                                               merge_diagnostics)
 from lowfold.perturbation.manifold import (Manifold, diagonal_energies, find_manifold,
-                                           reachable_from_states, restricted_operator,
-                                           split_operators)
+                                           reachable_from_states, split_operators,
+                                           working_operator)
 from lowfold.perturbation.orders import MAX_SCHRIEFFER_WOLFF_ORDER, validate_order
-from lowfold.perturbation.schrieffer_wolff import (effective_hamiltonian_orders,
-                                                   second_order_matrix_free)
+from lowfold.perturbation.schrieffer_wolff import effective_orders, second_order_matrix_free
+from lowfold.perturbation.sparse_orders import OrderCost, matrix_bytes
 from lowfold.readout.local_form import read_local_form
 from lowfold.readout.rationals import recognise_couplings
 from lowfold.readout.spin_form import read_spin_form
@@ -112,17 +113,18 @@ def derive(model: Model, order: int | None = None, *, compare_exact: bool = True
     n_slots = model.n_sites * model.site.modes
     dim = manifold.dimension
     pieces = [[] for _ in range(order + 1)]
-    parts = []
+    parts, costs = [], []
     for number, block in enumerate(blocks):
         p_states = manifold.states[block.p_positions]
         say(f"block {number + 1}/{len(blocks)}: {p_states.size:,} manifold states, order {order}")
         try:
-            block_orders, diag = _block_orders(p_states, h0, v, order, n_slots)
+            block_orders, diag, block_costs = _block_orders(p_states, h0, v, order, n_slots)
         except MemoryError:
             raise SizeError(f"order {order} on {p_states.size:,} manifold states of one S^z "
                             "block does not fit in memory; use a lower order or a smaller "
                             "cluster") from None
         parts.append(diag)
+        costs.append(block_costs)
         for m, h in enumerate(block_orders):
             h = sp.coo_matrix(h)
             pieces[m].append((block.p_positions[h.row], block.p_positions[h.col], h.data))
@@ -132,6 +134,7 @@ def derive(model: Model, order: int | None = None, *, compare_exact: bool = True
               for piece in pieces]
     label_of = lambda s: state_labels(model, np.array([s]))[0]      # noqa: E731
     diagnostics = merge_diagnostics(parts, label_of)
+    diagnostics.memory = _order_costs(costs, orders)
     warnings += list(diagnostics.warnings)
     labels = state_labels(model, manifold.states) if dim <= 4096 else []
     readout = _read_out(model, manifold.states, orders)
@@ -193,15 +196,23 @@ def _blocks(model: Model, manifold: Manifold, by_sz: bool) -> list[ManifoldBlock
             for value in np.unique(sz2)]
 
 
+def _order_costs(costs: list[list[OrderCost]], orders: list) -> list[OrderCost]:
+    """Cost of each order over the S^z blocks: the bytes of the merged ``H_eff,m``, the
+    generator and commutator bytes of the largest block (blocks are computed one after the
+    other), the seconds summed."""
+    return [OrderCost(m, matrix_bytes(h), max(c[m].generator_bytes for c in costs),
+                      max(c[m].commutator_bytes for c in costs), sum(c[m].seconds for c in costs))
+            for m, h in enumerate(orders)]
+
+
 def _block_orders(p_states, h0, v, order, n_slots):
-    """Orders of the effective Hamiltonian of one block, and its diagnostics."""
-    working = reachable_from_states(v, p_states, max(1, order // 2))
-    energies = diagonal_energies(h0, working)
-    p_index = np.searchsorted(working, p_states)
-    if order > 2 and working.size > MAX_WORKING_STATES:
-        raise SizeError(f"order {order} needs {working.size:,} intermediate states in one S^z "
-                        f"block (limit {MAX_WORKING_STATES:,}); use a lower order or a smaller cluster")
+    """Orders of the effective Hamiltonian of one block (CSR), its diagnostics and the cost
+    of each order."""
+    start = time.perf_counter()
     if order == 2:
+        working = reachable_from_states(v, p_states, 1)
+        energies = diagonal_energies(h0, working)
+        p_index = np.searchsorted(working, p_states)
         v_pq_parts = _coupling_rows(v, p_states, working, n_slots)
         q_mask = np.ones(working.size, dtype=bool)
         q_mask[p_index] = False
@@ -210,10 +221,23 @@ def _block_orders(p_states, h0, v, order, n_slots):
         diag = manifold_diagnostics(energies, _embed(v_pq_parts, p_index, working.size),
                                     p_index, working)
         h2 = second_order_matrix_free(energies[p_index], energies[q_mask], v_pq)
-        return [sp.diags(energies[p_index]).tocsr(), sp.csr_matrix(v_pp), h2], diag
-    v_work = restricted_operator(v, working, n_slots)
+        orders = [sp.diags(energies[p_index]).astype(h2.dtype).tocsr(), sp.csr_matrix(v_pp), h2]
+        seconds = time.perf_counter() - start
+        return orders, diag, [OrderCost(m, matrix_bytes(h), seconds=seconds if m == 2 else 0.0)
+                              for m, h in enumerate(orders)]
+    try:
+        working, v_work, distance = working_operator(v, p_states, max(1, order // 2),
+                                           outer=order > 1 and order % 2 == 1,
+                                           max_states=MAX_WORKING_STATES, by_shell=True)
+    except SizeError as exc:
+        raise SizeError(f"order {order} in one S^z block: {exc}; use a lower order or a "
+                        "smaller cluster") from None
+    energies = diagonal_energies(h0, working)
+    p_index = np.arange(p_states.size)          # P first, in the order of p_states
     diag = manifold_diagnostics(energies, v_work, p_index, working)
-    return effective_hamiltonian_orders(energies, v_work, p_index, order), diag
+    orders, costs = effective_orders(energies, v_work, p_index, order, check_v=False,
+                                     distance=distance)
+    return orders, diag, costs
 
 
 def _coupling_rows(v, p_states, working, n_slots) -> sp.csr_matrix:

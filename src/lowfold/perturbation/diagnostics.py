@@ -37,6 +37,7 @@ class Diagnostics:
     closest_states: tuple[int, int] | None = None     # (P state, Q state), as integers
     typical_denominator: float = np.nan
     warnings: list[str] = field(default_factory=list)
+    memory: list = field(default_factory=list)    # OrderCost of each order (sparse_orders)
 
     @property
     def validity_ratio(self) -> float:
@@ -54,7 +55,8 @@ class Diagnostics:
                 "max_coupling_out": float(self.max_coupling_out),
                 "gap": finite(self.gap),
                 "smallest_denominator": finite(self.smallest_denominator),
-                "closest_states": closest}
+                "closest_states": closest,
+                "memory": {str(c.order): c.to_dict() for c in self.memory}}
 
 
 def manifold_diagnostics(h0_diag: np.ndarray, v: sp.spmatrix, p_index: np.ndarray,
@@ -75,7 +77,8 @@ def manifold_diagnostics(h0_diag: np.ndarray, v: sp.spmatrix, p_index: np.ndarra
     diag.max_coupling_out = float(np.abs(coupling.data).max())
     lo, hi = e_p.min(), e_p.max()
     distance = np.where(e_q > hi, e_q - hi, np.where(e_q < lo, lo - e_q, 0.0))
-    reached = np.unique(coupling.col)
+    reached = np.zeros(q_index.size, dtype=bool)
+    reached[coupling.col] = True
     diag.gap = float(distance[reached].min())
     denominators = np.abs(e_p[coupling.row] - e_q[coupling.col])
     k = int(np.argmin(denominators))

@@ -23,11 +23,11 @@ import scipy.sparse as sp
 from lowfold.build.basis import explicit_basis
 from lowfold.build.hamiltonian import build_basis
 from lowfold.build.compiled import CompiledOperator, compile_operator
-from lowfold.errors import ManifoldError, ModelError
+from lowfold.errors import ManifoldError, ModelError, SizeError
 from lowfold.model.model import Model
 
 __all__ = ["Manifold", "split_operators", "find_manifold", "reachable_from_states",
-           "restricted_operator", "diagonal_energies"]
+           "restricted_operator", "working_operator", "diagonal_energies"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -174,21 +174,129 @@ def _manifold_by_sites(model: Model, h0: CompiledOperator, spec):
     return states[done], energy[done] + constant
 
 
+def _sorted_unique(x: np.ndarray) -> np.ndarray:
+    """Ascending distinct values of an int array, by sorting (``np.unique`` of numpy 2.4
+    hashes, which is tens of times slower on millions of encoded states)."""
+    x = np.sort(np.asarray(x, dtype=np.int64), kind="stable")
+    if x.size < 2:
+        return x
+    keep = np.empty(x.size, dtype=bool)
+    keep[0] = True
+    np.not_equal(x[1:], x[:-1], out=keep[1:])
+    return x[keep]
+
+
+def _member(x: np.ndarray, sorted_set: np.ndarray) -> np.ndarray:
+    """``x[i] in sorted_set`` for each i (``sorted_set`` ascending and distinct)."""
+    if sorted_set.size == 0:
+        return np.zeros(x.shape, dtype=bool)
+    pos = np.minimum(np.searchsorted(sorted_set, x), sorted_set.size - 1)
+    return sorted_set[pos] == x
+
+
+def _new_states(images: np.ndarray, visited: np.ndarray) -> np.ndarray:
+    """The distinct images not yet visited, ascending."""
+    images = _sorted_unique(images)
+    return images[~_member(images, visited)]
+
+
 def reachable_from_states(v: CompiledOperator, p_states: np.ndarray, steps: int) -> np.ndarray:
     """The encoded states ``p_states`` together with every state reachable from them by at
     most ``steps`` applications of the compiled ``v``, ascending (breadth first).
 
     Compare ``lowfold.perturbation.schrieffer_wolff.reachable_indices``, the same search on
     basis indices with a matrix."""
-    visited = np.unique(p_states)
+    visited = _sorted_unique(p_states)
     frontier = visited
     for _ in range(steps):
         if frontier.size == 0 or v.offdiagonal_strings.size == 0:
             break
-        new = np.unique(v.apply_to_states(frontier, v.offdiagonal_strings).states)
-        frontier = new[~np.isin(new, visited, assume_unique=True)]
-        visited = np.union1d(visited, frontier)
+        frontier = _new_states(v.apply_to_states(frontier, v.offdiagonal_strings).states, visited)
+        visited = _sorted_unique(np.concatenate([visited, frontier]))
     return visited
+
+
+def working_operator(v: CompiledOperator, p_states: np.ndarray, steps: int, *,
+                     outer: bool, max_states: int | None = None, by_shell: bool = False
+                     ) -> tuple[np.ndarray, sp.csr_matrix]:
+    """The states reachable from ``p_states`` in at most ``steps`` applications of ``v``
+    (ascending, as :func:`reachable_from_states`) and the matrix of ``v`` among them, found
+    in one breadth-first pass.
+
+    ``v`` is applied to the states nearer than ``steps`` only; the entries between them and
+    the outermost shell follow from Hermiticity (``V_ij = conj(V_ji)``).  The entries inside
+    the outermost shell (by far the largest set) are built only when ``outer`` is true: an
+    order-n effective Hamiltonian with ``steps = n // 2`` needs them for odd n alone
+    (an order-1 quantity enters only with ``dist(i) + dist(j) <= n - 1``).
+
+    ``SizeError`` as soon as more than ``max_states`` states are reached.  With ``by_shell``
+    the states come ordered by distance from P (P first, each shell ascending), the order
+    the Schrieffer-Wolff recursion works in, so that it needs no permuted copy of V, and
+    the distance of each state (its shell) is returned as a third item.
+
+    Returns
+    -------
+    (1-d int64 array, CSR matrix[, 1-d int8 array])
+        The states and ``<i|V|j>`` on them (``V`` must be Hermitian)[, their distances].
+    """
+    visited = _sorted_unique(p_states)
+    frontier = visited
+    shells = [visited]
+    found = []          # (source states, image states, amplitudes) of each expanded shell
+    for _ in range(steps):
+        if frontier.size == 0:
+            break
+        rows, new, amps = v.apply_to_states(frontier)
+        found.append((frontier[rows], new, amps))
+        frontier = _new_states(new, visited)
+        shells.append(frontier)
+        visited = _sorted_unique(np.concatenate([visited, frontier]))
+        if max_states is not None and visited.size > max_states:
+            raise SizeError(f"{visited.size:,} intermediate states are reached within "
+                            f"{len(found)} steps of V (limit {max_states:,})")
+    shell = frontier if found else np.zeros(0, dtype=np.int64)
+    inner_entries = len(found)
+    if outer and shell.size:
+        rows, new, amps = v.apply_to_states(shell)
+        inside = _member(new, shell)
+        found.append((shell[rows[inside]], new[inside], amps[inside]))
+    size = visited.size
+    index_type = np.int32 if size < 2**31 - 1 else np.int64
+    position = np.arange(size, dtype=index_type)
+    visited_order = visited
+    if by_shell:
+        visited_order = np.concatenate(shells)
+        position[np.searchsorted(visited, visited_order)] = np.arange(size, dtype=index_type)
+        distance = np.repeat(np.arange(len(shells), dtype=np.int8), [x.size for x in shells])
+    del shells
+    row_parts, col_parts, data_parts = [], [], []
+    for number in range(len(found)):
+        source, image, amp = found[number]
+        found[number] = None                            # free each shell's images when read
+        col = position[np.searchsorted(visited, source)]
+        del source
+        row = position[np.searchsorted(visited, image)]
+        row_parts.append(row)
+        col_parts.append(col)
+        data_parts.append(amp)
+        if number < inner_entries and shell.size:     # the partners in the outer shell
+            in_shell = _member(image, shell)
+            row_parts.append(col[in_shell])
+            col_parts.append(row[in_shell])
+            data_parts.append(np.conj(amp[in_shell]))
+        del image
+    if not data_parts:
+        empty = sp.csr_matrix((size, size), dtype=v.dtype)
+        return (visited_order, empty, distance) if by_shell else (visited_order, empty)
+    rows, cols = np.concatenate(row_parts), np.concatenate(col_parts)
+    del row_parts, col_parts
+    data = np.concatenate(data_parts)
+    del data_parts
+    matrix = sp.coo_matrix((data, (rows, cols)), shape=(size, size))
+    del rows, cols, data
+    matrix = matrix.tocsr()
+    matrix.sum_duplicates()
+    return (visited_order, matrix, distance) if by_shell else (visited_order, matrix)
 
 
 def restricted_operator(op: CompiledOperator, states: np.ndarray, n_slots: int) -> sp.csr_matrix:

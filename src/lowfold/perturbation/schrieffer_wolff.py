@@ -27,14 +27,15 @@ from math import comb, factorial
 import numpy as np
 import scipy.linalg
 import scipy.sparse as sp
-import scipy.sparse.linalg
 
 from lowfold.build.numerics import second_order_product
 from lowfold.perturbation.orders import MAX_SCHRIEFFER_WOLFF_ORDER, validate_order
-from lowfold.errors import LowfoldError, ManifoldError, ModelError
+from lowfold.perturbation.sparse_orders import DROP_TOL, distances, sparse_orders
+from lowfold.errors import ManifoldError, ModelError
 
 __all__ = [
     "effective_hamiltonian_orders",
+    "effective_orders",
     "second_order_matrix_free",
     "exact_effective_hamiltonian",
     "reachable_indices",
@@ -76,7 +77,8 @@ def _bernoulli(n):
     return bern
 
 
-def effective_hamiltonian_orders(h0_diag, v, p_index, order, *, gap_tol=1e-9, herm_tol=1e-8):
+def effective_hamiltonian_orders(h0_diag, v, p_index, order, *, gap_tol=1e-9, herm_tol=1e-8,
+                                 sparse=False):
     """Schrieffer-Wolff effective Hamiltonian of each order, ``[H_eff_0, ..., H_eff_order]``.
 
     Parameters
@@ -96,10 +98,13 @@ def effective_hamiltonian_orders(h0_diag, v, p_index, order, *, gap_tol=1e-9, he
     herm_tol : float, keyword-only
         Relative tolerance of the Hermiticity checks on V (ModelError) and on each
         ``H_eff,m`` (LowfoldError), relative to its natural scale ``|V| (|V|/gap)^(m-1)``.
+    sparse : bool, keyword-only
+        Return CSR matrices (the computation is sparse either way; see
+        :func:`effective_orders` for the cost of each order).
 
     Returns
     -------
-    list of (dimP, dimP) ndarray
+    list of (dimP, dimP) ndarray (CSR matrices with ``sparse=True``)
         ``H_eff_m`` for m = 0..order; Hermitian, real when V is real.
 
     Notes
@@ -107,133 +112,41 @@ def effective_hamiltonian_orders(h0_diag, v, p_index, order, *, gap_tol=1e-9, he
     The working space may be the full space or the states reachable from P by at most
     floor(order/2) applications of V; both give the same result.
     """
-    e, vmat, p_index, order = _validate(h0_diag, v, p_index, order, herm_tol)
-    n_p = p_index.size
-    gap = _check_gap(e[p_index], np.delete(e, p_index), gap_tol)
-    vnorm = max(scipy.sparse.linalg.norm(vmat, 1), np.finfo(float).tiny)
-    orders = [np.diag(e[p_index]).astype(vmat.dtype)]
-    if order >= 1:
-        v_pp = vmat[p_index][:, p_index].toarray()
-        orders.append(_hermitian_part(v_pp, vnorm, herm_tol, 1))
-    if order < 2:
-        return orders
-
-    space = _Space(e, vmat, p_index, order)
-    v_d = space.restrict(space.select(space.v, offdiag=False), 1)
-    v_od = space.restrict(space.select(space.v, offdiag=True), 1)
-    a, b = generator_coefficients(order)
-    gens = [None, space.solve_l(v_od, 1)]  # gens[m] = S_m
-    nested = {(0, 0): v_od}  # nested[k, m] = S^k_m(V_od), an order-(m+1) quantity
-    for m in range(1, order):
-        last = m == order - 1
-        for k in range(1, m + 1):
-            if last and k % 2 == 0:
-                continue  # only the odd ones enter H_eff, and there is no S_order
-            nested[k, m] = sum(space.commutator(gens[n], nested[k - 1, m - n], m + 1)
-                               for n in range(1, m - k + 2) if (k - 1, m - n) in nested)
-        h_m = sum(b[k] * nested[k, m][:n_p, :n_p].toarray() for k in range(1, m + 1, 2))
-        scale = vnorm * (vnorm / gap) ** m
-        orders.append(_hermitian_part(h_m, scale, herm_tol, m + 1))
-        if not last:
-            rhs = space.commutator(gens[m], v_d, m + 1)
-            for k in range(2, m + 1, 2):
-                rhs = rhs + a[k] * nested[k, m]
-            gens.append(space.solve_l(rhs, m + 1))
-    return orders
+    orders, _ = effective_orders(h0_diag, v, p_index, order, gap_tol=gap_tol, herm_tol=herm_tol)
+    return orders if sparse else [h.toarray() for h in orders]
 
 
-class _Space:
-    """The working space ordered by distance from P (P first), and the sparse operations.
+def effective_orders(h0_diag, v, p_index, order, *, gap_tol=1e-9, herm_tol=1e-8,
+                     drop_tol=DROP_TOL, dense=False, check_v=True, distance=None):
+    """The orders as CSR matrices and what each order kept in memory.
 
-    An order-m quantity X enters the order-n result only through products A X B with A, B
-    of total order n - m; since A_ai != 0 needs dist(i) <= order(A), only the entries with
-    dist(i) + dist(j) <= n - m matter (and then both distances are <= n/2). Each order-m
-    matrix is stored as its leading block over the states with dist <= min(n - m, n/2),
-    with the other entries dropped: intermediates stay small, truncated space or not.
+    Parameters are those of :func:`effective_hamiltonian_orders`, and
+
+    drop_tol : float, keyword-only
+        Entries at or below ``drop_tol`` times the largest entry of their matrix (each
+        order's natural scale) are round-off and dropped.
+    dense : bool, keyword-only
+        The slow twin (tests, benchmarks): no entry dropped, each order's P-P block made a
+        dense array (the orders come back as ndarrays).
+    check_v : bool, keyword-only
+        Check that V is Hermitian (a caller whose V is Hermitian by construction, such as
+        ``derive``, skips the copy of V that the check takes).
+    distance : 1-d int array, keyword-only
+        Steps of V from P to each state, when the caller knows them (e.g. from
+        ``manifold.working_operator``); a value may be smaller than the true distance (more
+        entries are then kept), never larger.  Default: found from the pattern of V.
+
+    Returns
+    -------
+    (list of CSR matrices, list of :class:`lowfold.perturbation.sparse_orders.OrderCost`)
     """
-
-    def __init__(self, e, vmat, p_index, order):
-        dist = _distances(vmat, p_index, order // 2)
-        q_index = np.delete(np.arange(e.size), p_index)
-        q_index = q_index[np.argsort(dist[q_index], kind="stable")]
-        perm = np.concatenate([p_index, q_index])
-        self.e, self.dist, self.order, self.n_p = e[perm], dist[perm], order, p_index.size
-        self.v = vmat[perm][:, perm].tocsr()
-
-    def size(self, m):
-        """Number of states an order-m quantity can touch."""
-        budget = min(self.order - m, self.order // 2)
-        return int(np.searchsorted(self.dist, budget, side="right"))
-
-    def restrict(self, x, m):
-        """Leading block of an order-m quantity, without the entries that cannot contribute."""
-        c = self.size(m)
-        x = x[:c, :c].tocsr()
-        row, col = _coordinates(x)
-        return _keep(x, row, self.dist[row] + self.dist[col] <= self.order - m)
-
-    def commutator(self, s, x, m):
-        """[S, X], an order-m quantity (operands may be stored at different sizes)."""
-        c = self.size(m)
-        return self.restrict(_product(s, x, c) - _product(x, s, c), m)
-
-    def select(self, x, *, offdiag):
-        """Block-off-diagonal (P-Q) or block-diagonal part of x."""
-        row, col = _coordinates(x)
-        return _keep(x, row, ((row < self.n_p) != (col < self.n_p)) == offdiag)
-
-    def solve_l(self, x, m):
-        """S = L(X) for an order-m X: P-Q part of X divided by E_i - E_j, entry by entry."""
-        x = self.restrict(self.select(x, offdiag=True), m)
-        row, col = _coordinates(x)
-        x.data /= self.e[row] - self.e[col]
-        return x
+    e, vmat, p_index, order = _validate(h0_diag, v, p_index, order, herm_tol, check_v)
+    gap = _check_gap(e[p_index], np.delete(e, p_index), gap_tol)
+    return sparse_orders(e, vmat, p_index, order, gap, generator_coefficients(order),
+                         herm_tol=herm_tol, drop_tol=drop_tol, dense=dense, distance=distance)
 
 
-def _product(a, b, c):
-    """Leading c x c block of a @ b, for matrices stored as leading blocks of sizes."""
-    inner = min(a.shape[1], b.shape[0])
-    return a[:c, :inner] @ b[:inner, :c]
-
-
-def _coordinates(x):
-    """Row and column index of each stored entry of a CSR matrix."""
-    return np.repeat(np.arange(x.shape[0]), np.diff(x.indptr)), x.indices
-
-
-def _keep(x, row, keep):
-    """The CSR matrix x with only the stored entries selected by a boolean mask."""
-    indptr = np.zeros(x.shape[0] + 1, dtype=np.int64)
-    np.cumsum(np.bincount(row[keep], minlength=x.shape[0]), out=indptr[1:])
-    return sp.csr_matrix((x.data[keep], x.indices[keep], indptr), shape=x.shape)
-
-
-def _distances(vmat, p_index, steps):
-    """Number of applications of V from P to each state; steps + 1 if more than steps."""
-    pattern = abs(vmat).T.tocsr()  # (pattern @ x)_j > 0 iff V_ij x_i != 0 for some i
-    dist = np.full(vmat.shape[0], steps + 1, dtype=np.int64)
-    dist[p_index] = 0
-    front = (dist == 0).astype(float)
-    for step in range(1, steps + 1):
-        new = (pattern @ front > 0) & (dist > step)
-        if not new.any():
-            break
-        dist[new] = step
-        front = new.astype(float)
-    return dist
-
-
-def _hermitian_part(h, scale, herm_tol, m):
-    """Remove round-off from a Hermitian matrix after checking its anti-Hermitian part."""
-    anti = np.max(np.abs(h - h.conj().T), initial=0.0) / 2
-    if anti > herm_tol * max(scale, np.max(np.abs(h), initial=0.0)):
-        raise LowfoldError(
-            f"the order-{m} effective Hamiltonian has an anti-Hermitian part of size {anti:.3g} "
-            f"(natural scale {scale:.3g}); the manifold is ill-conditioned, check the gap")
-    return (h + h.conj().T) / 2
-
-
-def _validate(h0_diag, v, p_index, order, herm_tol):
+def _validate(h0_diag, v, p_index, order, herm_tol, check_v=True):
     """Checked arrays (energies, CSR V, P indices, order) or ModelError."""
     e = np.asarray(h0_diag)
     if e.ndim != 1 or e.size == 0:
@@ -248,11 +161,13 @@ def _validate(h0_diag, v, p_index, order, herm_tol):
     vmat = sp.csr_matrix(v)
     if vmat.shape != (e.size, e.size):
         raise ModelError(f"v has shape {vmat.shape}; expected ({e.size}, {e.size}) like h0_diag")
-    vmat = vmat.astype(complex if np.iscomplexobj(vmat.data) else float)
+    # scipy sorts indices in place: share the caller's arrays only when they are canonical
+    shared = vmat.has_canonical_format and vmat.data.flags.c_contiguous
+    vmat = vmat.astype(complex if np.iscomplexobj(vmat.data) else float, copy=not shared)
     vmax = np.max(np.abs(vmat.data), initial=0.0)
     if not np.isfinite(vmax):
         raise ModelError("v contains inf or nan")
-    if np.max(np.abs((vmat - vmat.conj().T).data), initial=0.0) > herm_tol * vmax:
+    if check_v and np.max(np.abs((vmat - vmat.conj().T).data), initial=0.0) > herm_tol * vmax:
         raise ModelError("v is not Hermitian; pass the full Hermitian matrix, both triangles")
     p_index = _check_indices(p_index, e.size)
     return e, vmat, p_index, validate_order(order, minimum=0, maximum=MAX_SCHRIEFFER_WOLFF_ORDER)
@@ -266,7 +181,7 @@ def _check_indices(p_index, dim):
                          "(for a boolean mask pass np.flatnonzero(mask))")
     if p.min() < 0 or p.max() >= dim:
         raise ModelError(f"p_index must lie in [0, {dim}), got [{p.min()}, {p.max()}]")
-    if np.unique(p).size != p.size:
+    if p.size > 1 and np.any(np.diff(np.sort(p)) == 0):
         raise ModelError("p_index contains repeated states")
     return p.astype(np.int64)
 
@@ -392,4 +307,4 @@ def reachable_indices(v, p_index, steps):
     p = _check_indices(p_index, vmat.shape[0])
     if isinstance(steps, bool) or not isinstance(steps, (int, np.integer)) or steps < 0:
         raise ModelError(f"steps must be an integer >= 0, got {steps!r}")
-    return np.flatnonzero(_distances(vmat, p, int(steps)) <= steps)
+    return np.flatnonzero(distances(vmat, p, int(steps)) <= steps)

@@ -65,6 +65,7 @@ class ManifoldDiagnostics:
     gap: float | None
     smallest_denominator: float | None
     closest_states: tuple[str, str] | None
+    memory: dict | None = None    # "<n>" -> bytes kept and seconds of order n
 
     @classmethod
     def from_diagnostics(cls, diag, label_of) -> "ManifoldDiagnostics":
@@ -75,13 +76,16 @@ class ManifoldDiagnostics:
     def to_dict(self) -> dict:
         return {"validity_ratio": self.validity_ratio, "max_coupling_out": self.max_coupling_out,
                 "gap": self.gap, "smallest_denominator": self.smallest_denominator,
-                "closest_states": list(self.closest_states) if self.closest_states else None}
+                "closest_states": list(self.closest_states) if self.closest_states else None,
+                **({"memory": self.memory} if self.memory is not None else {})}
 
     @classmethod
     def from_dict(cls, data: Mapping) -> "ManifoldDiagnostics":
         closest = data.get("closest_states")
+        memory = data.get("memory")
         return cls(data["validity_ratio"], float(data["max_coupling_out"]), data["gap"],
-                   data["smallest_denominator"], tuple(closest) if closest else None)
+                   data["smallest_denominator"], tuple(closest) if closest else None,
+                   {str(m): dict(c) for m, c in memory.items()} if memory is not None else None)
 
 
 @dataclass(frozen=True)
