@@ -8,7 +8,7 @@ carry the fermion sign of the periodic ring (I_j in Z + M/2, J_a in Z + (N - M +
 the helper); ``test_the_quantum_numbers_carry_the_ring_sign`` shows that the other choice,
 the symmetric set without the twist, gives a different energy when M is even.
 
-Default run: 8-12 sites; 14 sites is marked slow (about a minute on two shared cores); the
+Default run: 8-12 sites; 14 sites is marked slow (20 s to 3 minutes, by the load); the
 16-site ring is measured by ``benchmarks/bench_product.py``.
 """
 
