@@ -31,39 +31,13 @@ import lowfold
 from helpers import reference as ref
 from helpers.cli import one_json_object, run_all, succeeded
 from helpers.exact import heisenberg
+from helpers.lattice_models import hubbard_text
 from lowfold.jobs.lattice_check import check_cluster, lattice_check
 
 
 def chain_text(t: float, u: float, order: int) -> str:
     """The half-filled Hubbard chain, H0 = U n_up n_dn - (U/2) n, V the hopping."""
-    return f"""
-title = "Hubbard chain of quantum dots"
-[lattice]
-shape = "chain"
-boundary = "infinite"
-[site]
-type = "electron"
-[parameters]
-t = {t}
-U = {u}
-mu = {-u / 2}
-[[term]]
-label = "hop"
-type = "hopping"
-strength = "t"
-bonds = "nearest"
-[[term]]
-label = "U"
-type = "hubbard"
-strength = "U"
-[[term]]
-label = "mu"
-type = "potential"
-strength = "mu"
-[perturbation]
-unperturbed = ["U", "mu"]
-order = {order}
-"""
+    return hubbard_text("chain", order=order, t=t, u=u)
 
 
 def infinite_chain(t: float, u: float, order: int):

@@ -15,7 +15,7 @@ T, U = 1.0, 10.0
 
 
 def hubbard_text(shape: str = "chain", *, boundary: str = "infinite", size=None,
-                 order: int = 4, extra: str = "") -> str:
+                 order: int = 4, extra: str = "", t: float = T, u: float = U) -> str:
     """Model file of the Hubbard model with the chemical potential -U/2 in H0."""
     lattice = f'shape = "{shape}"\nboundary = "{boundary}"\n' + (f"size = {size}\n" if size else "")
     return f"""
@@ -24,9 +24,9 @@ def hubbard_text(shape: str = "chain", *, boundary: str = "infinite", size=None,
 [site]
 type = "electron"
 [parameters]
-t = {T}
-U = {U}
-mu = {-U / 2}
+t = {t}
+U = {u}
+mu = {-u / 2}
 [[term]]
 label = "hop"
 type = "hopping"
