@@ -19,6 +19,11 @@ compile time and lazy imports are not counted:
   as ``benchmarks/bench_build.py``); rings of 12 and 14 sites only (the 16-site matrix does
   not fit in memory).
 
+Rings also get the Bethe-ansatz ground-state energy of the same finite ring (Lieb & Wu, PRL
+20, 1445 (1968), solved by ``tests/helpers/bethe_ansatz.py``, as the tests do): column
+``dE BA`` is lowfold's energy minus it.  Goals (issue: scale): 16 sites in under 10 minutes and
+8 GB, 14 sites in under a minute.
+
 Both tools get the same thread settings.  The machine is shared and noisy: compare the
 ratios of one run, not times across runs.  Results go to
 ``benchmarks/results/bench_product.json``.
@@ -167,8 +172,21 @@ def summarise(results: list[dict]) -> list[dict]:
         row["cpu_speedup"] = (q["cpu_s"] / r["cpu_s"]) if q.get("cpu_s") and r.get("cpu_s") else None
         row["energy_difference"] = (abs(q["energies"][0] - row["energy"])
                                     if q and row["energy"] is not None else None)
+        row["bethe_difference"] = _bethe_difference(r["cluster"], row["energy"])
         rows.append(row)
     return rows
+
+
+def _bethe_difference(cluster: str, energy) -> float | None:
+    """lowfold's energy minus the Lieb-Wu energy of the finite ring (rings only)."""
+    shape, size = CLUSTERS[cluster]
+    if shape != "chain" or energy is None:
+        return None
+    sys.path.insert(0, str(HERE.parent / "tests"))
+    from helpers.bethe_ansatz import lieb_wu_energy
+
+    L = size[0]
+    return energy - lieb_wu_energy(L, L, L // 2, HUBBARD_U)
 
 
 def fmt(value, spec):
@@ -178,7 +196,8 @@ def fmt(value, spec):
 def print_table(rows: list[dict]) -> None:
     header = (f"{'cluster':<10} {'states':>12} {'total s':>8} {'CPU s':>8} {'build s':>8} "
               f"{'Lanczos s':>9} {'steps':>5} {'peak MB':>8} {'QuSpin s':>9} {'CPU s':>8} "
-              f"{'QuSpin MB':>9} {'x':>6} {'x CPU':>6} {'dE':>8} {'load':>5}  {'E0':>16}")
+              f"{'QuSpin MB':>9} {'x':>6} {'x CPU':>6} {'dE':>8} {'dE BA':>8} {'load':>5}  "
+              f"{'E0':>16}")
     print(header)
     print("-" * len(header))
     for r in rows:
@@ -191,7 +210,8 @@ def print_table(rows: list[dict]) -> None:
               f"{fmt(r['peak_mb'], '.0f'):>8} {fmt(r['quspin_total_s'], '.2f'):>9} "
               f"{fmt(r['quspin_cpu_s'], '.2f'):>8} {fmt(r['quspin_peak_mb'], '.0f'):>9} "
               f"{fmt(r['speedup'], '.2f'):>6} {fmt(r['cpu_speedup'], '.2f'):>6} "
-              f"{fmt(r['energy_difference'], '.1e'):>8} {fmt(r['load'], '.1f'):>5}"
+              f"{fmt(r['energy_difference'], '.1e'):>8} {fmt(r['bethe_difference'], '.1e'):>8} "
+              f"{fmt(r['load'], '.1f'):>5}"
               f"  {fmt(r['energy'], '.10f'):>16}")
         if r["quspin_error"]:
             print(f"{'':<10} QuSpin: {r['quspin_error']}")
