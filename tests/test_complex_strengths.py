@@ -139,7 +139,7 @@ BAD = {
     "flux_on_a_chain": (dimer(hopping="flux = 0.1"), "needs a two-dimensional lattice"),
     "flux_periodic": (dimer(hopping="flux = 0.1").replace('shape = "chain"\nsize = [2]',
                       'shape = "square"\nsize = [2, 2]\nboundary = "periodic"').replace(
-                      "particles = 2", "particles = 4"), "needs open boundaries"),
+                      "particles = 2", "particles = 4"), "whole number of flux quanta"),
     "flux_and_phases": (dimer(hopping="bonds = [[0, 1]]\nphases = [0.1]\nflux = 0.2"),
                         "either phases or flux"),
     "product_without_partner": (dimer().replace(

@@ -339,11 +339,23 @@ def _hopping_keys(table: dict, kind: str, where: str) -> dict:
         if key == "flux":
             out[key] = value if isinstance(value, str) else _number(value, f"{where}.flux")
             continue
-        shape = "[lx, ly, lz]" if key == "soc" else "[phi_1, phi_2, ...] (radians)"
+        if key == "soc" and isinstance(value, list) and value and all(
+                isinstance(v, list) for v in value):          # one vector per bond
+            if not all(len(v) == 3 for v in value):
+                raise ModelError(f"{where}.soc: one vector per bond is [[lx, ly, lz], ...]")
+            out[key] = tuple(tuple(_real_or_name(x, f"{where}.soc[{b}]") for x in v)
+                             for b, v in enumerate(value))
+            continue
+        shape = ("[lx, ly, lz] or one per bond [[lx, ly, lz], ...]" if key == "soc"
+                 else "[phi_1, phi_2, ...] (radians)")
         if not isinstance(value, list) or (key == "soc" and len(value) != 3):
             raise ModelError(f"{where}.{key}: must be a list {shape}")
-        out[key] = tuple(v if isinstance(v, str) else _number(v, f"{where}.{key}") for v in value)
+        out[key] = tuple(_real_or_name(v, f"{where}.{key}") for v in value)
     return out
+
+
+def _real_or_name(value, where: str):
+    return value if isinstance(value, str) else _number(value, where)
 
 
 def _groups(value, where: str):
