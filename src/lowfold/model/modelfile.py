@@ -15,7 +15,7 @@ try:
 except ModuleNotFoundError:  # Python 3.10
     import tomli as tomllib
 
-from lowfold.model.complex_form import parse_number
+from lowfold.model.complex_form import ComplexForm, parse_number, parse_parameter
 from lowfold.model.sector import Sector, sector_totals
 from lowfold.errors import ModelError, SizeError
 from lowfold.model.lattice import make_lattice
@@ -201,8 +201,12 @@ def _parse_site(table: dict):
 def _parse_parameters(table: dict) -> dict:
     for name in table:
         check_label(name, "parameters: name")
-    return {name: check_strength(parse_number(value, f"parameters.{name}"), f"parameters.{name}")
-            for name, value in table.items()}
+    out = {}
+    for name, value in table.items():
+        value = parse_parameter(value, f"parameters.{name}")
+        out[name] = value if isinstance(value, ComplexForm) else check_strength(
+            value, f"parameters.{name}")
+    return out
 
 
 def _parse_sector(table: dict, site, n_sites: int) -> Sector:
