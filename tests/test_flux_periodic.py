@@ -13,6 +13,9 @@ Checks against results from outside lowfold:
   ``kx = 2 pi m / Lx`` (``m < Lx/q``) and ``ky = 2 pi n / Ly``.  It is built here in numpy
   from that recipe, in another gauge than lowfold's, and the spectra must agree (gauge
   invariance; both gauges have trivial Wilson loops around the torus);
+- the ring exchange ``80 t^4 cos(2 pi Phi) / U^3`` of each plaquette of a half-filled
+  Hubbard square torus at fourth order, equal to that of an open plaquette, and the
+  error of the order-n levels falling like (t/U)^(n+1);
 - the scalar chirality ``-24 t^3 sin(2 pi Phi) / U^2`` of each triangle of a half-filled
   Hubbard triangular torus at third order (D. Sen & R. Chitra, PRB 51, 1922 (1995), from
   memory; sign and magnitude fixed by the exact check of tests/test_flux_chirality.py),
@@ -145,6 +148,53 @@ def test_triangular_torus_chirality_is_that_of_an_open_triangle():
         ordered = tuple(sorted(cycle))
         sign = 1 if ordered in [cycle[k:] + cycle[:k] for k in range(3)] else -1
         assert sign * chi[ordered] == pytest.approx(expected, rel=1e-8), cycle
+
+
+def square_hubbard(size, boundary, flux, t=0.1, U=8.0, sz=None):
+    sector = {"particles": size[0] * size[1]}
+    if sz is not None:
+        sector["sz"] = sz
+    return parse_model({
+        "lattice": {"shape": "square", "size": size, "boundary": boundary},
+        "site": {"type": "electron"}, "sector": sector,
+        "parameters": {"t": t, "U": U, "phi": flux},
+        "term": [{"type": "hopping", "strength": "t", "flux": "phi"},
+                 {"type": "hubbard", "strength": "U"}],
+        "perturbation": {"unperturbed": ["hubbard"], "order": 4}})
+
+
+def rings(model) -> dict:
+    return {frozenset(c.sites): float(c.orders[4])
+            for c in derive(model, compare_exact=False).couplings if c.kind == "ring"}
+
+
+@pytest.mark.parametrize("flux", [1 / 9, 2 / 9])
+def test_square_torus_ring_exchange_is_that_of_an_open_plaquette(flux):
+    """Fourth order on the half-filled 3 x 3 torus: every one of its 9 plaquettes carries
+    the ring exchange of an open 2 x 2 plaquette, ``K = 80 t^4 cos(2 pi Phi) / U^3`` (80
+    t^4/U^3 at Phi = 0: A. H. MacDonald, S. M. Girvin & D. Yoshioka, PRB 37, 9753 (1988),
+    from memory; each ring process carries an electron around the plaquette, with
+    ``exp(+-2 pi i Phi)`` for the two orientations, common practice)."""
+    t, U = 0.1, 8.0
+    expected = 80 * t**4 * math.cos(2 * math.pi * flux) / U**3
+    (plaquette,) = rings(square_hubbard([2, 2], "open", flux, t, U)).values()
+    assert plaquette == pytest.approx(expected, rel=1e-9)
+    model = square_hubbard([3, 3], "periodic", flux, t, U, sz=0.5)
+    found = rings(model)
+    plaquettes = faces(model.lattice, 4)
+    assert len(plaquettes) == 9
+    for cycle, _ in plaquettes:
+        assert found[frozenset(cycle)] == pytest.approx(expected, rel=1e-9), cycle
+
+
+def test_torus_effective_levels_converge_with_the_next_power():
+    """derive's check on the 3 x 3 square torus at Phi = 1/9: the error of the order-n
+    levels against the exact ones falls at least like (t/U)^(n+1) when t is halved."""
+    errors = [derive(square_hubbard([3, 3], "periodic", 1 / 9, t, sz=0.5)).check.max_abs_error
+              for t in (0.4, 0.2)]
+    for n in (2, 3, 4):
+        power = math.log(errors[0][n] / errors[1][n], 2)
+        assert power > n + 1 - 0.2, (n, power)
 
 
 def one_lowered_site(flux, t, order=5):
