@@ -75,6 +75,29 @@ def test_every_face_collects_its_flux(shape, size, boundary, flux, lengths, n_sm
         assert product == pytest.approx(expected, rel=1e-11, abs=1e-13), (cycle, area)
 
 
+def test_diagonal_bonds_across_the_boundary_enclose_half_a_square():
+    """Next-nearest (diagonal) bonds take the phase of the same field: each of the 32
+    half-squares of a 4 x 4 torus, drawn with two sides and a diagonal, holds Phi/2."""
+    flux = 3 / 16
+    model = parse_model({
+        "lattice": {"shape": "square", "size": [4, 4], "boundary": "periodic"},
+        "site": {"type": "fermion"}, "sector": {"particles": 1},
+        "term": [{"type": "hopping", "strength": 1.0, "flux": flux},
+                 {"type": "hopping", "label": "diagonal", "strength": 0.5, "flux": flux,
+                  "bonds": "next-nearest"}]})
+    h = Hamiltonian.of(model).to_csr().toarray()
+
+    def site(x, y):
+        return x % 4 + 4 * (y % 4)
+
+    for x in range(4):
+        for y in range(4):
+            for cycle in ([site(x, y), site(x + 1, y), site(x + 1, y + 1)],
+                          [site(x, y), site(x + 1, y + 1), site(x, y + 1)]):
+                product = np.prod([h[b, a] for a, b in zip(cycle, cycle[1:] + cycle[:1])])
+                assert product == pytest.approx(-0.5 * np.exp(1j * math.pi * flux), rel=1e-12)
+
+
 def harper_levels(lx, ly, p, q, t=1.0):
     """The one-particle levels of the Hofstadter model on an ``lx x ly`` torus from the q x q
     magnetic Bloch matrices (module docstring)."""
