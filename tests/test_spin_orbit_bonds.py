@@ -97,6 +97,24 @@ def test_effective_levels_converge_to_quspin_like_the_next_order():
         assert np.log2(big / small) > n + 1 - 0.1, (n, big, small)
 
 
+def test_a_triangle_with_phases_and_three_vectors_matches_quspin():
+    """On a loop the spin-orbit vectors cannot all be rotated away: the spectrum of a Hubbard
+    triangle with a phase and its own vector on each bond, against QuSpin's build of the
+    same hops ``exp(i phi_ij) (t 1 + i lambda_ij . sigma)``."""
+    bonds = [(0, 1), (1, 2), (2, 0)]
+    vectors = [(0.03, 0.0, 0.02), (0.0, -0.04, 0.01), (0.05, 0.02, 0.0)]
+    phases = [0.3, -0.2, 0.7]
+    model = parse_model({
+        "lattice": {"shape": "graph", "sites": 3, "bonds": [[0, 1], [1, 2], [0, 2]]},
+        "site": {"type": "electron"}, "sector": {"particles": 3},
+        "term": [{"type": "hopping", "strength": T, "bonds": [list(b) for b in bonds],
+                  "phases": phases, "soc": [list(v) for v in vectors]},
+                 {"type": "hubbard", "strength": U}]})
+    hops = [(i, j, hop_matrix(T, v, phase=p)) for (i, j), v, p in zip(bonds, vectors, phases)]
+    np.testing.assert_allclose(spectrum(model, 20).energies, quspin_electron_levels(3, hops, U, 3),
+                               atol=1e-12)
+
+
 def test_vectors_along_z_on_every_bond_keep_sz():
     lam_a, lam_b = np.array([0, 0, 0.03]), np.array([0, 0, -0.05])
     whole = spectrum(chain(lam_a=lam_a, lam_b=lam_b), 20).energies
