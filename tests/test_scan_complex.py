@@ -153,26 +153,33 @@ def test_a_computed_parameter_is_changed_through_its_parts():
 
 def test_a_stored_scan_keeps_real_keys_and_columns(tmp_path):
     """The whole route: run_scan on one worker stores each point with real parameters and
-    writes tc.re / tc.im columns; the stored chirality is the formula."""
+    writes tc.re / tc.im columns; the stored chirality, read as the plots read it, is the
+    formula, also at theta = 0 where it vanishes."""
     from distributed import Client
 
     from lowfold.scans.cluster import start_local_cluster
     from lowfold.scans.run import run_scan
+    from lowfold.scans.select import scalar
     from lowfold.scans.store import load_results
 
     (tmp_path / "triangle.toml").write_text(TRIANGLE)
     (tmp_path / "scan.toml").write_text('model = "triangle.toml"\n[task]\nname = "derive"\n'
-                                        'check = false\n[grid]\ntheta = [0.3, 0.8]\n')
+                                        'check = false\n[grid]\ntheta = [0.0, 0.3, 0.8]\n')
     with start_local_cluster(1) as cluster, Client(cluster) as client:
         summary = run_scan(tmp_path / "scan.toml", out=tmp_path / "out", client=client,
                            progress=False)
-    assert summary.ok and summary.computed == 2
+    assert summary.ok and summary.computed == 3
     for record in load_results(tmp_path / "out"):
         assert all(isinstance(v, float) for v in record["parameters"].values())
         theta = record["parameters"]["theta"]
         assert record["parameters"]["tc.im"] == pytest.approx(0.5 * math.sin(theta), rel=1e-14)
-        chi = [c for c in record["result"]["couplings"] if c["kind"] == "chirality"][0]
-        assert chi["orders"]["3"] == pytest.approx(expected(0.5, theta, 0.0), rel=1e-9)
+        # the selector of the plots: at theta = 0 the readout leaves the chirality out (zero)
+        chi = scalar(record, "coupling:chirality:0-1-2", order=3)
+        assert chi == pytest.approx(expected(0.5, theta, 0.0), rel=1e-9, abs=1e-15)
+        for wrong in ("coupling:chirality:0-1", "coupling:chirality:0-1-7", "coupling:chiral:0-1-2"):
+            if theta == 0.0:
+                with pytest.raises(ModelError, match="no coupling"):
+                    scalar(record, wrong)
     with open(tmp_path / "out" / "results.csv", newline="") as handle:
         header = next(csv.reader(handle))
     assert {"tc.re", "tc.im", "t", "theta"} <= set(header)
