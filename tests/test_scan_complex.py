@@ -176,7 +176,9 @@ def test_a_stored_scan_keeps_real_keys_and_columns(tmp_path):
         # the selector of the plots: at theta = 0 the readout leaves the chirality out (zero)
         chi = scalar(record, "coupling:chirality:0-1-2", order=3)
         assert chi == pytest.approx(expected(0.5, theta, 0.0), rel=1e-9, abs=1e-15)
-        for wrong in ("coupling:chirality:0-1", "coupling:chirality:0-1-7", "coupling:chiral:0-1-2"):
+        wrong_selectors = ("coupling:chirality:0-1", "coupling:chirality:0-1-7",
+                           "coupling:chiral:0-1-2")
+        for wrong in wrong_selectors:
             if theta == 0.0:
                 with pytest.raises(ModelError, match="no coupling"):
                     scalar(record, wrong)

@@ -156,7 +156,7 @@ def _shortest_image(d, a, sizes, periodic, pair, where: str) -> tuple[int, int]:
     options.sort()
     if len(options) > 1 and options[1][0] - options[0][0] < _TIE:
         raise ModelError(f"{where}: bond {list(pair)} joins its sites by two equally short "
-                         "paths across the periodic boundary (a periodic direction of 2 cells); "
-                         "a flux gives them different phases, which one bond cannot carry: use "
-                         "more cells or open boundaries")
+                         "paths across the periodic boundary (e.g. a periodic direction of 2 "
+                         "cells); a flux gives them different phases, which one bond cannot "
+                         "carry: use more cells or open boundaries")
     return options[0][1]
