@@ -125,6 +125,12 @@ def test_scanning_a_complex_parameter_itself_is_refused():
         points({"tc": [0.1]}, literal)
 
 
+def test_a_part_name_that_clashes_with_a_parameter_is_refused():
+    text = TRIANGLE.replace("U = 8.0\n", 'U = 8.0\n"tc.re" = 1.0\n')
+    with pytest.raises(ModelError, match=r"model: parameters: 'tc.re' is also the stored name"):
+        points({"phi": [0.1]}, model_of(text))
+
+
 def test_a_scanned_part_the_form_refuses_names_the_grid_key():
     with pytest.raises(ModelError, match=r"grid\.t: .*modulus must be >= 0"):
         points({"t": [0.5, -0.5]})

@@ -176,7 +176,10 @@ def plan_scan(spec: ScanSpec, model=None) -> list[ScanPoint]:
         params = {k: v for k, v in values.items() if k in model.parameters}
         point_model = _with_grid_parameters(spec, point_model, params)
         sector, problem = _point_sector(model.sector, spec.sector, values, point_model.n_sites)
-        parameters = stored_parameters(point_model)
+        try:
+            parameters = stored_parameters(point_model)
+        except ModelError as exc:
+            raise scan_error(spec.source, "model", str(exc)) from None
         sector_dict = _sector_dict(sector) if sector is not None else {"error": problem}
         key = point_key(parameters=parameters, size=size,
                         boundary=list(boundary) if isinstance(boundary, tuple) else boundary,
