@@ -124,7 +124,8 @@ BAD = {
     "missing_im": (dimer(t="{re = 0.1}"), "parameters.t: a complex number is"),
     "mixed_forms": (dimer(t="{re = 0.1, im = 0.0, phase = 1.0}"), "a complex number is"),
     "negative_modulus": (dimer(t="{abs = -0.1, phase = 0.5}"), "parameters.t.abs"),
-    "text_part": (dimer(t='{re = "a", im = 0.0}'), "parameters.t.re: must be a finite number"),
+    "text_part": (dimer(t='{re = "a", im = 0.0}'),
+                  "parameters.t.re: parameter 'a' is not defined in [parameters]"),
     "infinite_part": (dimer(t="{re = inf, im = 0.0}"), "must be a finite number"),
     "complex_hubbard": (dimer(U="{re = 8.0, im = 0.1}"), "needs a real strength"),
     "phases_on_a_class": (dimer(hopping="phases = [0.3]"), "phases need explicit bonds"),
@@ -139,7 +140,7 @@ BAD = {
     "flux_on_a_chain": (dimer(hopping="flux = 0.1"), "needs a two-dimensional lattice"),
     "flux_periodic": (dimer(hopping="flux = 0.1").replace('shape = "chain"\nsize = [2]',
                       'shape = "square"\nsize = [2, 2]\nboundary = "periodic"').replace(
-                      "particles = 2", "particles = 4"), "needs open boundaries"),
+                      "particles = 2", "particles = 4"), "whole number of flux quanta"),
     "flux_and_phases": (dimer(hopping="bonds = [[0, 1]]\nphases = [0.1]\nflux = 0.2"),
                         "either phases or flux"),
     "product_without_partner": (dimer().replace(

@@ -209,11 +209,10 @@ def test_series_third_order_is_the_loop_product(flux):
     assert abs(partial[5] - exact) < abs(partial[3] - exact) < abs(partial[2] - exact)
 
 
-def test_a_scan_over_the_flux_plans_real_points_and_refuses_complex_parameters():
+def test_a_scan_over_the_flux_plans_real_points():
     """A scan grid over the real flux parameter ``phi`` gives one model per flux whose
-    chirality follows ``-24 t^3 sin(2 pi phi)/U^2``; a complex parameter is refused (stored
-    scan keys and plots are real)."""
-    from lowfold import ModelError
+    chirality follows ``-24 t^3 sin(2 pi phi)/U^2`` (complex parameters in scans:
+    tests/test_scan_complex.py)."""
     from lowfold.scans.plan import plan_scan
     from lowfold.scans.scanfile import parse_scan
 
@@ -224,11 +223,6 @@ def test_a_scan_over_the_flux_plans_real_points_and_refuses_complex_parameters()
         phi = point.parameters["phi"]
         chi = chirality(derive(point.model, compare_exact=False))
         assert chi == pytest.approx(-24 * T**3 * math.sin(2 * math.pi * phi) / U**2, rel=1e-9)
-    complex_model = three_dots(0.1)
-    spec = parse_scan({"task": {"name": "spectrum"}, "grid": {"phi": [0.1]}},
-                      source="dots scan", model=complex_model)
-    with pytest.raises(ModelError, match="parameter 't' of .* is complex"):
-        plan_scan(spec, complex_model)
 
 
 def hexagons(lattice):

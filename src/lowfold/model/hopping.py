@@ -19,12 +19,15 @@ A ``hopping`` term of strength ``s`` on the bonds ``(i, j)`` it selects is
 - ``phases = [...]``: ``phi_ij`` in radians, one per listed bond (explicit ``bonds`` only);
 - ``flux = Phi``: the Peierls phases of a uniform field perpendicular to the plane with a
   flux ``Phi`` (flux quanta) through the smallest face of the lattice (the triangle of
-  triangular and kagome, the square of square and ladder, the hexagon of honeycomb), in the
-  symmetric gauge ``phi_ij = pi B (r_j x r_i)_z`` with ``B = Phi / (area of the face)``;
-  open two-dimensional clusters only (the symmetric gauge is not periodic);
+  triangular and kagome, the square of square and ladder, the hexagon of honeycomb): the
+  symmetric gauge on open clusters, a Landau gauge with magnetic translations on periodic
+  ones, where a torus needs a whole number of flux quanta in all
+  (:mod:`lowfold.model.flux_gauge`);
 - ``soc = [lx, ly, lz]``: the real vector ``lambda`` (numbers or parameter names) of the
-  spin-orbit hopping ``i lambda . sigma`` of electrons.  ``lambda`` along z conserves S^z;
-  any other direction does not (:func:`breaks_sz`).
+  spin-orbit hopping ``i lambda . sigma`` of electrons, the same on every bond; or ``soc =
+  [[lx, ly, lz], ...]``, one vector per bond of an explicit ``bonds`` list (like
+  ``phases``).  ``lambda`` along z conserves S^z; any other direction does not
+  (:func:`breaks_sz`).
 
 With ``s`` real, no phases and no ``soc`` the products are those of the plain hopping
 ``-s (c+_i c_j + c+_j c_i)``, real floats.
@@ -38,13 +41,10 @@ import math
 import numpy as np
 
 from lowfold.errors import ModelError
+from lowfold.model.flux_gauge import FACE_AREAS, flux_phases
 
-__all__ = ["hopping_products", "bond_phases", "soc_vector", "breaks_sz", "FACE_AREAS"]
+__all__ = ["hopping_products", "bond_phases", "soc_vectors", "breaks_sz", "FACE_AREAS"]
 
-_S3 = math.sqrt(3.0)
-# smallest face of each two-dimensional shape with a flux (nearest-neighbour distance 1)
-FACE_AREAS = {"triangular": _S3 / 4, "kagome": _S3 / 4, "square": 1.0, "ladder": 1.0,
-              "honeycomb": 3 * _S3 / 2}
 _SPIN = ("up", "dn")
 _PAULI = (np.array([[0, 1], [1, 0]], dtype=complex),
           np.array([[0, -1j], [1j, 0]], dtype=complex),
@@ -66,22 +66,45 @@ def _value(value, parameters, where: str) -> float:
     return float(value)
 
 
-def soc_vector(term, parameters) -> tuple[float, float, float] | None:
-    """The real spin-orbit vector ``lambda`` of a hopping term, or ``None``."""
+def _per_bond(soc) -> bool:
+    """Whether ``soc`` lists one vector per bond (``[[lx, ly, lz], ...]``)."""
+    return bool(soc) and all(isinstance(v, (list, tuple)) for v in soc)
+
+
+def _vector(entries, parameters, where: str) -> tuple[float, float, float]:
+    if not isinstance(entries, (list, tuple)) or len(entries) != 3:
+        raise ModelError(f"{where} must be [lx, ly, lz], got {entries!r}")
+    return tuple(_value(v, parameters, f"{where}[{k}]") for k, v in enumerate(entries))
+
+
+def soc_vectors(term, parameters, n_bonds: int | None = None) -> list | None:
+    """The real spin-orbit vectors ``lambda`` of a hopping term, one per bond, or ``None``.
+
+    ``soc = [lx, ly, lz]`` gives the same vector to each of ``n_bonds`` bonds; ``soc =
+    [[lx, ly, lz], ...]`` one per bond of an explicit bonds list (checked against
+    ``n_bonds`` when it is given).
+    """
     if term.soc is None:
         return None
-    if len(term.soc) != 3:
-        raise ModelError(f"term {term.label!r}: soc must be [lx, ly, lz], got {list(term.soc)!r}")
-    return tuple(_value(v, parameters, f"term {term.label!r}: soc[{k}]")
-                 for k, v in enumerate(term.soc))
+    where = f"term {term.label!r}: soc"
+    if not _per_bond(term.soc):
+        vector = _vector(term.soc, parameters, where)
+        return [vector] * (1 if n_bonds is None else n_bonds)
+    if term.bonds is None or isinstance(term.bonds, str):
+        raise ModelError(f"{where}: one vector per bond needs explicit bonds = [[i, j], ...] "
+                         "(one [lx, ly, lz] per listed bond, in that order)")
+    if n_bonds is not None and len(term.soc) != n_bonds:
+        count = f"{len(term.soc)} vector{'' if len(term.soc) == 1 else 's'}"
+        raise ModelError(f"{where}: {count} for {n_bonds} bonds; give one [lx, ly, lz] per "
+                         "bond")
+    return [_vector(v, parameters, f"{where}[{b}]") for b, v in enumerate(term.soc)]
 
 
 def breaks_sz(term, parameters) -> bool:
     """Whether a hopping term has a spin-orbit part not along z (then S^z is not conserved)."""
     if term.type != "hopping" or term.soc is None:
         return False
-    lx, ly, _ = soc_vector(term, parameters)
-    return lx != 0 or ly != 0
+    return any(lx != 0 or ly != 0 for lx, ly, _ in soc_vectors(term, parameters))
 
 
 def bond_phases(term, lattice, bonds, parameters) -> np.ndarray:
@@ -100,24 +123,7 @@ def bond_phases(term, lattice, bonds, parameters) -> np.ndarray:
     if term.flux is None:
         return np.zeros(len(bonds))
     flux = _value(term.flux, parameters, f"term {term.label!r}: flux")
-    return _flux_phases(term, lattice, bonds, flux)
-
-
-def _flux_phases(term, lattice, bonds, flux: float) -> np.ndarray:
-    where = f"term {term.label!r}: flux"
-    if lattice.shape not in FACE_AREAS:
-        raise ModelError(f"{where} needs a two-dimensional lattice shape ({', '.join(FACE_AREAS)}); "
-                         f"on a {lattice.shape} give phases per bond instead")
-    if lattice.infinite or any(b != "open" for b in lattice.boundary):
-        raise ModelError(f"{where} needs open boundaries (a uniform field has no periodic "
-                         "gauge on a finite torus); give phases per bond instead")
-    field = flux / FACE_AREAS[lattice.shape]
-    r = lattice.coordinates
-    if not bonds:
-        return np.zeros(0)
-    i, j = np.array(bonds, dtype=np.int64).T
-    cross = r[j, 0] * r[i, 1] - r[j, 1] * r[i, 0]          # (r_j x r_i)_z
-    return 2 * math.pi * field / 2 * cross
+    return flux_phases(lattice, bonds, flux, f"term {term.label!r}: flux")
 
 
 def _bond_list(term, lattice):
@@ -137,11 +143,11 @@ def hopping_products(term, s, lattice, site, parameters):
                          f"{site.type} sites (allowed: fermion, electron, boson)")
     bonds = _bond_list(term, lattice)
     phases = bond_phases(term, lattice, bonds, parameters)
-    soc = soc_vector(term, parameters)
+    soc = soc_vectors(term, parameters, len(bonds))
     if soc is not None and site.type != "electron":
         raise ModelError(f"term {term.label!r}: soc (spin-orbit hopping) needs electron sites, "
                          f"not {site.type} sites")
-    if soc is not None and not any(soc):
+    if soc is not None and not any(any(v) for v in soc):
         soc = None
     if site.type != "electron" or soc is None:
         pairs = {"fermion": [("c+", "c")], "boson": [("b+", "b")],
@@ -153,9 +159,9 @@ def hopping_products(term, s, lattice, site, parameters):
                 out.append((-amplitude, ((create, i), (annihilate, j))))
                 out.append((-_conj(amplitude), ((create, j), (annihilate, i))))
         return out
-    spin_part = 1j * sum(l * p for l, p in zip(soc, _PAULI))
     out = []
-    for (i, j), phi in zip(bonds, phases):
+    for (i, j), phi, vector in zip(bonds, phases, soc):
+        spin_part = 1j * sum(l * p for l, p in zip(vector, _PAULI))
         matrix = cmath.exp(1j * phi) * (complex(s) * np.eye(2) + spin_part)
         for a in range(2):
             for b in range(2):

@@ -6,6 +6,7 @@ from dataclasses import dataclass, field, replace
 from types import MappingProxyType
 from typing import Mapping
 
+from lowfold.model.complex_form import ComplexForm
 from lowfold.model.sector import Sector, check_sector_symmetry
 from lowfold.errors import ModelError
 from lowfold.model.hermiticity import check_hermitian_terms
@@ -54,6 +55,10 @@ class Model:
     for terms that do not sum to a Hermitian operator (``lowfold.model.hermiticity``).
     Term labels and parameter names are one printable line; ``title`` is any text and is
     kept exactly as given (whoever displays it escapes it for the display).
+
+    A parameter given as a :class:`~lowfold.model.complex_form.ComplexForm` (parts that name
+    real parameters, ``{abs = "t", phase = "phi"}``) moves to ``forms``; ``parameters``
+    holds its value, computed again whenever the parameters it names change.
     """
 
     lattice: Lattice
@@ -64,9 +69,10 @@ class Model:
     perturbation: PerturbationSpec | None = None
     title: str = ""
     source: str = "<model>"
+    forms: Mapping[str, ComplexForm] = field(default_factory=dict)
 
     def __post_init__(self):
-        object.__setattr__(self, "parameters", MappingProxyType(dict(self.parameters)))
+        _resolve_forms(self)
         check_state_space(self.site, self.lattice.n_sites)     # SizeError: states must fit int64
         for name, value in self.parameters.items():
             check_label(name, "parameters: name")
@@ -145,6 +151,11 @@ class Model:
         if unknown:
             raise ModelError(f"unknown parameter(s) {', '.join(unknown)} "
                              f"(defined: {', '.join(self.parameters) or 'none'})")
+        for name in values:
+            if name in self.forms:
+                form = self.forms[name]
+                raise ModelError(f"parameters.{name}: computed from {', '.join(form.names)} "
+                                 f"({name} = {form}); change those instead")
         return replace(self, parameters={**self.parameters, **values})
 
     def with_lattice(self, *, size=None, boundary=None) -> "Model":
@@ -165,6 +176,19 @@ class Model:
         spin-orbit part): the Hamiltonian is then built as complex128, else as float64."""
         return any(isinstance(c, complex) and c.imag != 0
                    for _, products in self.products() for c, _ in products)
+
+
+def _resolve_forms(model: Model) -> None:
+    """Move :class:`ComplexForm` parameters to ``model.forms`` and put their values, from
+    the real parameters they name, into ``model.parameters`` (both read-only)."""
+    values = dict(model.parameters)
+    forms = dict(model.forms)
+    forms.update({name: v for name, v in values.items() if isinstance(v, ComplexForm)})
+    named = {**values, **forms}          # a form naming a form is told it names a complex one
+    for name, form in forms.items():
+        values[name] = form.value(named, f"parameters.{name}")
+    object.__setattr__(model, "parameters", MappingProxyType(values))
+    object.__setattr__(model, "forms", MappingProxyType(forms))
 
 
 def _check_infinite_hopping(model: Model) -> None:

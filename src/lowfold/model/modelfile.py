@@ -15,7 +15,7 @@ try:
 except ModuleNotFoundError:  # Python 3.10
     import tomli as tomllib
 
-from lowfold.model.complex_form import parse_number
+from lowfold.model.complex_form import ComplexForm, parse_number, parse_parameter
 from lowfold.model.sector import Sector, sector_totals
 from lowfold.errors import ModelError, SizeError
 from lowfold.model.lattice import make_lattice
@@ -201,8 +201,12 @@ def _parse_site(table: dict):
 def _parse_parameters(table: dict) -> dict:
     for name in table:
         check_label(name, "parameters: name")
-    return {name: check_strength(parse_number(value, f"parameters.{name}"), f"parameters.{name}")
-            for name, value in table.items()}
+    out = {}
+    for name, value in table.items():
+        value = parse_parameter(value, f"parameters.{name}")
+        out[name] = value if isinstance(value, ComplexForm) else check_strength(
+            value, f"parameters.{name}")
+    return out
 
 
 def _parse_sector(table: dict, site, n_sites: int) -> Sector:
@@ -339,11 +343,23 @@ def _hopping_keys(table: dict, kind: str, where: str) -> dict:
         if key == "flux":
             out[key] = value if isinstance(value, str) else _number(value, f"{where}.flux")
             continue
-        shape = "[lx, ly, lz]" if key == "soc" else "[phi_1, phi_2, ...] (radians)"
+        if key == "soc" and isinstance(value, list) and value and all(
+                isinstance(v, list) for v in value):          # one vector per bond
+            if not all(len(v) == 3 for v in value):
+                raise ModelError(f"{where}.soc: one vector per bond is [[lx, ly, lz], ...]")
+            out[key] = tuple(tuple(_real_or_name(x, f"{where}.soc[{b}]") for x in v)
+                             for b, v in enumerate(value))
+            continue
+        shape = ("[lx, ly, lz] or one per bond [[lx, ly, lz], ...]" if key == "soc"
+                 else "[phi_1, phi_2, ...] (radians)")
         if not isinstance(value, list) or (key == "soc" and len(value) != 3):
             raise ModelError(f"{where}.{key}: must be a list {shape}")
-        out[key] = tuple(v if isinstance(v, str) else _number(v, f"{where}.{key}") for v in value)
+        out[key] = tuple(_real_or_name(v, f"{where}.{key}") for v in value)
     return out
+
+
+def _real_or_name(value, where: str):
+    return value if isinstance(value, str) else _number(value, where)
 
 
 def _groups(value, where: str):

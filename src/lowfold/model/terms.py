@@ -57,8 +57,8 @@ class Term:
     multi-spin types a tuple of site groups.  ``cycles`` (3 or 4), ``pattern`` (cell
     offsets), ``vector`` (dm) and ``tensor`` (anisotropy) serve the multi-spin types
     (:mod:`lowfold.model.spin_terms`); ``phases`` (radians, one per explicit bond),
-    ``flux`` (flux quanta per smallest face) and ``soc`` (``[lx, ly, lz]``, numbers or
-    parameter names) serve ``hopping`` (:mod:`lowfold.model.hopping`).  The label is one
+    ``flux`` (flux quanta per smallest face) and ``soc`` (``[lx, ly, lz]`` or one such
+    vector per explicit bond, numbers or parameter names) serve ``hopping`` (:mod:`lowfold.model.hopping`).  The label is one
     printable line (:func:`check_label`): it is shown in messages and tables.
     """
 
@@ -76,7 +76,7 @@ class Term:
     tensor: tuple[tuple[float, ...], ...] | None = None
     phases: tuple[float | str, ...] | None = None
     flux: float | str | None = None
-    soc: tuple[float | str, ...] | None = None
+    soc: tuple | None = None
 
     def __post_init__(self):
         check_label(self.label, "term label")

@@ -5,6 +5,12 @@ or zip of its axes) into :class:`ScanPoint` objects in grid order; each point ca
 base model with its lattice, parameters and sector applied, its store key
 (:func:`lowfold.scans.store.point_key`) and its cost (the basis dimension), by which
 :func:`order_by_cost` sorts the points biggest first for the scheduler.
+
+Grid axes are real parameters.  A model may hold complex ones: a complex parameter written
+with parameter names as parts (``tc = {abs = "t", phase = "phi"}``) follows the real
+parameters it names, so a scan over ``t`` or ``phi`` scans ``tc``; keys, records and tables
+store every complex parameter as its two real parts ``tc.re`` and ``tc.im``
+(:func:`stored_parameters`).
 """
 
 from __future__ import annotations
@@ -20,7 +26,7 @@ from lowfold.model.sector import Sector
 from lowfold.scans.scanfile import SECTOR_AXES, ScanSpec, scan_error
 from lowfold.scans.store import point_key
 
-__all__ = ["ScanPoint", "plan_scan", "order_by_cost"]
+__all__ = ["ScanPoint", "plan_scan", "order_by_cost", "stored_parameters"]
 
 
 @dataclass(frozen=True)
@@ -83,6 +89,40 @@ def _with_grid_parameters(spec: ScanSpec, model, params: Mapping[str, float]):
         raise scan_error(spec.source, "grid", str(exc)) from None
 
 
+def _check_real_axes(spec: ScanSpec, model) -> None:
+    """A grid axis must be a real parameter: a complex one is scanned through the real
+    parameters its parts name."""
+    for name, _ in spec.axes:
+        if name in model.forms:
+            names = ", ".join(model.forms[name].names)
+            raise scan_error(spec.source, f"grid.{name}", f"{name} = {model.forms[name]} is "
+                             f"complex; scan the parameters it names ({names}) instead")
+        if isinstance(model.parameters.get(name), complex):
+            raise scan_error(spec.source, f"grid.{name}", f"parameter {name!r} of "
+                             f"{spec.model_name} is complex; a scan varies real parameters: "
+                             f"write it with parameter names as parts, e.g. {name} = "
+                             '{abs = "a", phase = "phi"}, and scan those')
+
+
+def stored_parameters(model) -> dict[str, float]:
+    """The parameters of a point as stored in its key, record and table: real numbers only.
+    A complex parameter ``tc``, and one computed from others (which may be real at some
+    points and complex at others), is stored as its two parts ``tc.re`` and ``tc.im``."""
+    out = {}
+    for name, value in model.parameters.items():
+        if isinstance(value, complex) or name in model.forms:
+            value = complex(value)
+            parts = {f"{name}.re": value.real, f"{name}.im": value.imag}
+            clash = [k for k in parts if k in model.parameters]
+            if clash:
+                raise ModelError(f"parameters: {clash[0]!r} is also the stored name of a part "
+                                 f"of the complex parameter {name!r}; rename one of them")
+            out.update(parts)
+        else:
+            out[name] = float(value)
+    return out
+
+
 def _cost(model) -> float:
     """Estimated cost of a point: its basis dimension (0 if it cannot be formed)."""
     try:
@@ -108,7 +148,8 @@ def plan_scan(spec: ScanSpec, model=None) -> list[ScanPoint]:
     Raises
     ------
     ModelError
-        A grid parameter the model does not define or a value it refuses (``grid.U``), or
+        A grid parameter the model does not define, a complex one (scan the real parameters
+        its parts name), or a value the model refuses (``grid.U``), or
         a lattice size / boundary the model's lattice cannot take, too large ones included
         (``grid.size``); the message names the scan file and the key.
     """
@@ -118,11 +159,7 @@ def plan_scan(spec: ScanSpec, model=None) -> list[ScanPoint]:
             raise scan_error(spec.source, f"grid.{name}",
                              f"not a parameter of {spec.model_name} "
                              f"(parameters: {', '.join(model.parameters) or 'none'})")
-    complex_names = [k for k, v in model.parameters.items() if isinstance(v, complex)]
-    if complex_names:       # stored keys, tables and plots hold real parameters
-        raise scan_error(spec.source, "model", f"parameter {complex_names[0]!r} of "
-                         f"{spec.model_name} is complex; scans take real parameters only "
-                         "(scan a real phase, flux or spin-orbit parameter instead)")
+    _check_real_axes(spec, model)
     lattices: dict = {}
     points = []
     for values in _combinations(spec):
@@ -139,7 +176,10 @@ def plan_scan(spec: ScanSpec, model=None) -> list[ScanPoint]:
         params = {k: v for k, v in values.items() if k in model.parameters}
         point_model = _with_grid_parameters(spec, point_model, params)
         sector, problem = _point_sector(model.sector, spec.sector, values, point_model.n_sites)
-        parameters = {k: float(v) for k, v in point_model.parameters.items()}
+        try:
+            parameters = stored_parameters(point_model)
+        except ModelError as exc:
+            raise scan_error(spec.source, "model", str(exc)) from None
         sector_dict = _sector_dict(sector) if sector is not None else {"error": problem}
         key = point_key(parameters=parameters, size=size,
                         boundary=list(boundary) if isinstance(boundary, tuple) else boundary,

@@ -8,7 +8,10 @@ The plots and the finite-size fits read records through these selectors:
   derive check's exact spectrum), ``"gap:i:j"`` (``E_j - E_i``), ``"series"`` (the summed
   series energy), ``"coupling:KIND[:SITES[:COMPONENT]]"`` (e.g. ``"coupling:exchange:0-1"``,
   ``"coupling:field:2:z"``) and ``"error"`` (a derive check's max_abs_error); ``order=n``
-  sums a series or a coupling through order n.
+  sums a series or a coupling through order n.  A spin-1/2 coupling the readout left out
+  (it lists those above its tolerance only) is zero, when the selector names its kind and
+  the right number of distinct sites of the point (``coupling:chirality:0-1-2`` of a flux
+  scan at Phi = 0); any other selector that matches nothing is an error.
 
 A record's ``result`` is read through its typed result object (:func:`lowfold.scans.store.point_result`,
 :mod:`lowfold.results`), never by its JSON keys.
@@ -18,6 +21,8 @@ from __future__ import annotations
 
 import math
 from typing import Any, Mapping
+
+import numpy as np
 
 from lowfold.errors import ModelError
 from lowfold.readout.couplings import Coupling
@@ -62,11 +67,36 @@ def _component(value: Any, component: str | None, what: str) -> float:
     raise ModelError(f"{what}: no component {component!r}")
 
 
-def _coupling(result: EffectiveModel, kind: str, sites: str | None) -> Coupling:
+# spin-1/2 coupling kinds: number of sites and shape of the value (docs/output.md)
+_SPIN_KINDS = {"constant": (0, ()), "field": (1, (3,)), "exchange": (2, ()), "dm": (2, (3,)),
+               "anisotropy": (2, (3, 3)), "chirality": (3, ()), "ring": (4, ())}
+
+
+def _absent(result: EffectiveModel, kind: str, sites: str | None, n_sites) -> Coupling | None:
+    """The zero coupling that a spin-form readout leaves out (it lists couplings above its
+    tolerance only: the chirality of a flux scan at Phi = 0), when ``kind`` is a spin-1/2
+    kind and ``sites`` names the right number of distinct sites of the point."""
+    if not result.spin_form or kind not in _SPIN_KINDS:
+        return None
+    arity, shape = _SPIN_KINDS[kind]
+    labels = [] if not sites else sites.split("-")
+    if len(labels) != arity or not all(x.isdigit() for x in labels):
+        return None
+    numbers = tuple(int(x) for x in labels)
+    if len(set(numbers)) != arity or (n_sites is not None and max(numbers, default=-1) >= n_sites):
+        return None
+    zero = np.zeros(shape).tolist() if shape else 0.0
+    return Coupling(kind, numbers, zero, {})
+
+
+def _coupling(result: EffectiveModel, kind: str, sites: str | None, n_sites=None) -> Coupling:
     matches = [c for c in result.couplings if c.kind == kind
                and (sites is None or sites_label(c.sites) == sites)]
     if len(matches) == 1:
         return matches[0]
+    zero = _absent(result, kind, sites, n_sites) if not matches else None
+    if zero is not None:
+        return zero
     available = sorted({f"{c.kind}:{sites_label(c.sites)}" for c in result.couplings})
     reason = "no" if not matches else "more than one"
     raise ModelError(f"{reason} coupling {kind}{':' + sites if sites else ''}; "
@@ -128,7 +158,7 @@ def scalar(record: Mapping[str, Any], quantity: str, *, order: int | None = None
         kind = rest[0]
         sites = rest[1] if len(rest) > 1 and rest[1] else None
         component = rest[2] if len(rest) > 2 else None
-        coupling = _coupling(result, kind, sites)
+        coupling = _coupling(result, kind, sites, record.get("n_sites"))
         what = f"coupling {kind}"
         if order is None:
             return _component(coupling.value, component, what)
