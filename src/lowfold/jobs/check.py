@@ -18,6 +18,7 @@ from typing import Callable
 
 import numpy as np
 import scipy.linalg as la
+import scipy.sparse as sp
 
 from lowfold.build.basis import sector_size
 from lowfold.build.hamiltonian import available_memory, build_basis, compile_operator, hamiltonian_matrix
@@ -31,12 +32,15 @@ from lowfold.jobs.check_levels import (DEFAULT_CHECK_LEVELS, check_levels_value,
 from lowfold.model.model import Model
 from lowfold.model.sector import Sector
 from lowfold.results import CheckedBlock, DeriveCheck, PowerFit
+from lowfold.solve.exact import lowest_eigenpairs
 
 __all__ = ["ManifoldBlock", "exact_check", "check_memory_estimate", "CHECK_MAX_STATES",
            "SCALE_FACTORS"]
 
 CHECK_MAX_STATES = 4_000_000    # largest sector block diagonalised for the exact check
 DENSE_CHECK_LIMIT = 5000
+EFFECTIVE_DENSE_LIMIT = 4000    # manifold states of a product-basis block above which the
+                                # effective matrices stay sparse (eigsh, not eigh)
 SCALE_FACTORS = (1.0, 0.8, 0.64, 0.5, 0.4)
 
 
@@ -111,8 +115,10 @@ def exact_check(model: Model, states: np.ndarray, energies: np.ndarray, orders: 
         say(f"exact check, block {number + 1}/{len(blocks)}: lowest {k} of "
             f"{block.p_positions.size} levels, {sizes[number]:,} states")
         idx = block.p_positions
-        partial = [orders[m][idx][:, idx].toarray() for m in range(order + 1)]
-        effectives = {f: sum(f**m * partial[m] for m in range(order + 1)) for f in factors}
+        sparse = product[number] and idx.size > EFFECTIVE_DENSE_LIMIT
+        partial = [orders[m][idx][:, idx] for m in range(order + 1)]
+        partial = [h.tocsr() if sparse else h.toarray() for h in partial]
+        effectives = {f: _summed(partial, f) for f in factors}
         if previous is not None and previous["kind"] != ("product" if product[number]
                                                          else "csr"):
             previous["data"] = None      # no partner of another route: free its matrices
@@ -128,10 +134,8 @@ def exact_check(model: Model, states: np.ndarray, energies: np.ndarray, orders: 
             exact = exact_by_factor[factor]
             if factor == 1.0:
                 exact_all.extend(exact.tolist())
-            running = np.zeros_like(partial[0])
             for m in range(order + 1):
-                running = running + factor**m * partial[m]
-                values = la.eigvalsh(running, subset_by_index=[0, k - 1])
+                values = _effective_lowest(_summed(partial[:m + 1], factor), k)
                 error = float(np.max(np.abs(values - exact)))
                 scaled[(factor, m)] = max(scaled.get((factor, m), 0.0), error)
                 if factor == 1.0:
@@ -143,6 +147,28 @@ def exact_check(model: Model, states: np.ndarray, energies: np.ndarray, orders: 
                         {m: abs(e_eff - e_exact) for m, (e_exact, e_eff) in lowest.items()})
     fits = _fit_powers(scaled, factors, order, model) if fit_scaling else None
     return check, fits, []
+
+
+def _summed(partial: list, factor: float):
+    """``sum_m factor^m H_eff,m`` (dense arrays or sparse matrices)."""
+    total = partial[0].copy()
+    for m in range(1, len(partial)):
+        total = total + factor**m * partial[m]
+    return total
+
+
+def _effective_lowest(matrix, k: int) -> np.ndarray:
+    """The ``k`` lowest effective levels: dense ``eigvalsh``, or for a sparse matrix its
+    diagonal when it has no other entries, else Lanczos (``lowest_eigenpairs``, which
+    completes degenerate levels)."""
+    if not sp.issparse(matrix):
+        return la.eigvalsh(matrix, subset_by_index=[0, k - 1])
+    diagonal = matrix.diagonal()
+    off = (matrix - sp.diags(diagonal)).tocsr()
+    off.eliminate_zeros()
+    if not off.nnz:
+        return np.sort(diagonal.real)[:k]
+    return np.sort(lowest_eigenpairs(matrix, k)[0])
 
 
 def _memory_needed(model, block_models, sizes, counts, product, sequence, fit_scaling) -> int:
@@ -193,6 +219,7 @@ def _csr_block(block_model, p_states, p_energies, effectives, k, previous, fit_s
         return previous["exact"], k, "mirror", record
     exact_by_factor, routes = {}, []
     for factor, effective in effectives.items():
+        effective = effective.toarray() if sp.issparse(effective) else effective
         guess = np.zeros((basis.size, k), dtype=effective.dtype)
         effective_levels, vectors = la.eigh(effective)
         guess[p_in_basis] = vectors[:, :k]

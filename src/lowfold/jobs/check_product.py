@@ -35,13 +35,15 @@ from lowfold.build.product_basis import (ProductHamiltonian, product_route_reaso
 from lowfold.errors import ConvergenceError, ModelError
 from lowfold.jobs.check_levels import RESIDUAL_TOL
 from lowfold.model.model import Model
+from lowfold.solve.method import DENSE_LIMIT
+from lowfold.solve.exact import lowest_eigenpairs
 from lowfold.solve.product_block import block_bytes, block_lowest
 from lowfold.solve.product_lanczos import product_lowest
 
 __all__ = ["PRODUCT_CHECK_MIN_STATES", "uses_product", "product_check_bytes",
            "product_at_bottom", "product_hamiltonians", "product_levels", "product_mirror"]
 
-PRODUCT_CHECK_MIN_STATES = 1_000_000   # above this, a block that allows it is not built as CSR
+PRODUCT_CHECK_MIN_STATES = DENSE_LIMIT  # above this, a block that allows it is not built as CSR
 MIRROR_TOL = 1e-13                     # entries equal within this times the largest one
 _ROWS = 1 << 20                        # entries of a wave function handled at once by numpy
 
@@ -49,9 +51,9 @@ _ROWS = 1 << 20                        # entries of a wave function handled at o
 def uses_product(block_model: Model, size: int, min_states: int | None = None) -> bool:
     """Whether the check finds the levels of this block in the product basis: the product
     route applies (``product_route_reason``, as for ``spectrum``) and the block has more
-    than ``min_states`` states (default ``PRODUCT_CHECK_MIN_STATES``, far above the
-    ``DENSE_LIMIT`` from which ``spectrum`` takes it: below it the sparse matrix fits and
-    the check's LOBPCG on it is as fast)."""
+    than ``min_states`` states (default ``PRODUCT_CHECK_MIN_STATES``, the ``DENSE_LIMIT``
+    from which ``spectrum`` takes it; on the 12-site Hubbard ring the check takes half the
+    time and a quarter of the memory of the sparse route, ``benchmarks/bench_orders.py``)."""
     limit = PRODUCT_CHECK_MIN_STATES if min_states is None else min_states
     return size > limit and product_route_reason(block_model) is None
 
@@ -169,10 +171,15 @@ def _rows_of(h: ProductHamiltonian, states: np.ndarray) -> np.ndarray:
 def _lowest(h, p_rows, effective, k, say):
     """``(levels, fell_back)``: the block method from the effective eigenvectors, else the
     deflated Lanczos."""
-    levels, vectors = la.eigh(effective)
+    if sp.issparse(effective):
+        levels, vectors = lowest_eigenpairs(effective, k, vectors=True)
+    else:
+        levels, vectors = la.eigh(effective)
     spread = max(levels[k - 1] - levels[0], 1e-3 * max(1.0, abs(levels[0])))
     tol = RESIDUAL_TOL * max(1.0, float(np.abs(levels[:k]).max()))
-    precondition = _Preconditioner(h, p_rows, effective, levels[0] - spread, spread)
+    sigma = levels[0] - spread
+    solve_p = _inverse_on_p(effective, sigma, spread, levels[:k], vectors[:, :k])
+    precondition = _Preconditioner(h, p_rows, solve_p, sigma, spread)
     start = precondition.start(vectors[:, :k], levels[:k])
     try:
         found = block_lowest(h, start, precondition, tol=tol, progress=say)
@@ -187,7 +194,7 @@ def _lowest(h, p_rows, effective, k, say):
 class _Preconditioner:
     """An approximate ``(H - sigma)^-1`` on wave functions (see the module doc), in place."""
 
-    def __init__(self, h: ProductHamiltonian, p_rows, effective, sigma: float, spread: float):
+    def __init__(self, h: ProductHamiltonian, p_rows, solve_p, sigma: float, spread: float):
         self.h, self.p_rows, self.sigma, self.spread = h, p_rows, sigma, spread
         m = p_rows.size
         rows, cols, values = _p_row_entries(h, p_rows)
@@ -197,7 +204,7 @@ class _Preconditioner:
                                shape=(m, self.q_cols.size))
         self.b_adjoint = self.b.conj().T.tocsr()
         self.q_inverse = self._inverse(h.diag.reshape(-1)[self.q_cols])
-        self.on_p = la.inv(effective - sigma * np.eye(m))
+        self.solve_p = solve_p
 
     def _inverse(self, diagonal):
         return 1.0 / np.maximum(diagonal - self.sigma, self.spread)
@@ -219,7 +226,7 @@ class _Preconditioner:
 
     def __call__(self, r: np.ndarray, scratch: np.ndarray) -> None:
         flat = r.reshape(-1)
-        x_p = self.on_p @ (flat[self.p_rows] - self.b @ (self.q_inverse * flat[self.q_cols]))
+        x_p = self.solve_p(flat[self.p_rows] - self.b @ (self.q_inverse * flat[self.q_cols]))
         flat[self.q_cols] -= self.b_adjoint @ x_p
         flat[self.p_rows] = 0
         self._solve_q(r, scratch)
@@ -238,6 +245,25 @@ class _Preconditioner:
             part = slice(start, start + rows)
             hopped = scratch[part] - diag[part] * y[part]
             y[part] -= self._inverse(diag[part]) * hopped
+
+
+def _inverse_on_p(effective, sigma: float, spread: float, levels, vectors):
+    """``x -> (H_eff - sigma)^-1 x`` on P: the dense inverse, or for a sparse ``H_eff`` (a
+    large manifold block) exact on the ``k`` lowest effective vectors V and the diagonal of
+    ``H_eff`` on the rest, ``V (L - sigma)^-1 V^+ + Q D^-1 Q`` with ``Q = 1 - V V^+``."""
+    if not sp.issparse(effective):
+        inverse = la.inv(effective - sigma * np.eye(effective.shape[0]))
+        return lambda x: inverse @ x
+    weights = 1.0 / (np.asarray(levels) - sigma)
+    diagonal = 1.0 / np.maximum(effective.diagonal().real - sigma, spread)
+    adjoint = vectors.conj().T
+
+    def apply(x):
+        c = adjoint @ x
+        rest = diagonal * (x - vectors @ c)
+        return vectors @ (weights * c) + rest - vectors @ (adjoint @ rest)
+
+    return apply
 
 
 def _real_columns(vectors: np.ndarray) -> np.ndarray:
