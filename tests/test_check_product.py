@@ -165,3 +165,19 @@ def test_large_manifold_blocks_keep_their_effective_matrices_sparse(monkeypatch)
                                                               abs=1e-9)
     assert sparse.check.ground_state_error[2] == pytest.approx(
         dense.check.ground_state_error[2], abs=1e-9)
+
+
+@pytest.mark.parametrize("dtype", [np.float64, np.complex128])
+def test_gap_sweeps_equal_their_numpy_twins(dtype):
+    from lowfold.build.product_gaps import divide_by_gap, subtract_hopping_over_gap
+    rng = np.random.default_rng(3)
+    y = rng.standard_normal((7, 11)).astype(dtype)
+    hy = rng.standard_normal((7, 11)).astype(dtype)
+    diag = rng.uniform(-1.0, 3.0, (7, 11))
+    gap = np.maximum(diag - 0.5, 0.2)
+    expected = y / gap
+    divide_by_gap(y, diag, 0.5, 0.2)
+    np.testing.assert_allclose(y, expected, rtol=1e-14)
+    expected = y - (hy - diag * y) / gap
+    subtract_hopping_over_gap(y, hy, diag, 0.5, 0.2)
+    np.testing.assert_allclose(y, expected, rtol=1e-14)

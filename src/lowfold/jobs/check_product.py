@@ -30,6 +30,7 @@ import scipy.sparse as sp
 
 from lowfold.build.basis import fixed_sum_basis
 from lowfold.build.compiled import compile_operator
+from lowfold.build.product_gaps import divide_by_gap, subtract_hopping_over_gap
 from lowfold.build.product_basis import (ProductHamiltonian, product_route_reason,
                                          product_species)
 from lowfold.errors import ConvergenceError, ModelError
@@ -234,17 +235,9 @@ class _Preconditioner:
 
     def _solve_q(self, y: np.ndarray, scratch: np.ndarray) -> None:
         """``y <- D^-1 y - D^-1 T D^-1 y`` on Q (``y`` zero on P; T: H without its diagonal)."""
-        diag = self.h.diag
-        rows = max(1, _ROWS // max(y.shape[1], 1))
-        for start in range(0, y.shape[0], rows):
-            part = slice(start, start + rows)
-            y[part] *= self._inverse(diag[part])
-        y.reshape(-1)[self.p_rows] = 0
+        divide_by_gap(y, self.h.diag, self.sigma, self.spread)
         self.h.product_into(y, scratch)
-        for start in range(0, y.shape[0], rows):
-            part = slice(start, start + rows)
-            hopped = scratch[part] - diag[part] * y[part]
-            y[part] -= self._inverse(diag[part]) * hopped
+        subtract_hopping_over_gap(y, scratch, self.h.diag, self.sigma, self.spread)
 
 
 def _inverse_on_p(effective, sigma: float, spread: float, levels, vectors):
