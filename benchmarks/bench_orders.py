@@ -114,8 +114,13 @@ def run_derive(task: dict, check: bool, mirror: bool = True) -> dict:
         product_module.PRODUCT_CHECK_MIN_STATES = task["product_min"]
     model = hubbard(task["shape"], task["size"], task["boundary"], task["order"])
     start = time.perf_counter()
+    say = None
+    if task.get("log"):                  # progress lines with their time, for long runs
+        def say(message, path=task["log"]):
+            with open(path, "a") as log:
+                log.write(f"{time.perf_counter() - start:8.1f} s  {message}\n")
     result = derive(model, task["order"], compare_exact=check,
-                    check_levels=task.get("levels", 8))
+                    check_levels=task.get("levels", 8), progress=say)
     out = {"seconds": time.perf_counter() - start, "manifold": result.manifold.dimension,
            "memory": getattr(result.diagnostics, "memory", None),
            "warnings": list(result.warnings)}
@@ -198,7 +203,8 @@ def product_plan(sixteen: bool) -> list[dict]:
              dict(ring, size=[12], kind="check-csr", product_min=10**12),
              dict(ring, size=[14], kind="check-product")]
     if sixteen:
-        tasks.append(dict(ring, size=[16], kind="check-product", levels=1))
+        tasks.append(dict(ring, size=[16], kind="check-product", levels=1,
+                          log=str(DEFAULT_OUT.with_name("ring16_check.log"))))
     return tasks
 
 

@@ -173,10 +173,14 @@ def _lowest(h, p_rows, effective, k, say):
     """``(levels, fell_back)``: the block method from the effective eigenvectors, else the
     deflated Lanczos."""
     if sp.issparse(effective):
-        levels, vectors = lowest_eigenpairs(effective, k, vectors=True)
+        levels, vectors = lowest_eigenpairs(effective, min(k + 1, effective.shape[0]),
+                                            vectors=True)
     else:
         levels, vectors = la.eigh(effective)
-    spread = max(levels[k - 1] - levels[0], 1e-3 * max(1.0, abs(levels[0])))
+    # sigma below the lowest level by the spread of the levels wanted, or by the gap to the
+    # next effective level (one level wanted), at least 1e-3 (relative)
+    upper = levels[k - 1] if k > 1 or levels.size < 2 else levels[1]
+    spread = max(upper - levels[0], 1e-3 * max(1.0, abs(levels[0])))
     tol = RESIDUAL_TOL * max(1.0, float(np.abs(levels[:k]).max()))
     sigma = levels[0] - spread
     solve_p = _inverse_on_p(effective, sigma, spread, levels[:k], vectors[:, :k])

@@ -13,7 +13,10 @@ buffer that then holds W (the residual is formed and preconditioned in place); `
 is taken from H X before that, and ``<P|H|P>`` is carried by the Rayleigh-Ritz
 coefficients.  That costs one product with H per vector and step more than keeping H X and
 H P, and saves two blocks.  Linear combinations of blocks are matrix products over column
-chunks (no temporary of a block's size).
+chunks (no temporary of a block's size).  W is made orthogonal to X before the
+Rayleigh-Ritz step (a preconditioner close to ``(H - sigma)^-1`` gives W a large part along
+X, which would swamp the rest in round-off; common practice, e.g. Duersch, Shao, Yang and Gu,
+SIAM J. Sci. Comput. 40, C655 (2018)).
 
 The Rayleigh-Ritz step scales the basis to unit norm and drops the directions whose overlap
 eigenvalue falls below ``RR_DROP`` of the largest (SVQB, Stathopoulos and Wu, SIAM J. Sci.
@@ -102,6 +105,10 @@ def _iterate(h, x, precondition, tol, maxiter, say) -> BlockResult:
         w, hw = a[:na], b[:na]
         for i in range(na):
             precondition(w[i], hw[i])
+        # W without its part along X: a preconditioner close to (H - sigma)^-1 amplifies
+        # that part, and the useful rest would drown in the round-off of the Gram matrices
+        _combine(w, [x], -np.linalg.solve(sxx, _gram(x, w)), add=w)
+        for i in range(na):
             h.product_into(w[i], hw[i])
         count += 2 * na
         blocks_h = [[hxx, _gram(x, hw)], [None, _gram(w, hw)]]
@@ -140,7 +147,8 @@ def _gram(a: np.ndarray, b: np.ndarray) -> np.ndarray:
 
 def _combine(out: np.ndarray, sources: list, coefficients: np.ndarray, add=None) -> None:
     """``out_j = sum_i S_i c_ij`` over the wave functions of the ``sources`` stacked (rows of
-    ``coefficients`` in that order), plus ``add_j`` when given; chunk by chunk."""
+    ``coefficients`` in that order), plus ``add_j`` when given; chunk by chunk (each chunk of
+    ``out`` is written after it is computed, so ``add`` may be ``out`` itself)."""
     out2 = out.reshape(out.shape[0], -1)
     flat = [s.reshape(s.shape[0], -1) for s in sources]
     add2 = None if add is None else add.reshape(add.shape[0], -1)
