@@ -197,7 +197,8 @@ def product_plan(sixteen: bool) -> list[dict]:
     """The check in the product basis (``lowfold.jobs.check_product``): the 12-site ring by
     both routes (the product route forced on every block above 1200 states, and the sparse
     route alone), the 14-site ring at order 2 with the lowest 8 levels of each S^z block and,
-    with ``--sixteen``, the 16-site ring at order 2 with the lowest level of each block."""
+    with ``--sixteen``, the 16-site ring and the periodic 4x4 cluster at order 2 with the
+    lowest level of each block."""
     ring = {"shape": "chain", "boundary": "periodic", "order": 2}
     tasks = [dict(ring, size=[12], kind="check-product", product_min=1200),
              dict(ring, size=[12], kind="check-csr", product_min=10**12),
@@ -205,6 +206,8 @@ def product_plan(sixteen: bool) -> list[dict]:
     if sixteen:
         tasks.append(dict(ring, size=[16], kind="check-product", levels=1,
                           log=str(DEFAULT_OUT.with_name("ring16_check.log"))))
+        tasks.append(dict(ring, shape="square", size=[4, 4], kind="check-product", levels=1,
+                          log=str(DEFAULT_OUT.with_name("square4x4_check.log"))))
     return tasks
 
 
