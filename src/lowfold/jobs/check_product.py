@@ -55,7 +55,7 @@ def uses_product(block_model: Model, size: int, min_states: int | None = None) -
     """Whether the check finds the levels of this block in the product basis: the product
     route applies (``product_route_reason``, as for ``spectrum``) and the block has more
     than ``min_states`` states (default ``PRODUCT_CHECK_MIN_STATES``, the ``DENSE_LIMIT``
-    from which ``spectrum`` takes it; on the 12-site Hubbard ring the check takes half the
+    from which ``spectrum`` takes it; on the 12-site Hubbard ring the check takes 0.7 of the
     time and a quarter of the memory of the sparse route, ``benchmarks/bench_orders.py``)."""
     limit = PRODUCT_CHECK_MIN_STATES if min_states is None else min_states
     return size > limit and product_route_reason(block_model) is None
