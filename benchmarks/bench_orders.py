@@ -18,6 +18,10 @@ the dimer first):
 * ``derive``: the whole ``derive(model, n, compare_exact=False)`` (the ``--no-check`` path);
 * ``check``: ``derive(model, 4)`` with its exact check (default levels), and ``check-before``
   the same with the spin-reversal shortcut switched off (every S^z block's levels computed);
+* ``check-product`` and ``check-csr`` (``--product``): ``derive(model, 2)`` of half-filled
+  Hubbard rings with the check's blocks solved in the product basis (``--sixteen``: also the
+  16-site ring, 165,636,900 states at S^z = 0, with one level per block) or as sparse
+  matrices; the routes of the blocks are printed beside;
 * with ``--before-src DIR`` (the ``src`` folder of an earlier lowfold, e.g. from ``git archive
   ce59d25 src | tar -x -C /tmp/before``): ``derive-old`` and ``check-old``, the same derive
   and check run by that code (skipped for the 4x4 clusters, whose dense orders the issue
@@ -30,6 +34,7 @@ Usage::
 
     python benchmarks/bench_orders.py              # everything (about 15 minutes when quiet)
     python benchmarks/bench_orders.py --quick      # small clusters only
+    python benchmarks/bench_orders.py --product --sixteen --memory-gb 12
 """
 
 from __future__ import annotations
@@ -104,15 +109,25 @@ def run_derive(task: dict, check: bool, mirror: bool = True) -> dict:
     if not mirror:
         import lowfold.jobs.check as check_module
         check_module.mirror_images = lambda *args: False
+    if "product_min" in task:
+        import lowfold.jobs.check_product as product_module
+        product_module.PRODUCT_CHECK_MIN_STATES = task["product_min"]
     model = hubbard(task["shape"], task["size"], task["boundary"], task["order"])
     start = time.perf_counter()
-    result = derive(model, task["order"], compare_exact=check)
+    say = None
+    if task.get("log"):                  # progress lines with their time, for long runs
+        def say(message, path=task["log"]):
+            with open(path, "a") as log:
+                log.write(f"{time.perf_counter() - start:8.1f} s  {message}\n")
+    result = derive(model, task["order"], compare_exact=check,
+                    check_levels=task.get("levels", 8), progress=say)
     out = {"seconds": time.perf_counter() - start, "manifold": result.manifold.dimension,
            "memory": getattr(result.diagnostics, "memory", None),
            "warnings": list(result.warnings)}
     if result.check is not None:
         out["check_error"] = result.check.max_abs_error[task["order"]]
         out["levels_compared"] = len(result.check.exact)
+        out["routes"] = {b.sz: b.method for b in result.check.blocks}
     return out
 
 
@@ -123,6 +138,8 @@ def child(task: dict) -> dict:
         return run_orders(task, dense=kind == "orders-dense")
     if kind in ("derive", "derive-old"):
         return run_derive(task, check=False)
+    if kind in ("check-csr", "check-product"):
+        return run_derive(task, check=True)
     if kind == "check-old":
         return run_derive(task, check=True)
     return run_derive(task, check=True, mirror=kind == "check")
@@ -176,6 +193,24 @@ def dense_estimate(size, order) -> int:
     return 5 * (order + 1) * 8 * block**2
 
 
+def product_plan(sixteen: bool) -> list[dict]:
+    """The check in the product basis (``lowfold.jobs.check_product``): the 12-site ring by
+    both routes (the product route forced on every block above 1200 states, and the sparse
+    route alone), the 14-site ring at order 2 with the lowest 8 levels of each S^z block and,
+    with ``--sixteen``, the 16-site ring and the periodic 4x4 cluster at order 2 with the
+    lowest level of each block."""
+    ring = {"shape": "chain", "boundary": "periodic", "order": 2}
+    tasks = [dict(ring, size=[12], kind="check-product", product_min=1200),
+             dict(ring, size=[12], kind="check-csr", product_min=10**12),
+             dict(ring, size=[14], kind="check-product")]
+    if sixteen:
+        tasks.append(dict(ring, size=[16], kind="check-product", levels=1,
+                          log=str(DEFAULT_OUT.with_name("ring16_check.log"))))
+        tasks.append(dict(ring, shape="square", size=[4, 4], kind="check-product", levels=1,
+                          log=str(DEFAULT_OUT.with_name("square4x4_check.log"))))
+    return tasks
+
+
 def plan(quick: bool, before: bool) -> list[dict]:
     geometries = [("chain", [8], "open", 6), ("square", [2, 3], "open", 6),
                   ("square", [3, 3], "open", 4)]
@@ -213,6 +248,9 @@ def print_tables(results: list[dict]) -> None:
         note = []
         if "check_error" in r:
             note.append(f"check err {r['check_error']:.1e}, {r['levels_compared']} levels")
+        if "routes" in r:
+            note.append("routes " + ", ".join(f"{sz}: {m}" for sz, m in r["routes"].items()
+                                              if m and m != "dense"))
         if "working_states" in r:
             note.append(f"largest block {r['largest_block']}, {r['working_states']:,} "
                         f"working states ({r['space_seconds']:.1f} s to build)")
@@ -255,8 +293,14 @@ def main(argv=None) -> None:
     parser.add_argument("--memory-gb", type=float, default=None,
                         help="address-space cap of each measurement (default: 60%% of RAM)")
     parser.add_argument("--only", help="run only the tasks whose 'cluster kind' contains this")
+    parser.add_argument("--product", action="store_true",
+                        help="only the check in the product basis (12- and 14-site rings)")
+    parser.add_argument("--sixteen", action="store_true",
+                        help="with --product: also the 16-site ring (several minutes, ~7 GB)")
     parser.add_argument("--before-src", help="src folder of an earlier lowfold to run as 'old'")
-    parser.add_argument("--out", type=Path, default=DEFAULT_OUT)
+    parser.add_argument("--out", type=Path, default=None,
+                        help="JSON written (default results/bench_orders.json, with --product "
+                             "results/bench_orders_product.json)")
     parser.add_argument("--child", help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
     if args.child:
@@ -265,7 +309,8 @@ def main(argv=None) -> None:
     memory = int(args.memory_gb * 2**30 if args.memory_gb else 0.6 * physical_memory())
     started = time.time()
     results = []
-    for t in plan(args.quick, bool(args.before_src)):
+    tasks = product_plan(args.sixteen) if args.product else plan(args.quick, bool(args.before_src))
+    for t in tasks:
         if args.only and args.only not in f"{label(t)} {t['kind']}":
             continue
         if (t["kind"] in ("orders-dense", "derive-old")
@@ -297,6 +342,8 @@ def main(argv=None) -> None:
               "parameters": {"t": 0.1, "U": 1.0, "memory_cap_gb": memory / 2**30,
                              "limit_seconds": args.limit},
               "results": results, "goals": goal_rows}
+    if args.out is None:
+        args.out = DEFAULT_OUT.with_name("bench_orders_product.json") if args.product else DEFAULT_OUT
     args.out.parent.mkdir(parents=True, exist_ok=True)
     args.out.write_text(json.dumps(record, indent=1, allow_nan=False))
     print(f"\nwritten {args.out}")

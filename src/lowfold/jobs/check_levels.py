@@ -66,7 +66,7 @@ def levels_to_compare(levels: int | str, manifold_states: int, sector_states: in
 
 
 def exact_lowest(matrix, k: int, guess: np.ndarray, p_rows: np.ndarray,
-                 effective: np.ndarray) -> np.ndarray:
+                 effective: np.ndarray, routes: list | None = None) -> np.ndarray:
     """The ``k`` lowest eigenvalues of the sparse Hermitian ``matrix`` (ascending).
 
     Parameters
@@ -80,11 +80,16 @@ def exact_lowest(matrix, k: int, guess: np.ndarray, p_rows: np.ndarray,
         Rows of the manifold states in ``matrix``.
     effective : ndarray, shape (m, m)
         The effective Hamiltonian of the block (summed over all orders).
+    routes : list, optional
+        The eigensolver used is appended: ``"dense"``, ``"lobpcg"`` or ``"lanczos"``.
     """
     n = matrix.shape[0]
+    routes = [] if routes is None else routes
     if n <= DENSE_LEVELS_LIMIT or 5 * k >= n:
+        routes.append("dense")
         return la.eigvalsh(matrix.toarray(), subset_by_index=[0, k - 1])
     values = _lobpcg(matrix, k, guess, p_rows, effective)
+    routes.append("lobpcg" if values is not None else "lanczos")
     if values is None:
         values = lowest_eigenpairs(matrix, k, tol=1e-10)[0]
     return np.sort(values)

@@ -145,19 +145,27 @@ def _coupling_from_dict(data: Mapping) -> Coupling:
 @dataclass(frozen=True)
 class CheckedBlock:
     """Which levels of one S^z block the exact check compared: the lowest ``compared`` of
-    its ``manifold_states`` levels (``sz`` as text such as ``"1/2"``; None: no S^z blocks)."""
+    its ``manifold_states`` levels (``sz`` as text such as ``"1/2"``; None: no S^z blocks),
+    and how the exact ones were found (``method``: ``"dense"``, ``"lobpcg"`` or
+    ``"lanczos"`` on the sparse matrix, ``"product-block"`` or ``"product-lanczos"`` in the
+    product basis, ``"mirror"`` from the spin-reversed block; None: not recorded)."""
 
     sz: str | None
     compared: int
     manifold_states: int
+    method: str | None = None
 
     def to_dict(self) -> dict:
-        return {"sz": self.sz, "compared": int(self.compared),
-                "manifold_states": int(self.manifold_states)}
+        out = {"sz": self.sz, "compared": int(self.compared),
+               "manifold_states": int(self.manifold_states)}
+        if self.method is not None:
+            out["method"] = self.method
+        return out
 
     @classmethod
     def from_dict(cls, data: Mapping) -> "CheckedBlock":
-        return cls(data["sz"], int(data["compared"]), int(data["manifold_states"]))
+        return cls(data["sz"], int(data["compared"]), int(data["manifold_states"]),
+                   data.get("method"))
 
 
 @dataclass(frozen=True)
