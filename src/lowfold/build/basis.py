@@ -14,6 +14,7 @@ import numpy as np
 
 from lowfold._kernels import basis as kernels
 from lowfold.errors import SizeError
+from lowfold.model.local_space import kept_mask, local_quantities
 from lowfold.model.sites import Site
 from lowfold.model.sector import Sector, sector_totals
 
@@ -135,7 +136,16 @@ def explicit_basis(states, n_slots: int, radix: int) -> Basis:
 
 
 def sector_basis(site: Site, n_sites: int, sector: Sector, *, max_states: int | None = None) -> Basis:
-    """Enumerate the basis of ``sector`` for ``n_sites`` sites of type ``site``."""
+    """Enumerate the basis of ``sector`` for ``n_sites`` sites of type ``site``; on a site
+    with kept states (:mod:`lowfold.model.local_space`), the states whose every site is kept."""
+    basis = _sector_basis(site, n_sites, sector, max_states=max_states)
+    if not site.is_restricted:
+        return basis
+    return explicit_basis(basis.states[kept_mask(site, n_sites, basis.states)],
+                          basis.n_slots, basis.radix)
+
+
+def _sector_basis(site: Site, n_sites: int, sector: Sector, *, max_states: int | None = None) -> Basis:
     totals = sector_totals(site, n_sites, sector)
     n_slots = n_sites * site.modes
     if totals == "sz-only":
@@ -154,9 +164,29 @@ def sector_basis(site: Site, n_sites: int, sector: Sector, *, max_states: int | 
 
 def sector_size(site: Site, n_sites: int, sector: Sector) -> int:
     """Number of states of a sector, without enumerating it."""
+    if site.is_restricted:
+        return kept_sector_size(site, n_sites, sector)
     totals = sector_totals(site, n_sites, sector)
     if totals == "sz-only":
         shift = int(2 * sector.sz)
         return sum(basis_size(n_sites, 2, [(n_sites, n_up)]) * basis_size(n_sites, 2, [(n_sites, n_up - shift)])
                    for n_up in range(max(0, shift), min(n_sites, n_sites + shift) + 1))
     return basis_size(n_sites * site.modes, site.radix, totals)
+
+
+def kept_sector_size(site: Site, n_sites: int, sector: Sector) -> int:
+    """Number of states of a sector made of kept local states only (exact, by counting the
+    ways to reach each total particle number and S^z site by site)."""
+    sector_totals(site, n_sites, sector)             # refuses impossible sectors
+    local = [local_quantities(site, v) for v in site.states]
+    counts = {(0, 0): 1}
+    for _ in range(n_sites):
+        new: dict = {}
+        for (n, s), c in counts.items():
+            for dn, ds in local:
+                key = (n + dn, s + ds)
+                new[key] = new.get(key, 0) + c
+        counts = new
+    return sum(c for (n, s), c in counts.items()
+               if (sector.particles is None or n == sector.particles)
+               and (sector.sz is None or s == int(2 * sector.sz)))

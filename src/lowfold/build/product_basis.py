@@ -62,7 +62,7 @@ def product_threads(size: int):
 def product_species(model: Model) -> tuple[int, int] | None:
     """``(N_up, N_dn)`` when the model's sector is electrons at fixed N_up and N_dn, else
     ``None`` (no model of another site type or sector has a product basis)."""
-    if model.site.type != "electron" or model.lattice.infinite:
+    if model.site.type != "electron" or model.lattice.infinite or model.site.is_restricted:
         return None
     totals = sector_totals(model.site, model.n_sites, model.sector)
     if not isinstance(totals, list) or len(totals) != 2:

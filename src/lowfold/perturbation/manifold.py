@@ -62,6 +62,9 @@ def _local_quantities(model: Model):
     """Per local configuration of one site: digits per mode, particles, 2 S^z."""
     site = model.site
     configs = list(cartesian(range(site.radix), repeat=site.modes))
+    if site.is_restricted:                 # kept local states only (model/local_space.py)
+        configs = [c for c in configs
+                   if sum(d * site.radix ** m for m, d in enumerate(c)) in site.states]
     particles = [sum(d * site.slot_particles(m) for m, d in enumerate(c)) for c in configs]
     if site.type == "spin":
         twice_sz = [int(2 * site.spin) - 2 * c[0] for c in configs]
