@@ -81,11 +81,13 @@ def local_export_text(result, *, lattice_table, toml, class_groups, unique) -> s
     constant = float(np.real(next((c.value for c in result.couplings if c.kind == "constant"), 0.0)))
     parameters = {"E0": constant}
     terms = [_term_text("constant", "E0", "E0", {}, toml)]
+    taken = {"E0"}                             # parameter names and term labels
     for kind, value, selector, operator in items:
         for spec in _term_specs(kind, value, selector, operator, model.site, background,
-                                model.n_sites):
+                                model.lattice):
             kind_out, base, strength, keys, note = spec
-            name = unique(base, parameters)
+            name = unique(base, taken)
+            taken.add(name)
             if isinstance(strength, str):        # a literal strength, written in the term
                 terms.append(_term_text(kind_out, name, float(strength), keys, toml, note))
                 continue
@@ -195,7 +197,7 @@ def _selector(kind, members, lattice) -> dict:
 
 # --------------------------------------------------------------------------- terms
 
-def _term_specs(kind, value, selector, operator, site, background, n_sites):
+def _term_specs(kind, value, selector, operator, site, background, lattice):
     """[(term type, parameter base name, strength or literal string, keys, note)]."""
     value = np.asarray(value)
     real = float(np.real(value)) if value.ndim == 0 else None
@@ -224,14 +226,14 @@ def _term_specs(kind, value, selector, operator, site, background, n_sites):
         return [("string", "X", strength, {"operators": list(operator), **selector}, None)]
     for name, step in _BOSON_STEP.items():
         if kind.startswith(name):
-            return _boson_specs(kind, real, selector, site, background)
+            return _boson_specs(kind, real, selector, site, background, lattice)
     raise ModelError(f"the effective model cannot be exported: the readout kind {kind!r} has "
                      "no model-file term")
 
 
-def _boson_specs(kind, value, selector, site, background):
+def _boson_specs(kind, value, selector, site, background, lattice):
     """Boson kinds as ``string`` terms of X-operators relative to each site's background."""
-    groups = _groups_of(selector, site, background)
+    groups = _groups_of(selector, background, lattice)
     labels = site.local_labels()
     refs = {background[s] for g in groups for s in g}
     if len(refs) != 1:
@@ -260,15 +262,17 @@ def _boson_specs(kind, value, selector, site, background):
     return specs
 
 
-def _groups_of(selector, site, background):
-    """Explicit site groups of a selector (bond classes resolved on the site count)."""
+def _groups_of(selector, background, lattice):
+    """Explicit site groups of a selector (bond classes resolved on the lattice)."""
     if "sites" in selector:
         sites = selector["sites"]
         if sites == "all":
             return [(s,) for s in sorted(background)]
         return [tuple(g) if isinstance(g, (list, tuple)) else (g,) for g in sites]
-    if "bonds" in selector and not isinstance(selector["bonds"], str):
-        return [tuple(b) for b in selector["bonds"]]
+    if "bonds" in selector and not lattice.infinite:
+        bonds = selector["bonds"]
+        return [tuple(int(x) for x in b)
+                for b in (lattice.bonds(bonds) if isinstance(bonds, str) else bonds)]
     raise ModelError("the effective model cannot be exported: a boson coupling class has no "
                      "explicit sites (infinite-lattice boson classes are not written yet)")
 

@@ -9,9 +9,9 @@ Every local value has a *label* (the labels of the local-operator readout,
 ``[site] states = [...]`` keeps some local states (the doped Mott insulator ``["0", "u",
 "d"]``, a boson window ``min_occupation`` .. ``max_occupation``).  The model then lives in the
 span of the kept states, ``P = prod_i P_i``: the basis holds only states whose every site is
-kept (:func:`kept_mask`), and every off-diagonal product ``O`` of a term acts as
-``P_S O P_S``, ``S`` the sites it touches (:func:`project_products`), which on the kept
-space is ``P O P``.  So the hopping of electrons without double occupancy is the projected
+kept (:func:`kept_mask`), and every off-diagonal string ``O`` of a term acts as
+``P_S O P_S``, ``S`` the sites it touches (:mod:`lowfold.build.kept_states`), which on the
+kept space is ``P O P``.  So the hopping of electrons without double occupancy is the projected
 hopping ``-t sum_s P (c+_is c_js + h.c.) P`` of the t-J model.
 
 X-operators ``|a><b|`` (a, b labels) are local operator names of every site type: the
@@ -31,8 +31,8 @@ import numpy as np
 from lowfold.errors import ModelError
 from lowfold.model.sites import Site, SlotOperator
 
-__all__ = ["local_labels", "kept_values", "projector", "x_operator", "split_x_name",
-           "project_products", "local_values", "kept_mask", "local_quantities"]
+__all__ = ["local_labels", "kept_values", "x_operator", "split_x_name", "local_values",
+           "kept_mask", "local_quantities"]
 
 _ELECTRON_LABELS = ("0", "u", "d", "2")
 
@@ -111,44 +111,6 @@ def x_operator(site: Site, name: str) -> list:
         if op.fermionic and sum(db[:m]) % 2:
             sign = -sign
     return [(complex(sign), factors)]
-
-
-def projector(site: Site) -> list:
-    """The monomials of ``P_i``, the projector onto the kept local states."""
-    kept = site.states if site.states is not None else tuple(range(site.local_dimension))
-    if site.modes == 1:
-        amplitudes = tuple(1 + 0j if v in kept else 0j for v in range(site.radix))
-        return [(1 + 0j, ((0, SlotOperator(0, amplitudes)),))]
-    # a sum over the kept states (not 1 - the dropped ones): every string of P_S O P_S then
-    # keeps the kept space by itself, so no image outside it appears to cancel later
-    return [(1 + 0j, _state_projector(site, v)) for v in kept]
-
-
-def _state_projector(site: Site, value: int) -> tuple:
-    return tuple((m, _slot_step(site, d, d)) for m, d in enumerate(_digits(site, value)))
-
-
-def _is_diagonal(site: Site, name: str, cache: dict) -> bool:
-    if name not in cache:
-        cache[name] = all(op.shift == 0 for _, factors in site.operator(name)
-                          for _, op in factors)
-    return cache[name]
-
-
-def project_products(site: Site, products) -> list:
-    """``P_S O P_S`` for every off-diagonal product ``O`` (``S`` its sites) of a site with
-    kept states; diagonal products and unrestricted sites are returned unchanged."""
-    if site.states is None:
-        return products
-    cache: dict = {}
-    out = []
-    for coefficient, factors in products:
-        if all(_is_diagonal(site, name, cache) for name, _ in factors):
-            out.append((coefficient, factors))
-            continue
-        sides = tuple(("P", s) for s in sorted({s for _, s in factors}))
-        out.append((coefficient, sides + tuple(factors) + sides))
-    return out
 
 
 def local_values(site: Site, n_sites: int, states: np.ndarray) -> np.ndarray:

@@ -10,7 +10,6 @@ from lowfold.model.sector import Sector, check_sector_symmetry
 from lowfold.errors import ModelError
 from lowfold.model.hermiticity import check_hermitian_terms
 from lowfold.model.lattice import Lattice, make_lattice
-from lowfold.model.local_space import project_products
 from lowfold.model.sites import Site, check_state_space
 from lowfold.model.terms import Term, check_label, check_strength, expand_term
 
@@ -122,12 +121,10 @@ class Model:
 
     def products(self, labels=None):
         """Expanded local-operator products of the named terms (default: all), as
-        ``[(label, [(coefficient, ((operator, site), ...)), ...]), ...]``; on a site with
-        kept states, each off-diagonal product projected onto them
-        (:func:`lowfold.model.local_space.project_products`)."""
+        ``[(label, [(coefficient, ((operator, site), ...)), ...]), ...]`` (on a site with
+        kept states, the compiled strings act as ``P O P``: :mod:`lowfold.build.kept_states`)."""
         chosen = self.terms if labels is None else [self.term(label) for label in labels]
-        return [(t.label, project_products(self.site, expand_term(
-                    t, self.strength(t), self.lattice, self.site, self.parameters)))
+        return [(t.label, expand_term(t, self.strength(t), self.lattice, self.site, self.parameters))
                 for t in chosen]
 
     @property

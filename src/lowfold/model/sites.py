@@ -135,7 +135,7 @@ class Site:
     states : tuple of int or None
         The kept local states (local values, ascending; ``None``: all of them).  A site with
         kept states lives in their span: the basis holds only states whose every site is
-        kept, and every term acts as ``P O P`` (:mod:`lowfold.model.local_space`).
+        kept, and every term acts as ``P O P`` (:mod:`lowfold.build.kept_states`).
     """
 
     type: str
@@ -182,17 +182,14 @@ class Site:
         return tuple(labels[v] for v in (self.states or range(len(labels))))
 
     def operator_names(self) -> tuple[str, ...]:
-        extra = ("P",) if self.is_restricted else ()
-        return tuple(_OPERATOR_BUILDERS[self.type](self)) + extra + ("|a><b|",)
+        return tuple(_OPERATOR_BUILDERS[self.type](self)) + ("|a><b|",)
 
     def operator(self, name: str) -> list[Monomial]:
         """The named local operator as a list of monomials; ``ModelError`` if unknown."""
         builders = _OPERATOR_BUILDERS[self.type](self)
         if name in builders:
             return builders[name]()
-        from lowfold.model.local_space import projector, x_operator
-        if name == "P" and self.is_restricted:
-            return projector(self)
+        from lowfold.model.local_space import x_operator
         if isinstance(name, str) and name.startswith("|"):
             return x_operator(self, name)
         known = ", ".join(self.operator_names())
