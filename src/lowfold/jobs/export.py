@@ -74,7 +74,8 @@ def export_text(result) -> str:
     if not result.spin_form or model is None:
         why = result.readout_note or "no model attached"
         raise ModelError(f"the effective model has no spin-1/2 form ({why}); only spin "
-                         "models with named couplings can be exported")
+                         "models with named couplings and local-operator readouts can be "
+                         "exported")
     classes = tuple(getattr(result, "classes", ()) or ())
     groups = _class_groups(classes, model.lattice) if classes else _groups(result, model.lattice)
     constant = next((c.value for c in result.couplings if c.kind == "constant"), 0.0)
