@@ -1,0 +1,141 @@
+"""Kept local states ([site] states), X-operators and the local term types.
+
+Checks against things outside the project:
+
+- the t-J model with the three-site term, written with ``states = ["0", "u", "d"]`` and the
+  ``hopping``, ``exchange``, ``interaction`` and ``three-site`` types, has the spectrum of
+  the same Hamiltonian built with QuSpin on its spinful-fermion basis without double
+  occupancy (``double_occupancy=False``), on the open 3-site chain and the 2x2 plaquette;
+  the Hamiltonian (Chao, Spalek & Oles, J. Phys. C 10, L271 (1977); MacDonald, Girvin &
+  Yoshioka, Phys. Rev. B 37, 9753 (1988)):
+  ``H = -t sum P (c+ c + h.c.) P + J sum (S.S - n n/4) - K sum_(ijk) sum_s P (c+_is n_j,-s
+  c_ks - c+_is c+_j,-s c_js c_k,-s + h.c.) P``;
+- sizes of kept spaces are counts of configurations: N electrons on L sites without double
+  occupancy, C(L, N) 2^N states; bosons with occupations 1 or 2 on L sites and L + 1
+  particles, L states (common practice);
+- a hopping written with X-operators (``string`` terms) equals the projected hopping,
+  also across an occupied site (the Jordan-Wigner string of the X-operators).
+"""
+
+from __future__ import annotations
+
+from math import comb
+
+import numpy as np
+import pytest
+from helpers.modelfiles import lattice_text, model_of, term_text
+
+from lowfold import ModelError
+from lowfold.build.basis import sector_size
+from lowfold.build.hamiltonian import build_basis, hamiltonian_matrix
+
+T, J, K = 1.0, 0.4, 0.1
+
+
+def _tj_text(shape, size, particles, *, extra_terms="", site_extra='states = ["0", "u", "d"]'):
+    terms = (term_text("hopping", T, label="t") + term_text("exchange", J, label="J")
+             + term_text("interaction", -J / 4, label="Jn")
+             + term_text("three-site", K, label="K") + extra_terms)
+    text = lattice_text(shape, size, "open", {"type": "electron"}, terms,
+                        sector={"particles": particles})
+    return text.replace('type = "electron"', f'type = "electron"\n{site_extra}')
+
+
+def _levels(model):
+    return np.linalg.eigvalsh(hamiltonian_matrix(model).toarray())
+
+
+def _quspin_tj(n_sites, bonds, paths, particles):
+    from quspin.basis import spinful_fermion_basis_1d
+    from quspin.operators import hamiltonian
+    nf = [(up, particles - up) for up in range(particles + 1)]
+    basis = spinful_fermion_basis_1d(n_sites, Nf=nf, double_occupancy=False)
+    static = []
+    add = lambda op, *entries: static.append([op, [list(e) for e in entries]])  # noqa: E731
+    for i, j in bonds:
+        for a, b in ((i, j), (j, i)):
+            add("+-|", (-T, a, b))
+            add("|+-", (-T, a, b))
+        # S.S - n n / 4 with S^z = (n_up - n_dn)/2: the equal-spin parts cancel
+        add("n|n", (-J / 2, i, j), (-J / 2, j, i))
+        add("+-|-+", (J / 2, i, j, i, j), (J / 2, j, i, j, i))
+    for i, j, k in paths:
+        for a, b in ((i, k), (k, i)):
+            add("+-|n", (-K, a, b, j))       # c+_a,up n_j,dn c_b,up
+            add("n|+-", (-K, j, a, b))       # c+_a,dn n_j,up c_b,dn
+            # -(c+_a,up c+_j,dn c_j,up c_b,dn) = +c+_a,up c_j,up c+_j,dn c_b,dn, times -K
+            add("+-|+-", (-K, a, j, j, b))
+            # -(c+_a,dn c+_j,up c_j,dn c_b,up) = +c+_j,up c_b,up c+_a,dn c_j,dn, times -K
+            add("+-|+-", (-K, j, b, a, j))
+    h = hamiltonian(static, [], basis=basis, dtype=np.float64, check_symm=False,
+                    check_herm=False, check_pcon=False)
+    return np.linalg.eigvalsh(h.toarray())
+
+
+@pytest.mark.parametrize("shape, size, particles, bonds, paths", [
+    ("chain", [3], 2, [(0, 1), (1, 2)], [(0, 1, 2)]),
+    ("square", [2, 2], 3, [(0, 1), (0, 2), (1, 3), (2, 3)],
+     [(1, 0, 2), (0, 1, 3), (0, 2, 3), (1, 3, 2)])])
+def test_t_j_model_with_three_site_term_against_quspin(shape, size, particles, bonds, paths):
+    pytest.importorskip("quspin")
+    model = model_of(_tj_text(shape, size, particles))
+    n_sites = int(np.prod(size))
+    assert sorted(map(tuple, model.lattice.bonds("nearest").tolist())) == bonds
+    levels = _levels(model)
+    assert levels.size == comb(n_sites, particles) * 2**particles
+    np.testing.assert_allclose(levels, _quspin_tj(n_sites, bonds, paths, particles), atol=1e-12)
+
+
+def test_kept_space_sizes():
+    model = model_of(_tj_text("chain", [5], 3))
+    assert build_basis(model).size == sector_size(model.site, 5, model.sector) == comb(5, 3) * 8
+    boson = lattice_text("chain", [4], "periodic",
+                         {"type": "boson", "max_occupation": 2, "min_occupation": 1},
+                         term_text("hopping", 0.1), sector={"particles": 5})
+    model = model_of(boson)
+    assert model.site.kept_labels() == ("1", "2")
+    assert build_basis(model).size == sector_size(model.site, 4, model.sector) == 4
+
+
+def test_hopping_written_as_x_operator_strings_equals_the_projected_hopping():
+    # bonds (0, 2) across site 1: the X-operators carry the Jordan-Wigner string of site 1
+    bonds = [[0, 1], [1, 2], [0, 2]]
+    hopping = term_text("hopping", T, bonds=bonds, label="t")
+    strings = "".join(
+        term_text("string", -T, operators=[f"|{s}><0|", f"|0><{s}|"], sites=bonds,
+                  conjugate=True, label=f"x{s}") for s in ("u", "d"))
+    site = {"type": "electron", "states": ["0", "u", "d"]}
+    a = model_of(lattice_text("chain", [3], "open", site, hopping, sector={"particles": 2}))
+    b = model_of(lattice_text("chain", [3], "open", site, strings, sector={"particles": 2}))
+    np.testing.assert_allclose(hamiltonian_matrix(a).toarray(), hamiltonian_matrix(b).toarray(),
+                               atol=1e-14)
+
+
+@pytest.mark.parametrize("site_extra, message", [
+    ('states = ["0", "x"]', "unknown local state 'x'"),
+    ('states = ["u", "u"]', "listed twice"),
+    ("states = []", "non-empty list"),
+    ("min_occupation = 1", "only valid for type = \"boson\""),
+])
+def test_bad_kept_states_are_model_errors(site_extra, message):
+    with pytest.raises(ModelError, match=message):
+        model_of(_tj_text("chain", [3], 2, site_extra=site_extra))
+
+
+def test_local_term_types_refuse_other_sites_and_bad_operators():
+    spin = lattice_text("chain", [3], "open", {"type": "spin", "spin": 1},
+                        term_text("three-site", 0.1))
+    with pytest.raises(ModelError, match="three-site.*electron"):
+        model_of(spin)
+    electron = lattice_text("chain", [2], "open", {"type": "electron"},
+                            term_text("biquadratic", 0.1))
+    with pytest.raises(ModelError, match="biquadratic.*spin"):
+        model_of(electron)
+    bad = lattice_text("chain", [2], "open", {"type": "electron"},
+                       term_text("string", 0.1, operators=["|q><0|", "|0><u|"], bonds=[[0, 1]]))
+    with pytest.raises(ModelError, match="X-operator"):
+        model_of(bad)
+    loose = lattice_text("chain", [2], "open", {"type": "electron"},
+                         term_text("string", 0.1, operators=["|u><0|", "|0><u|"], bonds=[[0, 1]]))
+    with pytest.raises(ModelError, match="not Hermitian"):
+        model_of(loose)
