@@ -163,3 +163,21 @@ def test_min_occupation_keeps_the_same_states():
     effective = np.linalg.eigvalsh(result.matrix())
     np.testing.assert_allclose(np.sort(spectrum(model, effective.size).energies), effective,
                                atol=1e-12)
+
+
+def test_coupling_classes_of_a_doped_ring_export_one_term_per_class():
+    # the classes of a periodic ring (hopping and exchange on nearest bonds, the three-site
+    # term as a translated pattern) written as they are on an infinite lattice
+    t = 0.1
+    model = model_of(hubbard_text("chain", [6], boundary="periodic", t=t, U=U, particles=5,
+                                  order=2))
+    result = derive(model, 2, compare_exact=False)
+    assert {c.kind for c in result.classes} == {"hopping", "exchange", "three-site"}
+    exported = model_of(export_text(result, use_classes=True))
+    by_type = {term.type: term for term in exported.terms}
+    assert by_type["three-site"].pattern == ((0,), (1,), (2,))
+    assert by_type["hopping"].bonds == "nearest" and by_type["exchange"].bonds == "nearest"
+    assert exported.parameters["K"] == pytest.approx(t**2 / U, rel=1e-9)
+    effective = np.linalg.eigvalsh(result.matrix())
+    levels = np.sort(spectrum(exported, effective.size).energies)
+    np.testing.assert_allclose(levels, effective, atol=1e-12)

@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from helpers.cli import one_json_object, one_line_error, run, run_all, succeeded
+from helpers.cli import one_json_object, one_line_error, run_all, succeeded
 from helpers.derive_models import ISING_CHAIN
 from helpers.modelfiles import hubbard_text, model_of, write_models
 

@@ -72,6 +72,8 @@ def product_species(model: Model) -> tuple[int, int] | None:
 
 def product_route_reason(model: Model, operator: CompiledOperator | None = None) -> str | None:
     """Why the product basis does not apply to ``model`` (``None``: it applies)."""
+    if model.site.is_restricted:
+        return "the product basis holds every local state, and the site keeps only some ([site] states)"
     if product_species(model) is None:
         return "the product basis needs electrons at fixed particle number and S^z"
     operator = compile_operator(model) if operator is None else operator

@@ -59,8 +59,11 @@ def write_export(result, path) -> Path:
     return path
 
 
-def export_text(result) -> str:
+def export_text(result, *, use_classes: bool | None = None) -> str:
     """The effective model of ``result`` (an EffectiveModel) as model-file text.
+
+    ``use_classes`` (local-operator readouts only): one term per coupling class; default:
+    on an infinite lattice only (:mod:`lowfold.jobs.export_local`).
 
     Raises
     ------
@@ -70,7 +73,8 @@ def export_text(result) -> str:
     model = result.model
     if result.manifold.readout.startswith(LOCAL_READOUT):
         return local_export_text(result, lattice_table=_lattice_table, toml=_toml,
-                                 class_groups=_class_groups, unique=_unique)
+                                 class_groups=_class_groups, unique=_unique,
+                                 use_classes=use_classes)
     if not result.spin_form or model is None:
         why = result.readout_note or "no model attached"
         raise ModelError(f"the effective model has no spin-1/2 form ({why}); only spin "

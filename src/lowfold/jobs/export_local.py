@@ -35,6 +35,8 @@ same couplings back, and ``spectrum`` gives the effective spectrum.
 
 from __future__ import annotations
 
+import re
+
 import numpy as np
 
 from lowfold.errors import ModelError
@@ -48,8 +50,13 @@ _REL = 1e-9
 _BOSON_STEP = {"particle": 1, "hole": -1}
 
 
-def local_export_text(result, *, lattice_table, toml, class_groups, unique) -> str:
+def local_export_text(result, *, lattice_table, toml, class_groups, unique,
+                      use_classes: bool | None = None) -> str:
     """Model-file text of ``result`` (local-operator readout); helpers from jobs/export.py.
+
+    ``use_classes``: one term per coupling class (``result.classes``) rather than per group
+    of equal couplings; default: on an infinite lattice only (a finite cluster's couplings
+    are written as they are, strings included).
 
     Raises
     ------
@@ -58,24 +65,20 @@ def local_export_text(result, *, lattice_table, toml, class_groups, unique) -> s
         site to site, or a manifold that is a slice at several particle numbers.
     """
     model = result.model
-    states = getattr(result.manifold, "states", None)
-    if model is None or states is None:
-        raise ModelError("the effective model cannot be exported: its manifold states are not "
-                         "attached (export from the derive run itself)")
-    basis, reason = product_manifold(model, np.asarray(states, dtype=np.int64))
-    if basis is None:
-        raise ModelError(f"the effective model cannot be exported: {reason}")
-    kept = [tuple(v.tolist()) for v in basis.values]
-    if len(set(kept)) != 1:
-        raise ModelError("the effective model cannot be exported: the kept local states differ "
-                         "from site to site, and [site] states is one set for every site")
-    background = {int(i): int(basis.values[i][basis.reference[i]]) for i in range(basis.n_sites)}
-    site_lines = _site_table(model.site, kept[0], toml)
-    sector_lines = _sector_table(model, basis, toml)
+    if model is None:
+        raise ModelError("the effective model cannot be exported: no model attached")
+    infinite = model.lattice.infinite
+    kept, background, sector_lines = _kept_states(result, toml)
+    site_lines = _site_table(model.site, kept, toml)
     classes = tuple(getattr(result, "classes", ()) or ())
-    if classes and model.lattice.infinite:
+    if use_classes is None:
+        use_classes = infinite
+    if use_classes and classes:
         items = [(kind, value, selector, None)
                  for kind, _, value, selector in class_groups(classes, model.lattice)]
+    elif infinite:
+        raise ModelError("the effective model cannot be exported: an infinite lattice needs "
+                         "its coupling classes")
     else:
         items = _coupling_groups(result.couplings, model.lattice)
     constant = float(np.real(next((c.value for c in result.couplings if c.kind == "constant"), 0.0)))
@@ -105,6 +108,33 @@ def local_export_text(result, *, lattice_table, toml, class_groups, unique) -> s
 
 
 # --------------------------------------------------------------------------- tables
+
+def _kept_states(result, toml):
+    """(kept local values, background occupation per site, [sector] lines) of the manifold:
+    from its states on a cluster, or from the readout's description on an infinite lattice
+    (no background: boson classes are not written there)."""
+    model = result.model
+    if model.lattice.infinite:
+        sets = re.findall(r"\{([^}]*)\}", result.manifold.readout)
+        labels = model.site.local_labels()
+        if len(sets) != 1 or not all(x in labels for x in sets[0].split()):
+            raise ModelError("the effective model cannot be exported: its readout names no "
+                             f"single set of kept local states ({result.manifold.readout})")
+        return tuple(labels.index(x) for x in sets[0].split()), {}, []
+    states = getattr(result.manifold, "states", None)
+    if states is None:
+        raise ModelError("the effective model cannot be exported: its manifold states are not "
+                         "attached (export from the derive run itself)")
+    basis, reason = product_manifold(model, np.asarray(states, dtype=np.int64))
+    if basis is None:
+        raise ModelError(f"the effective model cannot be exported: {reason}")
+    kept = [tuple(v.tolist()) for v in basis.values]
+    if len(set(kept)) != 1:
+        raise ModelError("the effective model cannot be exported: the kept local states differ "
+                         "from site to site, and [site] states is one set for every site")
+    background = {int(i): int(basis.values[i][basis.reference[i]]) for i in range(basis.n_sites)}
+    return kept[0], background, _sector_table(model, basis, toml)
+
 
 def _site_table(site, kept, toml) -> list[str]:
     lines = ["[site]", f"type = {toml(site.type)}"]
@@ -224,9 +254,8 @@ def _term_specs(kind, value, selector, operator, site, background, lattice):
         if isinstance(strength, complex) and strength.imag == 0:
             strength = strength.real
         return [("string", "X", strength, {"operators": list(operator), **selector}, None)]
-    for name, step in _BOSON_STEP.items():
-        if kind.startswith(name):
-            return _boson_specs(kind, real, selector, site, background, lattice)
+    if kind.split("-")[0] in _BOSON_STEP:
+        return _boson_specs(kind, real, selector, site, background, lattice)
     raise ModelError(f"the effective model cannot be exported: the readout kind {kind!r} has "
                      "no model-file term")
 
