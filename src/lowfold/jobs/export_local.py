@@ -141,11 +141,9 @@ def _site_table(site, kept, toml) -> list[str]:
     if site.type == "spin":
         spin = site.spin
         lines.append(f"spin = {toml(float(spin)) if spin.denominator != 1 else int(spin)}")
-    if site.type == "boson":
-        lines.append(f"max_occupation = {max(kept)}")
-        full = tuple(range(max(kept) + 1))
-    else:
-        full = tuple(range(site.local_dimension))
+    if site.type == "boson":           # the derived model's cut-off: the same state integers
+        lines.append(f"max_occupation = {site.max_occupation}")
+    full = tuple(range(site.local_dimension))
     labels = site.local_labels()
     if tuple(kept) != full:
         lines.append(f"states = {toml([labels[v] for v in kept])}")
