@@ -18,7 +18,8 @@ Each case derives a model whose manifold is a product of local state sets, expor
 
 The exact spectra come from lowfold's own Lanczos/dense solver (checked against QuSpin in
 test_spectrum_quspin.py) and, for the spin-2 chain, from QuSpin directly.  The exported
-t-J model itself is checked against QuSpin in test_local_space.py.
+plaquette's levels are compared with QuSpin's t-J model (no double occupancy) at the
+exported t, J, K (tests/helpers/quspin_tj.py).
 """
 
 from __future__ import annotations
@@ -26,6 +27,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from helpers.modelfiles import hubbard_text, lattice_text, model_of, term_text
+from helpers.quspin_tj import quspin_tj_levels
 
 from lowfold.jobs.derive import derive
 from lowfold.jobs.export import export_text
@@ -88,6 +90,21 @@ def test_doped_hubbard_exports_as_t_j_model(shape, size, particles, bonds, paths
     assert sum(t.type not in ("constant",) for t in model.terms) == 4
     assert len(model.lattice.bonds("nearest")) == bonds
     assert sum(c.kind == "three-site" for c in result.couplings) == paths
+
+
+def test_exported_plaquette_spectrum_against_quspin():
+    # the exported file's levels against QuSpin's t-J model with the exported t, J, K
+    pytest.importorskip("quspin")
+    result = derive(_hubbard("square", [2, 2], 3, 0.1), 2, compare_exact=False)
+    model = model_of(export_text(result))
+    p = model.parameters
+    bonds = sorted(map(tuple, model.lattice.bonds("nearest").tolist()))
+    paths = [(1, 0, 2), (0, 1, 3), (0, 2, 3), (1, 3, 2)]
+    reference = quspin_tj_levels(4, bonds, paths, 3, t=p["t"], j=p["J"], k=p["K"],
+                                 constant=p["E0"])
+    assert p["J_density"] == pytest.approx(-p["J"] / 4, rel=1e-12)
+    levels = np.sort(spectrum(model, reference.size).energies)
+    np.testing.assert_allclose(levels, reference, atol=1e-12)
 
 
 @pytest.mark.parametrize("shape, size, particles", [("chain", [3], 2), ("square", [2, 2], 3)])

@@ -24,6 +24,7 @@ from math import comb
 import numpy as np
 import pytest
 from helpers.modelfiles import lattice_text, model_of, term_text
+from helpers.quspin_tj import quspin_tj_levels
 
 from lowfold import ModelError
 from lowfold.build.basis import sector_size
@@ -45,33 +46,6 @@ def _levels(model):
     return np.linalg.eigvalsh(hamiltonian_matrix(model).toarray())
 
 
-def _quspin_tj(n_sites, bonds, paths, particles):
-    from quspin.basis import spinful_fermion_basis_1d
-    from quspin.operators import hamiltonian
-    nf = [(up, particles - up) for up in range(particles + 1)]
-    basis = spinful_fermion_basis_1d(n_sites, Nf=nf, double_occupancy=False)
-    static = []
-    add = lambda op, *entries: static.append([op, [list(e) for e in entries]])  # noqa: E731
-    for i, j in bonds:
-        for a, b in ((i, j), (j, i)):
-            add("+-|", (-T, a, b))
-            add("|+-", (-T, a, b))
-        # S.S - n n / 4 with S^z = (n_up - n_dn)/2: the equal-spin parts cancel
-        add("n|n", (-J / 2, i, j), (-J / 2, j, i))
-        add("+-|-+", (J / 2, i, j, i, j), (J / 2, j, i, j, i))
-    for i, j, k in paths:
-        for a, b in ((i, k), (k, i)):
-            add("+-|n", (-K, a, b, j))       # c+_a,up n_j,dn c_b,up
-            add("n|+-", (-K, j, a, b))       # c+_a,dn n_j,up c_b,dn
-            # -(c+_a,up c+_j,dn c_j,up c_b,dn) = +c+_a,up c_j,up c+_j,dn c_b,dn, times -K
-            add("+-|+-", (-K, a, j, j, b))
-            # -(c+_a,dn c+_j,up c_j,dn c_b,up) = +c+_j,up c_b,up c+_a,dn c_j,dn, times -K
-            add("+-|+-", (-K, j, b, a, j))
-    h = hamiltonian(static, [], basis=basis, dtype=np.float64, check_symm=False,
-                    check_herm=False, check_pcon=False)
-    return np.linalg.eigvalsh(h.toarray())
-
-
 @pytest.mark.parametrize("shape, size, particles, bonds, paths", [
     ("chain", [3], 2, [(0, 1), (1, 2)], [(0, 1, 2)]),
     ("square", [2, 2], 3, [(0, 1), (0, 2), (1, 3), (2, 3)],
@@ -83,7 +57,8 @@ def test_t_j_model_with_three_site_term_against_quspin(shape, size, particles, b
     assert sorted(map(tuple, model.lattice.bonds("nearest").tolist())) == bonds
     levels = _levels(model)
     assert levels.size == comb(n_sites, particles) * 2**particles
-    np.testing.assert_allclose(levels, _quspin_tj(n_sites, bonds, paths, particles), atol=1e-12)
+    reference = quspin_tj_levels(n_sites, bonds, paths, particles, t=T, j=J, k=K)
+    np.testing.assert_allclose(levels, reference, atol=1e-12)
 
 
 def test_kept_space_sizes():
