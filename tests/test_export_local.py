@@ -24,11 +24,14 @@ exported t, J, K (tests/helpers/quspin_tj.py).
 
 from __future__ import annotations
 
+import dataclasses
+
 import numpy as np
 import pytest
 from helpers.modelfiles import hubbard_text, lattice_text, model_of, term_text
 from helpers.quspin_tj import quspin_tj_levels
 
+from lowfold import ModelError
 from lowfold.jobs.derive import derive
 from lowfold.jobs.export import export_text
 from lowfold.jobs.spectrum import spectrum
@@ -227,3 +230,20 @@ def test_strings_of_a_doped_chain_in_fields_export_exactly():
     assert 'operators = ["|u><d|"]' in text
     again = derive(model_of(text), 1, compare_exact=False)
     _same_matrix(result, again)
+
+
+def test_export_refuses_kept_states_that_differ_between_sites():
+    # U on sites 0 and 1 only: site 2 keeps its doubly occupied state as well
+    text = hubbard_text("chain", [3], t=0.1, U=U, particles=2, order=2, hubbard_sites=[0, 1])
+    result = derive(model_of(text), 2, compare_exact=False)
+    assert result.manifold.readout.startswith("local operators")
+    with pytest.raises(ModelError, match="differ from site to site"):
+        export_text(result)
+
+
+def test_export_needs_the_manifold_states():
+    result = derive(_hubbard("chain", [3], 2, 0.1), 2, compare_exact=False)
+    detached = dataclasses.replace(result, manifold=dataclasses.replace(result.manifold,
+                                                                        states=None))
+    with pytest.raises(ModelError, match="manifold states are not attached"):
+        export_text(detached)
