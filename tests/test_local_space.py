@@ -72,6 +72,33 @@ def test_kept_space_sizes():
     assert build_basis(model).size == sector_size(model.site, 4, model.sector) == 4
 
 
+@pytest.mark.parametrize("site, n_sites, sector", [
+    ({"type": "electron", "states": ["0", "u", "d"]}, 6, {"particles": 4}),
+    ({"type": "electron", "states": ["0", "u", "d"]}, 6, {"particles": 4, "sz": 1}),
+    ({"type": "electron", "states": ["u", "d", "2"]}, 5, {"sz": 0.5}),
+    ({"type": "spin", "spin": 2, "states": ["+1", "0", "-1"]}, 4, {"sz": -1}),
+    ({"type": "boson", "max_occupation": 3, "min_occupation": 1}, 4, {"particles": 7}),
+    ({"type": "boson", "max_occupation": 3, "states": [0, 2]}, 4, None)])
+def test_kept_states_are_the_sector_states_whose_every_site_is_kept(site, n_sites, sector):
+    # the site-by-site enumeration against the whole sector, filtered configuration by
+    # configuration (local value of site i: sum_m digit(i + m n_sites) radix^m)
+    text = lattice_text("chain", [n_sites], "open", site, "", sector=sector)
+    model = model_of(text)
+    full = model_of(text.replace(
+        next(line for line in text.splitlines() if line.startswith(("states", "min_occ"))), ""))
+    kept = set(model.site.states)
+    radix, modes = full.site.radix, full.site.modes
+
+    def inside(state):
+        digits = [(state // radix**k) % radix for k in range(n_sites * modes)]
+        return all(sum(digits[i + m * n_sites] * radix**m for m in range(modes)) in kept
+                   for i in range(n_sites))
+
+    expected = [int(x) for x in build_basis(full).states if inside(int(x))]
+    assert build_basis(model).states.tolist() == expected
+    assert sector_size(model.site, n_sites, model.sector) == len(expected)
+
+
 def test_hopping_written_as_x_operator_strings_equals_the_projected_hopping():
     # bonds (0, 2) across site 1: the X-operators carry the Jordan-Wigner string of site 1
     bonds = [[0, 1], [1, 2], [0, 2]]

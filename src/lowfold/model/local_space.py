@@ -9,7 +9,7 @@ Every local value has a *label* (the labels of the local-operator readout,
 ``[site] states = [...]`` keeps some local states (the doped Mott insulator ``["0", "u",
 "d"]``, a boson window ``min_occupation`` .. ``max_occupation``).  The model then lives in the
 span of the kept states, ``P = prod_i P_i``: the basis holds only states whose every site is
-kept (:func:`kept_mask`), and every off-diagonal string ``O`` of a term acts as
+kept (:func:`lowfold.build.basis.kept_states`), and every off-diagonal string ``O`` of a term acts as
 ``P_S O P_S``, ``S`` the sites it touches (:mod:`lowfold.build.kept_states`), which on the
 kept space is ``P O P``.  So the hopping of electrons without double occupancy is the projected
 hopping ``-t sum_s P (c+_is c_js + h.c.) P`` of the t-J model.
@@ -31,8 +31,7 @@ import numpy as np
 from lowfold.errors import ModelError
 from lowfold.model.sites import Site, SlotOperator
 
-__all__ = ["local_labels", "kept_values", "x_operator", "split_x_name", "local_values",
-           "kept_mask", "local_quantities"]
+__all__ = ["local_labels", "kept_values", "x_operator", "split_x_name", "local_quantities"]
 
 _ELECTRON_LABELS = ("0", "u", "d", "2")
 
@@ -111,33 +110,6 @@ def x_operator(site: Site, name: str) -> list:
         if op.fermionic and sum(db[:m]) % 2:
             sign = -sign
     return [(complex(sign), factors)]
-
-
-def local_values(site: Site, n_sites: int, states: np.ndarray) -> np.ndarray:
-    """Local value of every site of every encoded state, shape ``(n_states, n_sites)``."""
-    states = np.asarray(states, dtype=np.int64)
-    values = np.zeros((states.size, n_sites), dtype=np.int64)
-    for mode in range(site.modes):
-        for i in range(n_sites):
-            digit = (states // site.radix ** (i + mode * n_sites)) % site.radix
-            values[:, i] += digit * site.radix ** mode
-    return values
-
-
-def kept_mask(site: Site, n_sites: int, states: np.ndarray) -> np.ndarray:
-    """Whether every site of each encoded state is in a kept local state."""
-    states = np.asarray(states, dtype=np.int64)
-    if site.states is None:
-        return np.ones(states.size, dtype=bool)
-    allowed = np.zeros(site.local_dimension, dtype=bool)
-    allowed[list(site.states)] = True
-    keep = np.ones(states.size, dtype=bool)
-    for i in range(n_sites):
-        value = np.zeros(states.size, dtype=np.int64)
-        for mode in range(site.modes):
-            value += ((states // site.radix ** (i + mode * n_sites)) % site.radix) * site.radix ** mode
-        keep &= allowed[value]
-    return keep
 
 
 def local_quantities(site: Site, value: int) -> tuple[int, int]:
