@@ -14,7 +14,10 @@ Checks against things outside the project:
   occupancy, C(L, N) 2^N states; bosons with occupations 1 or 2 on L sites and L + 1
   particles, L states (common practice);
 - a hopping written with X-operators (``string`` terms) equals the projected hopping,
-  also across an occupied site (the Jordan-Wigner string of the X-operators).
+  also across an occupied site (the Jordan-Wigner string of the X-operators);
+- ``exchange`` + ``biquadratic`` at the AKLT point has the exact ground energy -2/3 per bond
+  (Affleck, Kennedy, Lieb & Tasaki, Phys. Rev. Lett. 59, 799 (1987)); ``biquadratic`` and
+  ``single-ion`` against QuSpin's spin-1 chain.
 """
 
 from __future__ import annotations
@@ -141,3 +144,36 @@ def test_local_term_types_refuse_other_sites_and_bad_operators():
                          term_text("string", 0.1, operators=["|u><0|", "|0><u|"], bonds=[[0, 1]]))
     with pytest.raises(ModelError, match="not Hermitian"):
         model_of(loose)
+
+
+def test_aklt_chain_from_the_biquadratic_type():
+    # H = sum [S.S + (S.S)^2 / 3] on an open spin-1 chain: ground energy -2/3 per bond,
+    # four-fold degenerate (the edge spins 1/2); Affleck, Kennedy, Lieb & Tasaki, Phys. Rev.
+    # Lett. 59, 799 (1987)
+    terms = term_text("exchange", 1.0) + term_text("biquadratic", 1.0 / 3.0)
+    model = model_of(lattice_text("chain", [6], "open", {"type": "spin", "spin": 1}, terms))
+    levels = _levels(model)
+    np.testing.assert_allclose(levels[:4], -2.0 / 3.0 * 5, atol=1e-12)
+    assert levels[4] > levels[0] + 1e-3
+
+
+def test_spin1_exchange_biquadratic_single_ion_against_quspin():
+    pytest.importorskip("quspin")
+    from quspin.basis import spin_basis_1d
+    from quspin.operators import hamiltonian
+    j, b, d, n = 0.7, -0.3, 0.45, 4
+    terms = (term_text("exchange", j) + term_text("biquadratic", b)
+             + term_text("single-ion", d, sites=[0, 2]))
+    model = model_of(lattice_text("chain", [n], "open", {"type": "spin", "spin": 1}, terms))
+    dot = [("z", "z", 1.0), ("+", "-", 0.5), ("-", "+", 0.5)]
+    static = []
+    for i in range(n - 1):
+        static += [[p + q, [[j * w, i, i + 1]]] for p, q, w in dot]
+        # (A_i B_j)(C_i D_j) = (A C)_i (B D)_j
+        static += [[a + c + b_ + d_, [[b * w1 * w2, i, i, i + 1, i + 1]]]
+                   for a, b_, w1 in dot for c, d_, w2 in dot]
+    static.append(["zz", [[d, 0, 0], [d, 2, 2]]])
+    basis = spin_basis_1d(n, S="1", pauli=0)
+    h = hamiltonian(static, [], basis=basis, dtype=np.complex128, check_symm=False,
+                    check_herm=False, check_pcon=False)
+    np.testing.assert_allclose(_levels(model), np.linalg.eigvalsh(h.toarray()), atol=1e-12)
