@@ -247,3 +247,19 @@ def test_export_needs_the_manifold_states():
                                                                         states=None))
     with pytest.raises(ModelError, match="manifold states are not attached"):
         export_text(detached)
+
+
+def test_spin1_with_every_state_kept_exports_without_states():
+    # every spin-1 state in the window: P H P is H itself (no Q), read as exchange,
+    # biquadratic and single-ion (AKLT-like couplings chosen here) and written back as such
+    terms = (term_text("single-ion", 0.4, label="D") + term_text("exchange", 1.0, label="J")
+             + term_text("biquadratic", 1.0 / 3.0, label="B"))
+    text = lattice_text("chain", [4], "open", {"type": "spin", "spin": 1}, terms)
+    result = derive(model_of(text + '\n[perturbation]\nunperturbed = ["D"]\n'
+                                    'window = [0.0, 1.6]\norder = 1\n'), 1, compare_exact=False)
+    model, _ = _round_trip(result)
+    assert model.site.states is None and model.site.radix == 3
+    values = {t.type: model.parameters[t.strength] for t in model.terms}
+    assert values["exchange"] == pytest.approx(1.0, rel=1e-12)
+    assert values["biquadratic"] == pytest.approx(1.0 / 3.0, rel=1e-12)
+    assert values["single-ion"] == pytest.approx(0.4, rel=1e-12)
