@@ -211,6 +211,7 @@ def _term_strings(model: Model, label: str, products) -> dict:
 
 
 def _project(site, n_sites: int, strings: dict) -> dict:
+    """The strings ``{key: c}`` projected onto the kept local states, collected again."""
     out: dict = {}
     for key, c in strings.items():
         for factors in project_string(site, n_sites, key):

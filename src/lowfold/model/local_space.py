@@ -8,11 +8,11 @@ Every local value has a *label* (the labels of the local-operator readout,
 
 ``[site] states = [...]`` keeps some local states (the doped Mott insulator ``["0", "u",
 "d"]``, a boson window ``min_occupation`` .. ``max_occupation``).  The model then lives in the
-span of the kept states, ``P = prod_i P_i``: the basis holds only states whose every site is
-kept (:func:`lowfold.build.basis.kept_states`), and every off-diagonal string ``O`` of a term acts as
-``P_S O P_S``, ``S`` the sites it touches (:mod:`lowfold.build.kept_states`), which on the
-kept space is ``P O P``.  So the hopping of electrons without double occupancy is the projected
-hopping ``-t sum_s P (c+_is c_js + h.c.) P`` of the t-J model.
+span of the kept states, ``P = prod_i P_i``: the basis holds only states whose every site
+is kept (:func:`lowfold.build.basis.kept_states`), and every off-diagonal string ``O`` of a
+term acts as ``P_S O P_S``, ``S`` the sites it touches (:mod:`lowfold.build.kept_states`),
+which on the kept space is ``P O P``.  So the hopping of electrons without double occupancy
+is the projected hopping ``-t sum_s P (c+_is c_js + h.c.) P`` of the t-J model.
 
 X-operators ``|a><b|`` (a, b labels) are local operator names of every site type: the
 operator that takes local state b to a.  A fermion-parity-odd one is a product of the site's
