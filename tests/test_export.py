@@ -13,6 +13,7 @@ import numpy as np
 import pytest
 
 from helpers.cli import one_json_object, one_line_error, run, succeeded
+from helpers.derive_models import ISING_CHAIN
 from helpers.modelfiles import hubbard_text, model_of, spin_text, term_text, write_models
 from lowfold import ModelError, derive, load_model
 from lowfold.jobs.export import export_text, write_export
@@ -72,9 +73,9 @@ def test_multi_spin_couplings_come_back_from_an_exported_spin_model(tmp_path):
     assert original.residual.keys() == again.residual.keys() and original.residual
 
 
-def test_export_refuses_a_result_without_spin_form():
-    text = hubbard_text("chain", [2], t=0.1, U=1.0, particles=1, order=2)
-    result = derive(model_of(text), compare_exact=False)
+def test_export_refuses_a_result_without_named_readout():
+    # P = {uuu, ddd} of an Ising chain is no product of per-site sets: only a matrix
+    result = derive(model_of(ISING_CHAIN), compare_exact=False)
     with pytest.raises(ModelError, match="no spin-1/2 form"):
         export_text(result)
 

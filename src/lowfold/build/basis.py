@@ -14,6 +14,7 @@ import numpy as np
 
 from lowfold._kernels import basis as kernels
 from lowfold.errors import SizeError
+from lowfold.model.local_space import local_quantities
 from lowfold.model.sites import Site
 from lowfold.model.sector import Sector, sector_totals
 
@@ -135,7 +136,59 @@ def explicit_basis(states, n_slots: int, radix: int) -> Basis:
 
 
 def sector_basis(site: Site, n_sites: int, sector: Sector, *, max_states: int | None = None) -> Basis:
-    """Enumerate the basis of ``sector`` for ``n_sites`` sites of type ``site``."""
+    """Enumerate the basis of ``sector`` for ``n_sites`` sites of type ``site``; on a site
+    with kept states (:mod:`lowfold.model.local_space`), the states whose every site is kept."""
+    if not site.is_restricted:
+        return _sector_basis(site, n_sites, sector, max_states=max_states)
+    sector_totals(site, n_sites, sector)                 # refuses impossible sectors
+    _check_size(kept_sector_size(site, n_sites, sector), max_states)
+    return explicit_basis(kept_states(site, n_sites, sector), n_sites * site.modes, site.radix)
+
+
+def _reachable(n: np.ndarray, s: np.ndarray, target, rest: set, key) -> np.ndarray:
+    """Whether the totals ``(n, s)`` so far can still end at ``target`` (``rest``: what the
+    remaining sites can add), decided once per distinct pair."""
+    if n.size == 0:
+        return np.zeros(0, dtype=bool)
+    width = int(s.max() - s.min()) + 1
+    codes = (n - n.min()) * width + (s - s.min())
+    unique, inverse = np.unique(codes, return_inverse=True)
+    ok = np.array([key(target[0] - (int(u) // width + int(n.min())),
+                       target[1] - (int(u) % width + int(s.min()))) in rest for u in unique])
+    return ok[inverse.ravel()]
+
+
+def kept_states(site: Site, n_sites: int, sector: Sector) -> np.ndarray:
+    """The encoded states of a sector made of kept local states only, enumerated site by
+    site (a partial state is extended only when the remaining sites can still reach the
+    sector's particle number and S^z), never by filtering the whole sector."""
+    local = [(v, *local_quantities(site, v)) for v in site.states]
+    want_n = sector.particles
+    want_s = None if sector.sz is None else int(2 * sector.sz)
+    key = lambda n, s: (n if want_n is not None else 0, s if want_s is not None else 0)  # noqa: E731
+    reach = [{(0, 0)}]                                   # totals sites i.. can add, from the end
+    for _ in range(n_sites):
+        reach.append({key(n + dn, s + ds) for n, s in reach[-1] for _, dn, ds in local})
+    reach.reverse()
+    target = key(want_n or 0, want_s or 0)
+    states = np.zeros(1, dtype=np.int64)
+    used_n = np.zeros(1, dtype=np.int64)
+    used_s = np.zeros(1, dtype=np.int64)
+    for i in range(n_sites):
+        parts = []
+        for value, dn, ds in local:
+            code = sum(((value // site.radix ** m) % site.radix) * site.radix ** (i + m * n_sites)
+                       for m in range(site.modes))
+            n, s = used_n + dn, used_s + ds
+            keep = _reachable(n, s, target, reach[i + 1], key)
+            parts.append((states[keep] + code, n[keep], s[keep]))
+        states = np.concatenate([p[0] for p in parts])
+        used_n = np.concatenate([p[1] for p in parts])
+        used_s = np.concatenate([p[2] for p in parts])
+    return np.sort(states)
+
+
+def _sector_basis(site: Site, n_sites: int, sector: Sector, *, max_states: int | None = None) -> Basis:
     totals = sector_totals(site, n_sites, sector)
     n_slots = n_sites * site.modes
     if totals == "sz-only":
@@ -154,9 +207,29 @@ def sector_basis(site: Site, n_sites: int, sector: Sector, *, max_states: int | 
 
 def sector_size(site: Site, n_sites: int, sector: Sector) -> int:
     """Number of states of a sector, without enumerating it."""
+    if site.is_restricted:
+        return kept_sector_size(site, n_sites, sector)
     totals = sector_totals(site, n_sites, sector)
     if totals == "sz-only":
         shift = int(2 * sector.sz)
         return sum(basis_size(n_sites, 2, [(n_sites, n_up)]) * basis_size(n_sites, 2, [(n_sites, n_up - shift)])
                    for n_up in range(max(0, shift), min(n_sites, n_sites + shift) + 1))
     return basis_size(n_sites * site.modes, site.radix, totals)
+
+
+def kept_sector_size(site: Site, n_sites: int, sector: Sector) -> int:
+    """Number of states of a sector made of kept local states only (exact, by counting the
+    ways to reach each total particle number and S^z site by site)."""
+    sector_totals(site, n_sites, sector)             # refuses impossible sectors
+    local = [local_quantities(site, v) for v in site.states]
+    counts = {(0, 0): 1}
+    for _ in range(n_sites):
+        new: dict = {}
+        for (n, s), c in counts.items():
+            for dn, ds in local:
+                key = (n + dn, s + ds)
+                new[key] = new.get(key, 0) + c
+        counts = new
+    return sum(c for (n, s), c in counts.items()
+               if (sector.particles is None or n == sector.particles)
+               and (sector.sz is None or s == int(2 * sector.sz)))

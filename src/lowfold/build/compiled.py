@@ -25,6 +25,7 @@ import numba
 import numpy as np
 
 from lowfold._kernels import operators as kernels
+from lowfold.build.kept_states import project_string
 from lowfold.errors import ModelError
 from lowfold.model.model import Model
 from lowfold.model.sites import SlotOperator
@@ -203,8 +204,21 @@ def _term_strings(model: Model, label: str, products) -> dict:
             factor, key = _canonical(slot_factors)
             if factor:
                 strings[key] = strings.get(key, 0) + factor * c
+    if site.is_restricted:                  # P O P on the kept local states
+        strings = _project(site, n_sites, strings)
     scale = max((abs(c) for c in strings.values()), default=0.0)
     return {k: c for k, c in strings.items() if abs(c) > 1e-14 * scale}
+
+
+def _project(site, n_sites: int, strings: dict) -> dict:
+    """The strings ``{key: c}`` projected onto the kept local states, collected again."""
+    out: dict = {}
+    for key, c in strings.items():
+        for factors in project_string(site, n_sites, key):
+            factor, new = _canonical(factors)
+            if factor:
+                out[new] = out.get(new, 0) + factor * c
+    return out
 
 
 def _deltas(model: Model, key) -> tuple[int, int]:

@@ -62,7 +62,7 @@ def product_threads(size: int):
 def product_species(model: Model) -> tuple[int, int] | None:
     """``(N_up, N_dn)`` when the model's sector is electrons at fixed N_up and N_dn, else
     ``None`` (no model of another site type or sector has a product basis)."""
-    if model.site.type != "electron" or model.lattice.infinite:
+    if model.site.type != "electron" or model.lattice.infinite or model.site.is_restricted:
         return None
     totals = sector_totals(model.site, model.n_sites, model.sector)
     if not isinstance(totals, list) or len(totals) != 2:
@@ -72,6 +72,8 @@ def product_species(model: Model) -> tuple[int, int] | None:
 
 def product_route_reason(model: Model, operator: CompiledOperator | None = None) -> str | None:
     """Why the product basis does not apply to ``model`` (``None``: it applies)."""
+    if model.site.is_restricted:
+        return "the product basis holds every local state, and the site keeps only some ([site] states)"
     if product_species(model) is None:
         return "the product basis needs electrons at fixed particle number and S^z"
     operator = compile_operator(model) if operator is None else operator

@@ -1,5 +1,8 @@
 """Export: the effective spin model of a derive as a model file every command reads.
 
+(A local-operator readout -- t-J, spin-1, bosons -- is written by
+:mod:`lowfold.jobs.export_local`, on the kept local states.)
+
 :func:`export_text` writes TOML (docs/model-files.md) for an
 :class:`~lowfold.results.EffectiveModel` with a spin form:
 
@@ -31,9 +34,11 @@ from pathlib import Path
 import numpy as np
 
 from lowfold.errors import ModelError
+from lowfold.jobs.export_local import local_export_text
 from lowfold.model.cycles import lattice_cycles
 from lowfold.model.lattice import BOND_CLASSES
 from lowfold.model.patterns import pattern_of
+from lowfold.readout.local_form import LOCAL_READOUT
 from lowfold.readout.pauli import parse_pauli_string
 
 __all__ = ["export_text", "write_export"]
@@ -54,8 +59,11 @@ def write_export(result, path) -> Path:
     return path
 
 
-def export_text(result) -> str:
+def export_text(result, *, use_classes: bool | None = None) -> str:
     """The effective model of ``result`` (an EffectiveModel) as model-file text.
+
+    ``use_classes`` (local-operator readouts only): one term per coupling class; default:
+    on an infinite lattice only (:mod:`lowfold.jobs.export_local`).
 
     Raises
     ------
@@ -63,16 +71,15 @@ def export_text(result) -> str:
         The result has no spin form (no named couplings to write), or no model.
     """
     model = result.model
-    if result.manifold.readout.startswith("local operators"):
-        raise ModelError("the effective model has no spin-1/2 form: it is read out in local "
-                         "operators of the kept states (projected hopping, three-site terms, "
-                         "X-operator strings): "
-                         "model files have no term types for operators projected onto those "
-                         "states, so it cannot be exported; use --json for its couplings")
+    if result.manifold.readout.startswith(LOCAL_READOUT):
+        return local_export_text(result, lattice_table=_lattice_table, toml=_toml,
+                                 class_groups=_class_groups, unique=_unique,
+                                 use_classes=use_classes)
     if not result.spin_form or model is None:
         why = result.readout_note or "no model attached"
         raise ModelError(f"the effective model has no spin-1/2 form ({why}); only spin "
-                         "models with named couplings can be exported")
+                         "models with named couplings and local-operator readouts can be "
+                         "exported")
     classes = tuple(getattr(result, "classes", ()) or ())
     groups = _class_groups(classes, model.lattice) if classes else _groups(result, model.lattice)
     constant = next((c.value for c in result.couplings if c.kind == "constant"), 0.0)

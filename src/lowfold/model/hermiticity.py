@@ -40,11 +40,11 @@ def check_hermitian_terms(model) -> None:
     ``model`` sum to a Hermitian operator, as far as the terms decide it (see the module
     docstring)."""
     for term in model.terms:
-        if term.type not in ("product", "hopping") and complex(model.strength(term)).imag != 0:
+        if term.type not in ("product", "hopping", "string") and complex(model.strength(term)).imag != 0:
             raise ModelError(f"term {term.label!r}: a {term.type} term needs a real strength "
                              f"(it is Hermitian only then), got {model.strength(term)!r}; "
-                             "complex strengths belong to hopping and product terms")
-    loose = [t for t in model.terms if t.type == "product" and not t.conjugate]
+                             "complex strengths belong to hopping, product and string terms")
+    loose = [t for t in model.terms if t.type in ("product", "string") and not t.conjugate]
     if not loose:
         return
     groups: dict = {}

@@ -127,7 +127,8 @@ class Model:
 
     def products(self, labels=None):
         """Expanded local-operator products of the named terms (default: all), as
-        ``[(label, [(coefficient, ((operator, site), ...)), ...]), ...]``."""
+        ``[(label, [(coefficient, ((operator, site), ...)), ...]), ...]`` (on a site with
+        kept states, the compiled strings act as ``P O P``: :mod:`lowfold.build.kept_states`)."""
         chosen = self.terms if labels is None else [self.term(label) for label in labels]
         return [(t.label, expand_term(t, self.strength(t), self.lattice, self.site, self.parameters))
                 for t in chosen]

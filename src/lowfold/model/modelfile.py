@@ -21,6 +21,7 @@ from lowfold.errors import ModelError, SizeError
 from lowfold.model.lattice import make_lattice
 from lowfold.model.model import Model, PerturbationSpec
 from lowfold.model.sites import check_state_space, make_site
+from lowfold.model.local_terms import LOCAL_TERM_TYPES
 from lowfold.model.spin_terms import SPIN_TERM_TYPES
 from lowfold.model.terms import TERM_TYPES, TWO_SITE_TYPES, Term, check_label, check_strength
 
@@ -28,7 +29,7 @@ __all__ = ["load_model", "parse_model", "read_toml"]
 
 _TOP_KEYS = {"title", "lattice", "site", "sector", "parameters", "term", "perturbation"}
 _LATTICE_KEYS = {"shape", "size", "boundary", "sites", "bonds"}
-_SITE_KEYS = {"type", "spin", "max_occupation"}
+_SITE_KEYS = {"type", "spin", "max_occupation", "min_occupation", "states"}
 _SECTOR_KEYS = {"particles", "sz"}
 _TERM_KEYS = {"type", "strength", "bonds", "sites", "label", "axis", "operators", "conjugate",
               "cycles", "pattern", "vector", "tensor", "phases", "flux", "soc"}
@@ -193,7 +194,8 @@ def _parse_site(table: dict):
     if spin is not None:
         spin = _number(spin, "site.spin")
     try:
-        return make_site(kind, spin=spin, max_occupation=table.get("max_occupation"))
+        return make_site(kind, spin=spin, max_occupation=table.get("max_occupation"),
+                         states=table.get("states"), min_occupation=table.get("min_occupation"))
     except (ModelError, SizeError) as exc:
         raise type(exc)(f"site: {exc}") from None
 
@@ -255,12 +257,13 @@ def _parse_terms(entries, parameters: dict) -> tuple[Term, ...]:
         bonds, sites = table.get("bonds"), table.get("sites")
         if kind in TWO_SITE_TYPES and sites is not None:
             raise ModelError(f"{where}.sites: a {kind} term acts on bonds; use 'bonds'")
-        if kind not in TWO_SITE_TYPES + ("product", "dm", "anisotropy", "pauli") and bonds is not None:
+        if kind not in TWO_SITE_TYPES + ("product", "dm", "anisotropy", "pauli", "biquadratic",
+                                          "string") and bonds is not None:
             raise ModelError(f"{where}.bonds: a {kind} term acts on sites; use 'sites'")
         operators = table.get("operators")
         if operators is not None:
-            if kind not in ("product", "pauli"):
-                raise ModelError(f"{where}.operators: only used by product and pauli terms")
+            if kind not in ("product", "pauli", "string"):
+                raise ModelError(f"{where}.operators: only used by product, pauli and string terms")
             if not isinstance(operators, list) or not all(isinstance(o, str) for o in operators):
                 raise ModelError(f"{where}.operators: must be a list of operator names")
             operators = tuple(operators)
@@ -275,10 +278,10 @@ def _parse_terms(entries, parameters: dict) -> tuple[Term, ...]:
         conjugate = table.get("conjugate", False)
         if not isinstance(conjugate, bool):
             raise ModelError(f"{where}.conjugate: must be true or false")
-        if conjugate and kind != "product":
-            raise ModelError(f"{where}.conjugate: only used by product terms")
+        if conjugate and kind not in ("product", "string"):
+            raise ModelError(f"{where}.conjugate: only used by product and string terms")
         extra = _spin_keys(table, kind, where) | _hopping_keys(table, kind, where)
-        sites = (_groups(sites, f"{where}.sites") if kind in SPIN_TERM_TYPES
+        sites = (_groups(sites, f"{where}.sites") if kind in SPIN_TERM_TYPES + LOCAL_TERM_TYPES
                  else _selector(sites, f"{where}.sites", 1))
         terms.append(Term(label, kind, strength, _selector(bonds, f"{where}.bonds", 2),
                           sites, axis, operators, conjugate, **extra))
@@ -302,7 +305,8 @@ def _selector(value, where: str, width: int):
 def _spin_keys(table: dict, kind: str, where: str) -> dict:
     """``cycles``, ``pattern``, ``vector`` and ``tensor`` of the multi-spin term types."""
     users = {"cycles": ("ring", "chirality", "pauli"), "pattern": ("ring", "chirality", "dm",
-             "anisotropy", "pauli"), "vector": ("dm",), "tensor": ("anisotropy",)}
+             "anisotropy", "pauli") + LOCAL_TERM_TYPES, "vector": ("dm",),
+             "tensor": ("anisotropy",)}
     out = {}
     for key, kinds in users.items():
         value = table.get(key)

@@ -38,7 +38,7 @@ as ``X X + Y Y`` cancel exactly when monomials are collected.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from fractions import Fraction
 
 import numpy as np
@@ -132,6 +132,10 @@ class Site:
         S for spin sites.
     max_occupation : int or None
         Cut-off for bosons.
+    states : tuple of int or None
+        The kept local states (local values, ascending; ``None``: all of them).  A site with
+        kept states lives in their span: the basis holds only states whose every site is
+        kept, and every term acts as ``P O P`` (:mod:`lowfold.build.kept_states`).
     """
 
     type: str
@@ -139,6 +143,7 @@ class Site:
     radix: int
     spin: Fraction | None = None
     max_occupation: int | None = None
+    states: tuple[int, ...] | None = None
 
     def __post_init__(self):
         if self.radix < 2:
@@ -163,21 +168,43 @@ class Site:
     def has_particles(self) -> bool:
         return self.type != "spin"
 
+    @property
+    def is_restricted(self) -> bool:
+        return self.states is not None
+
+    def local_labels(self) -> tuple[str, ...]:
+        """Label of every local value (:mod:`lowfold.model.local_space`)."""
+        from lowfold.model.local_space import local_labels
+        return local_labels(self)
+
+    def kept_labels(self) -> tuple[str, ...]:
+        labels = self.local_labels()
+        return tuple(labels[v] for v in (self.states or range(len(labels))))
+
     def operator_names(self) -> tuple[str, ...]:
-        return tuple(_OPERATOR_BUILDERS[self.type](self))
+        return tuple(_OPERATOR_BUILDERS[self.type](self)) + ("|a><b|",)
 
     def operator(self, name: str) -> list[Monomial]:
         """The named local operator as a list of monomials; ``ModelError`` if unknown."""
         builders = _OPERATOR_BUILDERS[self.type](self)
-        if name not in builders:
-            known = ", ".join(builders)
-            raise ModelError(f"unknown operator {name!r} for {self.type} sites (known: {known})")
-        return builders[name]()
+        if name in builders:
+            return builders[name]()
+        from lowfold.model.local_space import x_operator
+        if isinstance(name, str) and name.startswith("|"):
+            return x_operator(self, name)
+        known = ", ".join(self.operator_names())
+        raise ModelError(f"unknown operator {name!r} for {self.type} sites (known: {known}; "
+                         f"X-operators |a><b| of the local states {' '.join(self.local_labels())})")
 
     def adjoint_name(self, name: str) -> str:
-        """Name of the adjoint operator (``S+`` <-> ``S-``, ``c`` <-> ``c+``, ...)."""
+        """Name of the adjoint operator (``S+`` <-> ``S-``, ``c`` <-> ``c+``, ``|a><b|`` <->
+        ``|b><a|``, ...)."""
         pairs = {"S+": "S-", "c": "c+", "b": "b+", "c_up": "c+_up", "c_dn": "c+_dn"}
         pairs.update({v: k for k, v in pairs.items()})
+        from lowfold.model.local_space import split_x_name
+        parts = split_x_name(name)
+        if parts is not None:
+            return f"|{parts[1]}><{parts[0]}|"
         return pairs.get(name, name)
 
     def slot_particles(self, mode: int) -> int:
@@ -193,18 +220,40 @@ class Site:
         return 0
 
 
-def make_site(type: str, *, spin=None, max_occupation=None) -> Site:
-    """Build a :class:`Site`.
+def make_site(type: str, *, spin=None, max_occupation=None, states=None,
+              min_occupation=None) -> Site:
+    """Build a :class:`Site`; ``states`` (labels of the kept local states) or, for bosons,
+    ``min_occupation`` restrict its local space (:mod:`lowfold.model.local_space`).
 
     Raises
     ------
     ModelError
         Unknown type, an option of another type, a spin that is not a positive multiple of
-        1/2, a ``max_occupation`` that is not a positive integer.
+        1/2, a ``max_occupation`` that is not a positive integer, unknown or repeated kept
+        states.
     SizeError
         More than :data:`MAX_RADIX` states per site slot (spin S > 32767.5,
         ``max_occupation`` > 65,535).
     """
+    site = _make_full_site(type, spin=spin, max_occupation=max_occupation)
+    if min_occupation is not None:
+        if site.type != "boson":
+            raise ModelError(f"'min_occupation' is only valid for type = \"boson\", not {type!r}")
+        if states is not None:
+            raise ModelError("give either 'states' or 'min_occupation', not both")
+        if (isinstance(min_occupation, bool) or not isinstance(min_occupation, int)
+                or not 0 <= min_occupation <= site.max_occupation):
+            raise ModelError(f"min_occupation must be an integer from 0 to max_occupation "
+                             f"({site.max_occupation}), got {min_occupation!r}")
+        states = list(range(min_occupation, site.max_occupation + 1))
+    if states is None:
+        return site
+    from lowfold.model.local_space import kept_values
+    kept = kept_values(site, states)
+    return site if len(kept) == site.local_dimension else replace(site, states=kept)
+
+
+def _make_full_site(type: str, *, spin=None, max_occupation=None) -> Site:
     if type == "spin":
         twice = _twice_spin(0.5 if spin is None else spin)
         if twice + 1 > MAX_RADIX:

@@ -58,8 +58,9 @@ def _width(term) -> int:
     return _WIDTH[term.type]
 
 
-def term_groups(term, lattice) -> list[tuple[int, ...]]:
-    """The site groups a multi-spin term acts on (see the module docstring).
+def term_groups(term, lattice, width: int | None = None) -> list[tuple[int, ...]]:
+    """The site groups a multi-spin term acts on (see the module docstring); ``width``:
+    the sites of a group, for term types of other modules (default: the type's own).
 
     Raises
     ------
@@ -67,7 +68,7 @@ def term_groups(term, lattice) -> list[tuple[int, ...]]:
         More than one selector, a selector of the wrong width, or a pattern that fits
         nowhere on the lattice.
     """
-    width = _width(term)
+    width = _width(term) if width is None else width
     given = [k for k in ("bonds", "sites", "cycles", "pattern") if getattr(term, k) is not None]
     if len(given) > 1:
         raise ModelError(f"term {term.label!r}: give one of {', '.join(given)}, not several")
@@ -115,7 +116,7 @@ def _distinct_groups(term, groups):
     like bonds: the key is the set of sites (for pauli, of (site, operator) pairs)."""
     seen, out = set(), []
     for group in groups:
-        key = frozenset(zip(group, term.operators)) if term.type == "pauli" else frozenset(group)
+        key = frozenset(zip(group, term.operators)) if term.type in ("pauli", "string") else frozenset(group)
         if key not in seen:
             seen.add(key)
             out.append(group)

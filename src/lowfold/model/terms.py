@@ -32,6 +32,7 @@ from dataclasses import dataclass
 from lowfold.errors import ModelError
 from lowfold.model.hopping import hopping_products
 from lowfold.model.lattice import Lattice
+from lowfold.model.local_terms import LOCAL_EXPANDERS, LOCAL_TERM_TYPES
 from lowfold.model.sites import Site
 from lowfold.model.spin_terms import SPIN_EXPANDERS, SPIN_TERM_TYPES
 
@@ -40,7 +41,7 @@ __all__ = ["Term", "TERM_TYPES", "STRENGTH_LIMIT", "check_label", "check_strengt
 STRENGTH_LIMIT = 1e100      # see the module docstring
 
 TERM_TYPES = ("hopping", "hubbard", "interaction", "potential", "exchange", "field",
-              "product") + SPIN_TERM_TYPES
+              "product") + SPIN_TERM_TYPES + LOCAL_TERM_TYPES
 TWO_SITE_TYPES = ("hopping", "interaction", "exchange")
 ONE_SITE_TYPES = ("hubbard", "potential", "field")
 
@@ -213,4 +214,5 @@ _EXPANDERS = {
     "field": _field,
     "product": _product,
     **SPIN_EXPANDERS,
+    **LOCAL_EXPANDERS,
 }

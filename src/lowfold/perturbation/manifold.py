@@ -62,6 +62,9 @@ def _local_quantities(model: Model):
     """Per local configuration of one site: digits per mode, particles, 2 S^z."""
     site = model.site
     configs = list(cartesian(range(site.radix), repeat=site.modes))
+    if site.is_restricted:                 # kept local states only (model/local_space.py)
+        configs = [c for c in configs
+                   if sum(d * site.radix ** m for m, d in enumerate(c)) in site.states]
     particles = [sum(d * site.slot_particles(m) for m, d in enumerate(c)) for c in configs]
     if site.type == "spin":
         twice_sz = [int(2 * site.spin) - 2 * c[0] for c in configs]
@@ -125,8 +128,9 @@ def _manifold_by_sites(model: Model, h0: CompiledOperator, spec):
         raise ManifoldError("H0 is constant on the sector: the manifold would be the whole "
                             "sector, with no gap to expand across (is its strength zero?)")
     # best[i][n, s]: lowest energy of sites i.. with totals (n, s) (offset by the minima)
-    n_lo, n_hi = n_sites * particles.min(), n_sites * particles.max()
-    s_lo, s_hi = n_sites * twice_sz.min(), n_sites * twice_sz.max()
+    # the ranges hold 0 (no site yet) also when every kept local state has particles
+    n_lo, n_hi = min(0, n_sites * particles.min()), max(0, n_sites * particles.max())
+    s_lo, s_hi = min(0, n_sites * twice_sz.min()), max(0, n_sites * twice_sz.max())
     shape = (n_hi - n_lo + 1, s_hi - s_lo + 1)
     best = np.full((n_sites + 1, *shape), np.inf)
     best[n_sites, -n_lo, -s_lo] = 0.0
