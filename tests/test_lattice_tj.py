@@ -19,8 +19,11 @@ order-n couplings put on a periodic ring, against its exact levels, falling like
 
 from __future__ import annotations
 
+import json
+
 import numpy as np
 import pytest
+from helpers.cli import run_all, succeeded
 from helpers.lattice_models import parse, tj_text
 
 import lowfold
@@ -137,3 +140,18 @@ def test_error_on_a_ring_falls_like_the_next_power():
     for n in (1, 2, 3):
         power = np.log2(errors[0][n] / errors[1][n])
         assert power == pytest.approx(n + 1, abs=0.2), (n, power)
+
+
+def test_cli_json_classes_and_a_bad_filling(tmp_path):
+    good = tmp_path / "tj.toml"
+    good.write_text(tj_text("chain", order=2))
+    bad = tmp_path / "bad.toml"
+    bad.write_text(tj_text("chain", order=2).replace('filling = "mixed"', 'filling = "half"'))
+    runs = run_all({"json": ["derive", good, "--json", "--no-check"],
+                    "bad": ["derive", bad, "--no-check"]})
+    data = json.loads(succeeded(runs["json"]))
+    found = {(c["kind"], c["class"]): c for c in data["classes"]}
+    assert found[("exchange", "nearest")]["formula"] == "4 t^2/U"
+    assert found[("three-site", "3 sites (1, 1, 2)")]["orders"]["2"] == pytest.approx(J / 4)
+    assert runs["bad"].returncode == 2 and "Traceback" not in runs["bad"].stderr
+    assert runs["bad"].stderr.count("\n") == 1 and "perturbation.filling" in runs["bad"].stderr
