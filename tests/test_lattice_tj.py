@@ -124,7 +124,7 @@ def test_fourth_order_of_the_chain_is_the_bulk_of_an_open_chain():
             assert infinite[lattice_key].orders.get(m, 0.0) == pytest.approx(
                 finite[finite_key].get(m, 0.0), abs=1e-10), (lattice_key, m)
     assert abs(infinite[("exchange", "nearest")].orders[4]) > 1e-4     # there is a 4th order
-    for key, c in infinite.items():                      # every class is met in the bulk
+    for key in infinite:                                 # every class is met in the bulk
         assert any(k[0] == key[0] for k in finite), key
 
 

@@ -51,9 +51,11 @@ MAX_BLOCK_STATES = 20_000       # largest exact block (particle number, S^z) of 
 _SITES = (4, 12)
 
 
-def local_check_cluster(model: Model, order: int, size=None) -> tuple[Model, int | None]:
+def local_check_cluster(model: Model, order: int, one_site, size=None
+                        ) -> tuple[Model, int | None]:
     """The original model on the periodic cluster of the check, and its shortest winding
-    loop (``size``: cells per direction; default: the module's rule)."""
+    loop (``one_site``: the one-site manifold; ``size``: cells per direction; default: the
+    module's rule)."""
     if size is not None:
         return _periodic(model, tuple(int(n) for n in np.atleast_1d(size)))
     lat = model.lattice
@@ -66,8 +68,8 @@ def local_check_cluster(model: Model, order: int, size=None) -> tuple[Model, int
             cluster, w = _periodic(model, cells)
         except LowfoldError:
             continue
-        if max(sector_size(cluster.site, cluster.n_sites, s) for s in _sectors(cluster)) \
-                > MAX_BLOCK_STATES:
+        if max(sector_size(cluster.site, cluster.n_sites, s)
+               for s in _sectors(cluster, one_site)) > MAX_BLOCK_STATES:
             continue
         reach = w or 0
         key = (min(reach, order + 1), -cluster.n_sites, -(max(cells) - min(cells)))
@@ -84,14 +86,15 @@ def _periodic(model: Model, cells) -> tuple[Model, int | None]:
     return cluster, shortest_winding_loop(cluster)
 
 
-def _sectors(cluster: Model) -> list[Sector]:
-    """The blocks of the check: particle number (sites with particles) times total S^z
-    (when the model conserves it)."""
+def _sectors(cluster: Model, one_site) -> list[Sector]:
+    """The blocks of the check: particle number (sites with particles; those the product of
+    one-site manifolds has) times total S^z (when the model conserves it)."""
     site, n = cluster.site, cluster.n_sites
     op = compile_operator(cluster, check_sector=False)
     numbers = [None]
     if site.has_particles:
-        numbers = list(range(site.modes * (site.radix - 1) * n + 1))
+        held = one_site.particles[0]
+        numbers = list(range(n * int(held.min()), n * int(held.max()) + 1))
     out = []
     for particles in numbers:
         if not op.conserves_sz or not site.has_spin:
@@ -105,7 +108,7 @@ def _sectors(cluster: Model) -> list[Sector]:
 
 def _max_twice_sz(site, n: int, particles) -> int:
     if site.type == "spin":
-        return int(round(2 * float(site.spin))) * n
+        return round(2 * float(site.spin)) * n
     return min(particles, 2 * n - particles) if site.type == "electron" else particles
 
 
@@ -191,7 +194,7 @@ def local_lattice_check(result, run, *, size=None, levels=8, fit_scaling: bool =
     levels = check_levels_value(levels)
     model, order = result.model, result.order
     try:
-        cluster, w = local_check_cluster(model, order, size)
+        cluster, w = local_check_cluster(model, order, run.local, size)
     except ModelError as exc:
         return None, None, [f"exact check skipped: {exc}"]
     name = _name(cluster)
@@ -223,7 +226,7 @@ def _name(cluster: Model) -> str:
 
 def _compare(cluster, one_site, placed, levels, factors, say, name):
     scaled, exact_all, described, lowest = {}, [], [], {}
-    for sector in _sectors(cluster):
+    for sector in _sectors(cluster, one_site):
         block = cluster.with_sector(sector)
         basis = build_basis(block, max_states=MAX_BLOCK_STATES)
         p_states = product_states(block, basis.states, one_site)
