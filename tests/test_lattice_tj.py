@@ -155,3 +155,21 @@ def test_cli_json_classes_and_a_bad_filling(tmp_path):
     assert found[("three-site", "3 sites (1, 1, 2)")]["orders"]["2"] == pytest.approx(J / 4)
     assert runs["bad"].returncode == 2 and "Traceback" not in runs["bad"].stderr
     assert runs["bad"].stderr.count("\n") == 1 and "perturbation.filling" in runs["bad"].stderr
+
+
+def test_square_couplings_on_a_torus_fall_like_the_next_power():
+    # the 3x3 torus: the fermion signs of bent three-site paths and of bonds across the
+    # boundary in two dimensions; blocks of 2 and 3 electrons (every S^z) keep it fast
+    from lowfold.jobs.lattice import linked_cluster_sum
+    from lowfold.jobs.lattice_local_check import local_lattice_check
+    errors = []
+    for t in (0.04, 0.02):
+        model = parse(tj_text("square", order=2, t=t, u=1.0))
+        result = derive_infinite(model, 2)
+        check, _, _ = local_lattice_check(result, linked_cluster_sum(model, 2),
+                                          levels="all", particles=(2, 3))
+        assert check.cluster == "periodic square 3x3, 9 sites"
+        errors.append(check.max_abs_error)
+    for n in (1, 2):
+        power = np.log2(errors[0][n] / errors[1][n])
+        assert power == pytest.approx(n + 1, abs=0.2), (n, power)

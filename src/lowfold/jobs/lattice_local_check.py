@@ -186,10 +186,11 @@ def _cluster_site(s: int, n_basis: int, cells: int, ref, shift, size) -> int:
 # --------------------------------------------------------------------------- the check
 
 def local_lattice_check(result, run, *, size=None, levels=8, fit_scaling: bool = False,
-                        progress: Callable[[str], None] | None = None):
+                        particles=None, progress: Callable[[str], None] | None = None):
     """``(DeriveCheck or None, fits or None, warnings)`` of the local-operator couplings of
     an infinite lattice (module docstring); ``run`` is the linked-cluster run whose
-    couplings ``result.classes`` holds."""
+    couplings ``result.classes`` holds; ``particles``: only the blocks of these particle
+    numbers (default: every block)."""
     say = progress or (lambda message: None)
     levels = check_levels_value(levels)
     model, order = result.model, result.order
@@ -208,7 +209,7 @@ def local_lattice_check(result, run, *, size=None, levels=8, fit_scaling: bool =
         placed = cluster_strings(run, couplings, cluster, top)
         scaled, exact_all, described, ground = _compare(cluster, run.local, placed, levels,
                                                         SCALE_FACTORS if fit_scaling else (1.0,),
-                                                        say, name)
+                                                        say, name, particles)
     except LowfoldError as exc:
         return None, None, warnings + [f"exact check on the {name} skipped: {exc}"]
     check = DeriveCheck(tuple(sorted(exact_all)), {m: scaled[(1.0, m)] for m in range(top + 1)},
@@ -224,9 +225,11 @@ def _name(cluster: Model) -> str:
     return f"periodic {lat.shape} {'x'.join(map(str, lat.size))}, {cluster.n_sites} sites"
 
 
-def _compare(cluster, one_site, placed, levels, factors, say, name):
+def _compare(cluster, one_site, placed, levels, factors, say, name, particles=None):
     scaled, exact_all, described, lowest = {}, [], [], {}
     for sector in _sectors(cluster, one_site):
+        if particles is not None and sector.particles not in particles:
+            continue
         block = cluster.with_sector(sector)
         basis = build_basis(block, max_states=MAX_BLOCK_STATES)
         p_states = product_states(block, basis.states, one_site)
