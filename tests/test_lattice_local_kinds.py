@@ -20,6 +20,7 @@ it, V = J sum S_i.S_j.  At first order P V P is the projected exchange itself: o
 
 Both: the linked-cluster identity on an open chain (string by string), and the error of the
 order-n couplings on a periodic ring against its exact levels falling like (t/U)^(n+1).
+Last, easy-axis spin-1 (two kept states) on the infinite chain: the pseudo-spin-1/2 route.
 """
 
 from __future__ import annotations
@@ -162,3 +163,43 @@ def test_error_on_a_ring_falls_like_the_next_power(text_of):
     for n in (1, 2):
         power = np.log2(errors[0][n] / errors[1][n])
         assert power == pytest.approx(n + 1, abs=0.2), (n, power)
+
+
+def test_easy_axis_spin1_chain_is_an_infinite_xxz_chain():
+    # H0 = D sum (S^z)^2 with D < 0 keeps S^z = +1, -1: a pseudo-spin-1/2 per site, read out
+    # in Pauli strings.  Second order (derived in tests/test_spin1_readout.py, common
+    # practice): J_z = 4 J + J^2/|D|, J_xy = -J^2/|D|, and D - J^2/(4|D|) per site; on the
+    # chain no second-order process reaches beyond a bond
+    d, j = -1.0, 0.1
+    text = f"""
+[lattice]
+shape = "chain"
+boundary = "infinite"
+[site]
+type = "spin"
+spin = 1
+[[term]]
+label = "anisotropy"
+type = "product"
+operators = ["Sz", "Sz"]
+sites = "all"
+strength = {d}
+[[term]]
+label = "exchange"
+type = "exchange"
+strength = {j}
+bonds = "nearest"
+[perturbation]
+unperturbed = ["anisotropy"]
+order = 2
+"""
+    result = derive_infinite(parse(text), 2)
+    jz, jxy = 4 * j + j**2 / abs(d), -j**2 / abs(d)
+    iso = (2 * jxy + jz) / 3                       # exchange = trace / 3, anisotropy the rest
+    classes = {(c.kind, c.name): c for c in result.classes}
+    assert set(classes) == {("constant", "constant"), ("exchange", "nearest"),
+                            ("anisotropy", "nearest")}
+    assert classes[("exchange", "nearest")].value == pytest.approx(iso, rel=1e-10)
+    np.testing.assert_allclose(np.diag(classes[("anisotropy", "nearest")].value),
+                               [jxy - iso, jxy - iso, jz - iso], rtol=1e-10, atol=1e-14)
+    assert classes[("constant", "constant")].value == pytest.approx(d - j**2 / (4 * abs(d)))
