@@ -67,6 +67,7 @@ def read_classes(run, order: int, model: Model | None = None) -> tuple[CouplingC
     rings, triangles = lattice_cycles(run.patch)
     cycles = {frozenset(c): c for c in (*rings, *triangles)}
     groups: dict[tuple, list] = {}
+    names: dict[tuple, str] = {}          # class names met so far, by offsets of the sites
     for support, terms in sorted(by_support.items()):
         local = {s: k for k, s in enumerate(support)}
         table = {" ".join(f"{p}{local[s]}" for s, p in key) or "I": list(values)
@@ -78,11 +79,12 @@ def read_classes(run, order: int, model: Model | None = None) -> tuple[CouplingC
                                          triangles=[c for c in mine if len(c) == 3])
         for c in found:
             sites = [support[k] for k in c.sites] if c.kind != "constant" else []
-            _member(groups, c.kind, sites, c.orders, None, coords, run.patch, shells)
+            _member(groups, names, c.kind, sites, c.orders, None, coords, run.patch, shells)
         for text, values in residual.items():
             ops = parse_pauli_string(text)
-            _member(groups, "pauli", [support[k] for k, _ in ops], dict(enumerate(values)),
-                    " ".join(p for _, p in ops), coords, run.patch, shells)
+            _member(groups, names, "pauli", [support[k] for k, _ in ops],
+                    dict(enumerate(values)), " ".join(p for _, p in ops), coords, run.patch,
+                    shells)
     return _classes(groups, run, model)
 
 
@@ -114,10 +116,12 @@ def read_local_classes(run, order: int, model: Model) -> tuple[CouplingClass, ..
     coords = run.patch.coordinates
     shells = lattice_shells(run.patch)
     groups: dict[tuple, list] = {}
+    names: dict[tuple, str] = {}          # class names met so far, by offsets of the sites
     for c in couplings:
         sites = list(c.sites)
         operator = _local_string(c.operator, sites) if c.kind == "string" else None
-        _member(groups, c.kind, sites, dict(c.orders), operator, coords, run.patch, shells)
+        _member(groups, names, c.kind, sites, dict(c.orders), operator, coords, run.patch,
+                shells)
     return _classes(groups, run, model)
 
 
@@ -171,9 +175,20 @@ def formula_model(model: Model) -> Model | None:
     return replace(model, terms=terms)
 
 
-def _member(groups, kind, sites, orders, operator, coords, patch, shells) -> None:
-    name = class_name(patch, [coords[s] for s in sites], shells=shells)
+def _member(groups, names, kind, sites, orders, operator, coords, patch, shells) -> None:
+    offsets = tuple(tuple(coords[s] - coords[sites[0]]) for s in sites) if sites else ()
+    name = _name_of(patch, offsets, shells, names)
     values = [np.ravel(np.asarray(v, dtype=float)) for _, v in sorted(orders.items())]
     flat = np.round(np.concatenate(values), 9) if values else np.zeros(0)
     rounded = (tuple(len(v) for v in values), tuple(flat.tolist()))     # rounded once
     groups.setdefault((kind, name, operator, rounded), []).append((sites, dict(orders)))
+
+
+
+def _name_of(patch, offsets: tuple, shells, names: dict) -> str:
+    """:func:`class_name` of a member from its sites' offsets to its first site, memoised in
+    ``names`` (the name depends on the shape and the distances only)."""
+    key = tuple(tuple(round(float(x), 9) for x in o) for o in offsets)
+    if key not in names:
+        names[key] = class_name(patch, [list(o) for o in offsets], shells=shells)
+    return names[key]
