@@ -61,9 +61,12 @@ def local_check_cluster(model: Model, order: int, one_site, size=None
     lat = model.lattice
     ndim, n_basis = len(lat.translations), len(lat.unit_cell)
     best = None
-    for cells in itertools.product(range(2, _SITES[1] + 1), repeat=ndim):
-        if not _SITES[0] <= n_basis * int(np.prod(cells)) <= _SITES[1]:
-            continue
+    candidates = [c for c in itertools.product(range(2, _SITES[1] + 1), repeat=ndim)
+                  if _SITES[0] <= n_basis * int(np.prod(c)) <= _SITES[1]]
+    candidates.sort(key=lambda c: (int(np.prod(c)), max(c) - min(c)))   # fewest sites first
+    for cells in candidates:
+        if best is not None and best[0][0] == order + 1:
+            break                     # every order compared, on the fewest sites
         try:
             cluster, w = _periodic(model, cells)
         except LowfoldError:
