@@ -3,6 +3,8 @@
 - :func:`hubbard_text`: the half-filled Hubbard model, H0 = U n_up n_dn + mu n with
   mu = -U/2 (the one-site potential selects one electron per site, as
   ``lowfold.jobs.lattice`` documents), V the nearest-neighbour hopping t.
+- :func:`tj_text`: the Hubbard model with H0 = U n_up n_dn alone and ``filling = "mixed"``:
+  the manifold {0, u, d} on every site, the t-J model at any filling.
 - :func:`ising_chain_text`: the transverse-field Ising chain H = -sum sigma^z
   - g sum sigma^x sigma^x at g = 1 (S = sigma/2, so the strengths are -2 and -4); H0 the field.
 """
@@ -44,6 +46,34 @@ strength = "mu"
 [perturbation]
 unperturbed = ["U", "mu"]
 order = {order}
+"""
+
+
+def tj_text(shape: str = "chain", *, boundary: str = "infinite", size=None, order: int = 2,
+            t: float = T, u: float = U) -> str:
+    """Model file of the Hubbard model read out on {0, u, d} per site (module docstring)."""
+    lattice = f'shape = "{shape}"\nboundary = "{boundary}"\n' + (f"size = {size}\n" if size else "")
+    return f"""
+[lattice]
+{lattice}
+[site]
+type = "electron"
+[parameters]
+t = {t}
+U = {u}
+[[term]]
+label = "hop"
+type = "hopping"
+strength = "t"
+bonds = "nearest"
+[[term]]
+label = "U"
+type = "hubbard"
+strength = "U"
+[perturbation]
+unperturbed = ["U"]
+order = {order}
+filling = "mixed"
 """
 
 

@@ -9,6 +9,17 @@ per unit cell is read out as coupling classes (:class:`lowfold.results.CouplingC
 Requirements (a :class:`~lowfold.errors.ModelError` otherwise): H0 is a sum of one-site
 terms, the manifold is the lowest level of H0 (a product of one-site manifolds), the sector
 fixes no total, and V terms act on bond classes or on all sites.
+
+Readouts.  When the one-site manifold is one spin-1/2 (or pseudo-spin-1/2) the clusters'
+effective Hamiltonians are Pauli strings; otherwise (``filling = "mixed"``: the doped Mott
+insulator {0, u, d}; spins with three or more kept states; bosons) they are strings of
+X-operators with Jordan-Wigner signs (:mod:`lowfold.readout.local_strings`), whose fermion
+factors are reordered with their sign when a weight is embedded
+(:mod:`lowfold.perturbation.linked_clusters`), and the sum per cell is named by
+:func:`lowfold.jobs.lattice_classes.read_local_classes`.  Clusters are then computed without
+a fixed particle number (their manifold is the whole product of one-site manifolds, on which
+the string expansion is unique), and the bridge pruning is off: with mixed fillings a
+particle may cross a bridge once.
 """
 
 from __future__ import annotations
@@ -20,7 +31,6 @@ import numpy as np
 
 from lowfold.build.hamiltonian import Hamiltonian
 from lowfold.errors import ModelError
-from lowfold.model.cycles import lattice_cycles
 from lowfold.model.lattice import Lattice, make_lattice
 from lowfold.model.model import Model, PerturbationSpec
 from lowfold.model.sector import Sector
@@ -29,20 +39,18 @@ from lowfold.perturbation.linked_clusters import (ClusterWeights, LatticeSum,
                                                   connected_edge_sets, lattice_sum,
                                                   sum_embeddings)
 from lowfold.perturbation.orders import validate_order
-from lowfold.readout.classes import class_name, lattice_shells
-from lowfold.readout.couplings import spin_couplings
-from lowfold.readout.formulas import coupling_formula
+from lowfold.jobs.lattice_classes import formula_model, read_classes, read_local_classes
+from lowfold.readout.local_basis import LocalBasis, product_manifold
+from lowfold.readout.local_strings import strings_of_orders
 from lowfold.readout.pauli import parse_pauli_string
-from lowfold.readout.rationals import single_ratio
-from lowfold.results import CouplingClass, EffectiveModel, ManifoldSummary, StateSeries
+from lowfold.results import EffectiveModel, ManifoldSummary, StateSeries
 
 __all__ = ["LinkedClusterRun", "derive_infinite", "energy_per_site", "linked_cluster_sum",
            "check_linked_cluster_model", "open_cluster_sum", "read_classes", "formula_model",
            "series_infinite"]
 
-TOL = 1e-10   # coefficients at or below this (absolute) are left out of the readout
 MAX_ORDER = 40        # as the derive job
-_SHELL_RANK = {"nearest": 0, "next-nearest": 1, "third": 2}    # classes listed by distance
+STRING_TOL = 1e-12    # X-operator strings of a cluster at or below this are left out
 
 
 @dataclass(frozen=True)
@@ -55,6 +63,7 @@ class LinkedClusterRun:
     n_basis: int
     seconds: float
     filling_note: str | None = None
+    local: LocalBasis | None = None       # one-site basis of a local-operator readout
 
 
 def check_linked_cluster_model(model: Model) -> None:
@@ -104,7 +113,7 @@ def one_site_filling(model: Model) -> tuple[int | None, str | None]:
     taken (1 electron per site: the Mott state at half filling; 1 boson per site for
     ``(U/2) n (n - 1)``), and the note says so.  ``(None, None)`` for sites without particles.
     """
-    if not model.site.has_particles:
+    if not model.site.has_particles or model.perturbation.filling == "mixed":
         return None, None
     lowest = {}
     capacity = model.site.modes * (model.site.radix - 1)
@@ -164,6 +173,7 @@ class GraphSolver:
     order: int
     energy: bool = False
     filling: int | None = None
+    local: bool = False
 
     def __call__(self, graph):
         from lowfold.jobs.derive import derive
@@ -176,6 +186,8 @@ class GraphSolver:
                                  "degenerate on a cluster; the energy series needs a "
                                  "non-degenerate reference state")
             return {(): np.array([float(np.real(h.toarray()[0, 0])) for h in result.orders])}
+        if self.local:
+            return _local_strings(result)
         if not result.manifold.spin_form:
             raise ModelError(f"the manifold is not one spin-1/2 per site "
                              f"({result.manifold.readout}); the infinite-lattice readout needs "
@@ -187,8 +199,51 @@ class GraphSolver:
         return out
 
 
-def _solver(model: Model, labels: dict, order: int, energy: bool, filling: int | None = None):
-    return GraphSolver(model, labels, order, energy, filling)
+def _local_strings(result) -> dict:
+    """The X-operator strings of a cluster's effective Hamiltonian, keys
+    ``((site, (a, b)), ...)`` (codes of :mod:`lowfold.readout.local_basis`)."""
+    basis, reason = product_manifold(result.model, result.manifold.states)
+    if basis is None or not basis.is_hull:
+        raise ModelError("the manifold of a cluster is not a product of one-site manifolds"
+                         f"{f' ({reason})' if reason else ''}; the infinite-lattice readout "
+                         "needs one")
+    found = strings_of_orders(basis, list(result.orders), tol=STRING_TOL)
+    out = {}
+    for key, values in found.items():
+        values = np.asarray(values)
+        if np.iscomplexobj(values) and np.abs(values.imag).max() <= 1e-13 * max(
+                1.0, np.abs(values).max()):
+            values = values.real
+        out[tuple((s, (a, b)) for s, a, b in key)] = values
+    return out
+
+
+def one_site_basis(model: Model, filling: int | None) -> LocalBasis | None:
+    """The one-site manifold as a local basis, or ``None`` when it is one spin-1/2 or
+    pseudo-spin-1/2 (the Pauli readout)."""
+    from lowfold.jobs.derive import derive
+    sector = None if filling is None else Sector(particles=filling)
+    result = derive(_cluster_model(model, {}, (1, ()), 1, sector), 1, compare_exact=False)
+    if result.manifold.spin_form:
+        return None
+    basis, reason = product_manifold(result.model, result.manifold.states)
+    if basis is None:
+        raise ModelError(f"the one-site manifold has no local readout: {reason}")
+    return basis
+
+
+def _odd_letters(basis: LocalBasis | None) -> frozenset | None:
+    """X-operators ``(a, b)`` that change a site's fermion parity (None: no fermions)."""
+    if basis is None or not basis.fermionic:
+        return None
+    parity = basis.parity[0]
+    return frozenset((a, b) for a in range(parity.size) for b in range(parity.size)
+                     if parity[a] != parity[b])
+
+
+def _solver(model: Model, labels: dict, order: int, energy: bool, filling: int | None = None,
+            local: bool = False):
+    return GraphSolver(model, labels, order, energy, filling, local)
 
 
 def _even_trees(model: Model) -> bool:
@@ -196,6 +251,8 @@ def _even_trees(model: Model) -> bool:
     particles across its bond (hopping) and
     the H0 manifold fixes each site's particle number (here: H0 of one-site terms that
     commute with the particle number, whose lowest level is checked non-mixed by derive)."""
+    if model.perturbation.filling == "mixed":
+        return False
     v = [model.term(label) for label in model.perturbation_labels]
     return bool(v) and all(t.type == "hopping" for t in v)
 
@@ -221,13 +278,15 @@ def linked_cluster_sum(model: Model, order: int, *, energy: bool = False,
     reference = sum(centre * cells**k for k in range(ndim))
     bond_list, colours, labels = _coloured_bonds(model, patch)
     filling, filling_note = one_site_filling(model)
-    weights = ClusterWeights(_solver(model, labels, order, energy, filling), order,
-                             even_trees=prune and _even_trees(model), mapper=graph_map)
+    local = None if energy else one_site_basis(model, filling)
+    weights = ClusterWeights(_solver(model, labels, order, energy, filling, local is not None),
+                             order, even_trees=prune and _even_trees(model), mapper=graph_map,
+                             odd=_odd_letters(local))
     cell_of = np.arange(patch.n_sites) // n_basis
     total = lattice_sum(patch.n_sites, np.array(bond_list, dtype=np.int64).reshape(-1, 2),
                         colours, cell_of, reference, n_basis, weights, order)
     return LinkedClusterRun(total, patch, reference, n_basis, time.perf_counter() - start,
-                            filling_note)
+                            filling_note, local)
 
 
 def _coloured_bonds(model: Model, cluster: Lattice):
@@ -256,8 +315,11 @@ def open_cluster_sum(model: Model, cluster: Lattice, order: int, *, energy: bool
     effective Hamiltonian of the cluster itself, order by order)."""
     check_linked_cluster_model(model)
     bonds, colours, labels = _coloured_bonds(model, cluster)
-    weights = ClusterWeights(_solver(model, labels, order, energy), order,
-                             even_trees=prune and _even_trees(model))
+    filling, _ = one_site_filling(model)
+    local = None if energy else one_site_basis(model, filling)
+    weights = ClusterWeights(_solver(model, labels, order, energy, filling, local is not None),
+                             order, even_trees=prune and _even_trees(model),
+                             odd=_odd_letters(local))
     at: dict[int, list[int]] = {}
     for k, (i, j) in enumerate(bonds):
         at.setdefault(i, []).append(k)
@@ -325,110 +387,35 @@ def series_infinite(model: Model, order: int | None = None, *, state: str | None
 def derive_infinite(model: Model, order: int | None = None, *, prune: bool = True,
                     progress=None, compare_exact: bool = False, check_levels=8,
                     fit_scaling: bool = False, graph_map=None) -> EffectiveModel:
-    """The effective spin-1/2 model of an infinite lattice as coupling classes (``graph_map``:
-    see :func:`linked_cluster_sum`); with ``compare_exact``, checked on a periodic cluster
-    (:mod:`lowfold.jobs.lattice_check`)."""
+    """The effective model of an infinite lattice as coupling classes (``graph_map``: see
+    :func:`linked_cluster_sum`); with ``compare_exact``, checked on a periodic cluster
+    (:mod:`lowfold.jobs.lattice_check`; local-operator readouts:
+    :mod:`lowfold.jobs.lattice_local_check`)."""
     if model.perturbation is None:
         model.unperturbed_labels
     order = validate_order(model.perturbation.order if order is None else order, maximum=MAX_ORDER)
     if progress:
         progress(f"linked clusters to order {order}")
     run = linked_cluster_sum(model, order, prune=prune, graph_map=graph_map)
-    classes = read_classes(run, order, model)
-    energy = float(run.total.terms.get((), np.zeros(1))[0]) / run.n_basis
-    summary = ManifoldSummary(2, energy, None, "spin-1/2")
+    energy = float(np.real(run.total.terms.get((), np.zeros(1))[0])) / run.n_basis
+    if run.local is None:
+        classes = read_classes(run, order, model)
+        summary = ManifoldSummary(2, energy, None, "spin-1/2")
+    else:
+        classes = read_local_classes(run, order, model)
+        labels = " ".join(run.local.labels[0])
+        summary = ManifoldSummary(int(run.local.sizes[0]), energy, None,
+                                  f"local operators ({{{labels}}} per site)")
     note = (f"infinite lattice: linked-cluster expansion, {run.total.clusters} clusters per "
             f"unit cell, {run.total.distinct} distinct graphs computed")
     notes = (note,) if run.filling_note is None else (note, run.filling_note)
     result = EffectiveModel(order, summary, warnings=notes, model=model, classes=classes)
-    if compare_exact:
+    if compare_exact and run.local is not None:
+        from lowfold.jobs.lattice_local_check import attach_local_check
+        result = attach_local_check(result, run, levels=check_levels, fit_scaling=fit_scaling,
+                                    progress=progress)
+    elif compare_exact:
         from lowfold.jobs.lattice_check import attach_check
         result = attach_check(result, levels=check_levels, fit_scaling=fit_scaling,
                               progress=progress)
     return result
-
-
-def read_classes(run: LinkedClusterRun, order: int, model: Model | None = None
-                 ) -> tuple[CouplingClass, ...]:
-    """Coupling classes of a per-cell sum: named couplings per support of sites, members
-    with equal kind, class and values grouped, multiplicity = members per site; ordered as
-    ``lowfold.jobs.classes`` orders them (by kind, then sites, then distance and name).
-
-    Class names are :func:`lowfold.readout.classes.class_name` of a member's positions on
-    the patch; ring exchange and scalar chirality are read on the 4-cycles and triangles of
-    the patch's nearest-neighbour graph (:func:`lowfold.model.lattice.lattice_cycles`), the
-    cycles of the infinite lattice.  With ``model``, each class gets its formula
-    (:func:`formula_model`, :func:`lowfold.readout.formulas.coupling_formula`).
-    """
-    by_support: dict[tuple, dict] = {}
-    for key, values in run.total.terms.items():
-        if np.max(np.abs(values)) > TOL:
-            by_support.setdefault(tuple(s for s, _ in key), {})[key] = values
-    coords = run.patch.coordinates
-    shells = lattice_shells(run.patch)
-    rings, triangles = lattice_cycles(run.patch)
-    cycles = {frozenset(c): c for c in (*rings, *triangles)}
-    groups: dict[tuple, list] = {}
-    for support, terms in sorted(by_support.items()):
-        local = {s: k for k, s in enumerate(support)}
-        table = {" ".join(f"{p}{local[s]}" for s, p in key) or "I": list(values)
-                 for key, values in terms.items()}
-        cycle = cycles.get(frozenset(support))
-        mine = [tuple(local[s] for s in cycle)] if cycle else []
-        found, residual = spin_couplings(table, len(support), orders=list(range(order + 1)),
-                                         tol=TOL, ring_cycles=[c for c in mine if len(c) == 4],
-                                         triangles=[c for c in mine if len(c) == 3])
-        for c in found:
-            sites = [support[k] for k in c.sites] if c.kind != "constant" else []
-            _member(groups, c.kind, sites, c.orders, None, coords, run.patch, shells)
-        for text, values in residual.items():
-            ops = parse_pauli_string(text)
-            _member(groups, "pauli", [support[k] for k, _ in ops], dict(enumerate(values)),
-                    " ".join(p for _, p in ops), coords, run.patch, shells)
-    scales = formula_model(model) if model is not None else None
-    out = []
-    for (kind, name, operator, _), members in groups.items():
-        sites, orders = members[0]
-        count = 1.0 if kind == "constant" else len(members) / run.n_basis
-        if kind == "constant":
-            orders = {m: v / run.n_basis for m, v in orders.items()}
-        orders = {m: v for m, v in orders.items() if np.max(np.abs(v)) > TOL}
-        formula = coupling_formula(scales, orders) if scales is not None and orders else None
-        out.append(CouplingClass(kind, name, tuple(tuple(float(x) for x in coords[s])
-                                                   for s in sites),
-                                 count, orders, formula, operator))
-    rank = ["constant", "field", "exchange", "dm", "anisotropy", "chirality", "ring", "pauli"]
-    return tuple(sorted(out, key=lambda c: (rank.index(c.kind) if c.kind in rank else len(rank),
-                                            len(c.positions), _SHELL_RANK.get(c.name, 3),
-                                            c.name, c.operator or "", c.positions)))
-
-
-def formula_model(model: Model) -> Model | None:
-    """The model whose two named scales the formulas use (``None``: no formula).
-
-    The model itself when V and H0 each have one named strength
-    (:func:`lowfold.readout.rationals.single_ratio`).  On an infinite lattice H0 usually
-    also holds a one-site potential that selects the filling (``mu = -U/2``): then, when V
-    has one named strength and every H0 term a named strength, H0's scale is the parameter
-    of largest magnitude and the others enter at their values (a formula is written only
-    when every order is a rational multiple of ``t^m/U^(m-1)`` at those values; for hopping
-    the potential cancels from every energy denominator, as the particle number is kept).
-    """
-    if model.perturbation is None or single_ratio(model) is not None:
-        return model
-    v = {model.term(label).strength for label in model.perturbation_labels}
-    h0 = {model.term(label).strength for label in model.unperturbed_labels}
-    if len(v) != 1 or not all(isinstance(s, str) for s in v | h0):
-        return None
-    large = max(sorted(h0), key=lambda name: abs(float(model.parameters[name])))
-    terms = tuple(replace(t, strength=large) if t.label in model.unperturbed_labels else t
-                  for t in model.terms)
-    return replace(model, terms=terms)
-
-
-def _member(groups, kind, sites, orders, operator, coords, patch, shells) -> None:
-    name = class_name(patch, [coords[s] for s in sites], shells=shells)
-    values = [np.ravel(np.asarray(v, dtype=float)) for _, v in sorted(orders.items())]
-    flat = np.round(np.concatenate(values), 9) if values else np.zeros(0)
-    rounded = (tuple(len(v) for v in values), tuple(flat.tolist()))     # rounded once
-    groups.setdefault((kind, name, operator, rounded), []).append((sites, dict(orders)))

@@ -24,7 +24,10 @@ class PerturbationSpec:
     ``manifold = "lowest"`` takes the lowest degenerate level of H0 (relative tolerance
     ``tolerance``); ``window = (emin, emax)`` takes every H0 level inside the window.
     H0 is the sum of the terms ``unperturbed`` names, each once (a repeated label is a
-    ``ModelError``: it would count the term twice).
+    ``ModelError``: it would count the term twice).  ``filling = "mixed"`` (infinite lattices)
+    keeps every particle number of the lowest one-site level of H0 in the manifold (the
+    doped Mott insulator {0, up, down}); by default one filling per site is chosen
+    (``lowfold.jobs.lattice.one_site_filling``).
     """
 
     unperturbed: tuple[str, ...]
@@ -32,6 +35,7 @@ class PerturbationSpec:
     manifold: str | None = "lowest"
     window: tuple[float, float] | None = None
     tolerance: float = 1e-9
+    filling: str | None = None
 
     def __post_init__(self):
         if isinstance(self.unperturbed, str):
@@ -42,6 +46,9 @@ class PerturbationSpec:
             if label in self.unperturbed[:index]:
                 raise ModelError(f"perturbation.unperturbed: {label!r} is listed twice; "
                                  "name each term of H0 once")
+        if self.filling not in (None, "mixed"):
+            raise ModelError(f"perturbation.filling: must be \"mixed\" (every particle number "
+                             f"of the lowest one-site level), got {self.filling!r}")
 
 
 @dataclass(frozen=True)

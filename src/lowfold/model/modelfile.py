@@ -33,7 +33,7 @@ _SITE_KEYS = {"type", "spin", "max_occupation", "min_occupation", "states"}
 _SECTOR_KEYS = {"particles", "sz"}
 _TERM_KEYS = {"type", "strength", "bonds", "sites", "label", "axis", "operators", "conjugate",
               "cycles", "pattern", "vector", "tensor", "phases", "flux", "soc"}
-_PERTURBATION_KEYS = {"unperturbed", "order", "manifold", "window", "tolerance"}
+_PERTURBATION_KEYS = {"unperturbed", "order", "manifold", "window", "tolerance", "filling"}
 
 
 def read_toml(path) -> dict:
@@ -407,4 +407,8 @@ def _parse_perturbation(table: dict, terms) -> PerturbationSpec:
     tolerance = _number(table.get("tolerance", 1e-9), "perturbation.tolerance")
     if not 0 < tolerance < 1:
         raise ModelError(f"perturbation.tolerance: must lie between 0 and 1 (relative), got {tolerance}")
-    return PerturbationSpec(tuple(unperturbed), order, manifold, window, tolerance)
+    filling = table.get("filling")
+    if filling is not None and filling != "mixed":
+        raise ModelError("perturbation.filling: must be \"mixed\" (keep every particle number of "
+                         f"the lowest one-site level of H0), got {filling!r}")
+    return PerturbationSpec(tuple(unperturbed), order, manifold, window, tolerance, filling)

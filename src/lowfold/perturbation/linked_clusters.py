@@ -13,6 +13,13 @@ Conventions
 - An operator is a dict ``key -> ndarray`` of coefficients per order ``0..n``; a key is a
   tuple of ``(site, letter)`` pairs sorted by site (``letter`` one of ``X Y Z``; ``()`` is
   the identity).  Weights of a cluster are stored on its *canonical* site labels.
+- Fermions (the local-operator readout, :mod:`lowfold.readout.local_strings`): a letter is
+  an X-operator ``(a, b)`` and a key the product of its factors in ascending site order,
+  each fermion-parity-odd factor a fermionic operator (with its Jordan-Wigner string).  Such
+  a product is a physical operator whatever the site order, but renaming the sites reorders
+  its odd factors: :func:`add_embedded` multiplies by the sign of that permutation
+  (``odd``, the set of odd letters), so that a subcluster's weight, written in its own
+  site order, is added in the order of the cluster or lattice it is embedded in.
 - A cluster graph is ``(n_sites, edges)`` with ``edges`` a tuple of ``(a, b, colour)``,
   ``a < b``, ``colour`` an integer naming the set of V terms on the bond.  Two clusters
   are the same graph when a relabelling of sites maps edges and colours onto each other;
@@ -36,7 +43,7 @@ import numpy as np
 
 __all__ = ["ClusterGraph", "LatticeSum", "canonical_form", "connected_edge_sets",
            "ClusterWeights", "lattice_sum", "add_embedded", "sum_embeddings", "prunable",
-           "serial_map"]
+           "serial_map", "reorder_sign", "translate_key"]
 
 ClusterGraph = tuple[int, tuple[tuple[int, int, int], ...]]
 Operator = dict[tuple, np.ndarray]
@@ -177,14 +184,26 @@ def _local(sites, edges) -> tuple[int, list]:
     return len(sites), [(index[a], index[b], c) for a, b, c in edges]
 
 
-def add_embedded(target: Operator, source: Operator, site_of, scale: float = 1.0) -> None:
-    """``target += scale * source`` with the sites of ``source`` renamed by ``site_of``."""
+def reorder_sign(key, site_of, odd: frozenset) -> float:
+    """Sign of reordering the odd factors of ``key`` (ascending in its own sites) into the
+    ascending order of the renamed sites ``site_of[s]``: the parity of that permutation."""
+    moved = [site_of[s] for s, p in key if p in odd]
+    inversions = sum(1 for a in range(len(moved)) for b in range(a + 1, len(moved))
+                     if moved[a] > moved[b])
+    return -1.0 if inversions % 2 else 1.0
+
+
+def add_embedded(target: Operator, source: Operator, site_of, scale: float = 1.0,
+                 odd: frozenset | None = None) -> None:
+    """``target += scale * source`` with the sites of ``source`` renamed by ``site_of``
+    (``odd``: letters of fermion-parity-odd factors, whose reordering gives a sign)."""
     for key, values in source.items():
         new = tuple(sorted((site_of[s], p) for s, p in key))
+        factor = scale * reorder_sign(key, site_of, odd) if odd else scale
         if new in target:
-            target[new] = target[new] + scale * values
+            target[new] = target[new] + factor * values
         else:
-            target[new] = scale * values
+            target[new] = factor * values
 
 
 class ClusterWeights:
@@ -207,10 +226,15 @@ class ClusterWeights:
     mapper : callable, optional
         ``mapper(solve, graphs) -> list`` of ``solve(graph)``; the graphs are independent
         calculations (default :func:`serial_map`; a Dask client's map for a cluster).
+    odd : frozenset, optional
+        Letters of fermion-parity-odd factors (local-operator keys of fermions): embedding
+        a weight reorders them, with a sign (:func:`add_embedded`).
     """
 
     def __init__(self, solve: Callable[[ClusterGraph], Operator], order: int, *,
-                 even_trees: bool = False, mapper: Callable | None = None):
+                 even_trees: bool = False, mapper: Callable | None = None,
+                 odd: frozenset | None = None):
+        self.odd = odd or None
         self._solve, self._order, self._even_trees = solve, order, even_trees
         self._mapper = mapper or serial_map
         self._weights: dict[ClusterGraph, Operator] = {}
@@ -274,7 +298,7 @@ class ClusterWeights:
             own = self._solve(graph)
         total = {k: np.array(v, dtype=float) for k, v in own.items()}
         for canon, site_of in self.subclusters(graph):
-            add_embedded(total, self.weight(canon), site_of, -1.0)
+            add_embedded(total, self.weight(canon), site_of, -1.0, self.odd)
         self._weights[graph] = total
         return total
 
@@ -354,7 +378,7 @@ def sum_embeddings(clusters, weights: ClusterWeights) -> Operator:
     for canon, embeddings in groups.items():
         weight = weights.weight(canon)
         for site_of in embeddings:
-            add_embedded(total, weight, site_of)
+            add_embedded(total, weight, site_of, odd=weights.odd)
     return total
 
 
@@ -363,7 +387,13 @@ def _translate(terms: Operator, cell_of, reference: int, n_basis: int) -> Operat
     a shift of the cell index by d moves site s to s + n_basis * d, inside the patch)."""
     out: Operator = {}
     for key, values in terms.items():
-        shift = (min((cell_of[s] for s, _ in key), default=reference) - reference) * n_basis
-        new = tuple((s - shift, p) for s, p in key)
+        new = translate_key(key, cell_of, reference, n_basis)
         out[new] = out[new] + values if new in out else values
     return out
+
+
+def translate_key(key, cell_of, reference: int, n_basis: int) -> tuple:
+    """``key`` (``(site, letter)`` pairs on patch sites) moved so that its smallest cell is
+    the reference cell; a shift of site indices, which keeps their order (no fermion sign)."""
+    shift = (min((cell_of[s] for s, _ in key), default=reference) - reference) * n_basis
+    return tuple((s - shift, p) for s, p in key)

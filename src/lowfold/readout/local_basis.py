@@ -40,7 +40,8 @@ import numpy as np
 
 from lowfold.model.model import Model
 
-__all__ = ["LocalBasis", "local_labels", "product_manifold"]
+__all__ = ["LocalBasis", "local_labels", "product_manifold", "uniform_basis", "product_slice",
+           "product_states"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -225,3 +226,39 @@ def hull_codes(basis: LocalBasis, sites) -> np.ndarray:
     ranges = [range(basis.sizes[i]) for i in sites]
     rows = [tuple(reversed(c)) for c in cartesian(*reversed(ranges))]
     return np.array(rows, dtype=np.int64).reshape(len(rows), len(ranges))
+
+
+def uniform_basis(one_site: LocalBasis, n_sites: int) -> LocalBasis:
+    """The hull of ``n_sites`` copies of a one-site basis, without its states (``codes`` is
+    empty): the local sets, labels and references of every site, for building and naming
+    strings on many sites (an infinite lattice's patch) without enumerating the product."""
+    copies = lambda field: tuple(field[0] for _ in range(n_sites))       # noqa: E731
+    return LocalBasis(one_site.site_type, copies(one_site.values), copies(one_site.labels),
+                      copies(one_site.particles), copies(one_site.twice_sz),
+                      copies(one_site.parity), np.full(n_sites, one_site.reference[0]),
+                      np.zeros((0, n_sites), dtype=np.int8), np.ones(0), True, frozenset())
+
+
+def product_slice(model: Model, states: np.ndarray, one_site: LocalBasis) -> LocalBasis:
+    """The states of a cluster whose every site is in the one-site set of ``one_site``, as a
+    basis with that set on every site (the codes of the one-site basis, whatever states the
+    slice meets): for placing strings of an infinite lattice on a finite cluster.
+
+    ``states`` (occupation integers, ascending) must all lie in the product; see
+    :func:`product_states` for picking them out of a sector."""
+    values = _local_values(model, states)
+    n = model.n_sites
+    allowed = one_site.values[0]
+    codes = np.searchsorted(allowed, values)
+    base = uniform_basis(one_site, n)
+    return LocalBasis(base.site_type, base.values, base.labels, base.particles, base.twice_sz,
+                      base.parity, base.reference, codes.astype(np.int8),
+                      _reorder_signs(model, values), False,
+                      frozenset(np.unique(sum(one_site.particles[0][codes[:, i]]
+                                              for i in range(n))).tolist()) if n else frozenset())
+
+
+def product_states(model: Model, states: np.ndarray, one_site: LocalBasis) -> np.ndarray:
+    """The entries of ``states`` whose every site holds a state of the one-site set."""
+    values = _local_values(model, states)
+    return states[np.all(np.isin(values, one_site.values[0]), axis=1)]

@@ -179,9 +179,20 @@ def coupling_strings(model, basis: LocalBasis, kind: str, sites) -> dict:
 
 # --------------------------------------------------------------------------- the fit
 
-def name_strings(model, basis: LocalBasis, strings: dict, n_orders: int, *, tol: float = 1e-10
-                 ) -> tuple[list[LocalCoupling], dict]:
+def name_strings(model, basis: LocalBasis, strings: dict, n_orders: int, *, tol: float = 1e-10,
+                 bonded: set | None = None, fold=None) -> tuple[list[LocalCoupling], dict]:
     """Named couplings and the leftover strings of an operator given as ``strings``.
+
+    Parameters
+    ----------
+    bonded : set of frozenset, optional
+        Nearest-neighbour pairs (the middle of a three-site term is bonded to both ends);
+        default: the model lattice's nearest bonds.
+    fold : callable, optional
+        ``fold(key) -> key``: the representative of a string's translation class, for an
+        operator given per unit cell (an infinite lattice: ``strings`` holds representatives
+        only).  Each template's strings are folded too, so that the fit is per unit cell
+        (a bond's exchange also has one-site strings on both its sites).
 
     Returns
     -------
@@ -191,10 +202,13 @@ def name_strings(model, basis: LocalBasis, strings: dict, n_orders: int, *, tol:
         ``{label: [coefficient per order]}`` of the strings no name explains.
     """
     supports = {tuple(sorted({s for s, _, _ in key})) for key in strings if key}
-    bonded = {frozenset(map(int, b)) for b in model.lattice.bonds("nearest")}
+    if bonded is None:
+        bonded = {frozenset(map(int, b)) for b in model.lattice.bonds("nearest")}
     ops = LocalOperators(model.site)
     templates = _templates(model, basis, ops, supports, bonded)
     templates = [t for t in templates if t[2]]
+    if fold is not None:
+        templates = [(kind, sites, _folded(t, fold)) for kind, sites, t in templates]
     rows = {key: r for r, key in enumerate(strings)}
     for _, _, t in templates:
         for key in t:
@@ -222,6 +236,14 @@ def name_strings(model, basis: LocalBasis, strings: dict, n_orders: int, *, tol:
         sites = tuple(sorted({s for s, _, _ in key}))
         couplings.append(_coupling("string", sites, rest[r], tol, operator=label))
     return couplings, residual
+
+
+def _folded(strings: dict, fold) -> dict:
+    out = {}
+    for key, value in strings.items():
+        new = fold(key)
+        out[new] = out.get(new, 0.0) + value
+    return {k: v for k, v in out.items() if v != 0.0}
 
 
 def _least_squares(design: sp.csr_matrix, target: np.ndarray) -> np.ndarray:
