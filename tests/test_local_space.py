@@ -64,6 +64,20 @@ def test_t_j_model_with_three_site_term_against_quspin(shape, size, particles, b
     np.testing.assert_allclose(levels, reference, atol=1e-12)
 
 
+@pytest.mark.parametrize("selector", [{}, {"pattern": [[0], [1], [2]]}])
+def test_three_site_paths_of_the_three_site_ring_against_quspin(selector):
+    # on the periodic 3-site ring the three paths (one per middle site) share their sites;
+    # the default and the translated pattern both hold all three
+    pytest.importorskip("quspin")
+    terms = term_text("hopping", T, label="t") + term_text("three-site", K, label="K", **selector)
+    text = lattice_text("chain", [3], "periodic", {"type": "electron"}, terms,
+                        sector={"particles": 2})
+    model = model_of(text.replace('type = "electron"', 'type = "electron"\nstates = ["0", "u", "d"]'))
+    reference = quspin_tj_levels(3, [(0, 1), (1, 2), (2, 0)], [(1, 0, 2), (0, 1, 2), (0, 2, 1)],
+                                 2, t=T, j=0.0, k=K)
+    np.testing.assert_allclose(_levels(model), reference, atol=1e-12)
+
+
 def test_kept_space_sizes():
     model = model_of(_tj_text("chain", [5], 3))
     assert build_basis(model).size == sector_size(model.site, 5, model.sector) == comb(5, 3) * 8

@@ -172,7 +172,7 @@ def group_into_classes(model: Model, couplings: tuple[Coupling, ...] | list[Coup
 def _classes(model, lattice, members, orbits, same):
     shells = lattice_shells(lattice)
     n = lattice.n_sites
-    merged = []          # [name, first member key, member count]
+    merged = []          # [name, first member key, member count, first member per orbit]
     for _, orbit in orbits:
         first = orbit[0]
         kind, sites, letters = first
@@ -183,11 +183,12 @@ def _classes(model, lattice, members, orbits, same):
             if entry[0] == name and entry[1][0] == kind and entry[1][2] == letters and \
                     same(members[entry[1]], members[first], kind):
                 entry[2] += len(orbit)
+                entry[3].append(first[1])
                 break
         else:
-            merged.append([name, first, len(orbit)])
+            merged.append([name, first, len(orbit), [first[1]]])
     out = []
-    for name, (kind, sites, letters), count in merged:
+    for name, (kind, sites, letters), count, orbit_sites in merged:
         values = members[(kind, sites, letters)]
         per_site = kind == "constant"
         if per_site:
@@ -197,7 +198,8 @@ def _classes(model, lattice, members, orbits, same):
         out.append(CouplingClass(kind, name, member_positions(lattice, sites),
                                  1.0 if per_site else count / n, orders,
                                  coupling_formula(model, orders) if orders else None,
-                                 " ".join(letters) if letters else None))
+                                 " ".join(letters) if letters else None,
+                                 tuple(member_positions(lattice, m) for m in orbit_sites)))
     rank = ["constant", "field", "exchange", "dm", "anisotropy", "chirality", "ring", "pauli"]
     return tuple(sorted(out, key=lambda c: (rank.index(c.kind) if c.kind in rank else len(rank),
                                             len(c.positions), c.name, c.positions)))

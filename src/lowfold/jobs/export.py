@@ -28,7 +28,6 @@ with ``repr`` (shortest round trip), so reading the file back gives the same flo
 from __future__ import annotations
 
 import json
-import math
 from pathlib import Path
 
 import numpy as np
@@ -36,8 +35,8 @@ import numpy as np
 from lowfold.errors import ModelError
 from lowfold.jobs.export_local import local_export_text
 from lowfold.model.cycles import lattice_cycles
-from lowfold.model.lattice import BOND_CLASSES
-from lowfold.model.patterns import pattern_of
+from lowfold.model.lattice import BOND_CLASSES, make_lattice
+from lowfold.model.patterns import pattern_of_positions
 from lowfold.readout.local_form import LOCAL_READOUT
 from lowfold.readout.pauli import parse_pauli_string
 
@@ -74,6 +73,7 @@ def export_text(result, *, use_classes: bool | None = None) -> str:
     if result.manifold.readout.startswith(LOCAL_READOUT):
         return local_export_text(result, lattice_table=_lattice_table, toml=_toml,
                                  class_groups=_class_groups, unique=_unique,
+                                 expand_patterns=expand_patterns,
                                  use_classes=use_classes)
     if not result.spin_form or model is None:
         why = result.readout_note or "no model attached"
@@ -85,11 +85,16 @@ def export_text(result, *, use_classes: bool | None = None) -> str:
     constant = next((c.value for c in result.couplings if c.kind == "constant"), 0.0)
     per_site = [c.value for c in classes if c.kind == "constant"]
     parameters, terms = {"E0": float(constant)}, [_term("constant", "E0", {})]
+    taken = {"E0"}                             # parameter names and term labels
     for kind, name_hint, value, selector in groups:
-        name = _unique(_name(kind, name_hint), parameters)
+        name = _unique(_name(kind, name_hint), taken)
+        taken.add(name)
         strength, extra = _strength(kind, value)
         parameters[name] = strength
-        terms.append(_term(kind, name, {**extra, **selector}))
+        for k, keys in enumerate(expand_patterns(selector)):
+            label = name if k == 0 else _unique(name, taken)
+            taken.add(label)
+            terms.append(_term(kind, name, {**extra, **keys}, label=label))
     lines = [f"title = {_toml(f'effective model of {model.title} (order {result.order})')}",
              "# written by lowfold derive --export: the couplings summed to order "
              f"{result.order}"]
@@ -169,38 +174,67 @@ def _close(a, b) -> bool:
 
 
 def _class_groups(classes, lattice):
-    """One group per coupling class: bond classes and cycles by name, else a pattern of the
-    member at the class's positions."""
+    """One group per coupling class: a bond class, the cycles or every site by name when the
+    class holds all of them, else a pattern per translation orbit of its members (several
+    patterns: ``{"patterns": [...]}``, one term each, :func:`expand_patterns`)."""
     out = []
-    if getattr(lattice, "infinite", False):   # patterns are read on a patch holding the members
-        reach = max([abs(float(x)) for c in classes for p in c.positions for x in p] or [0.0])
-        lattice = lattice.patch(2 * math.ceil(reach) + 3)
-    coords = np.asarray(lattice.coordinates)
+    per_site = _named_per_site(lattice)
     for c in classes:
         if c.kind == "constant":
             continue
         value = getattr(c, "value", None)
         if value is None:
-            value = sum(np.asarray(v, dtype=float) for v in c.orders.values())
-        value = np.asarray(value, dtype=float)
+            value = sum(np.asarray(v) for v in c.orders.values())
+        value = np.asarray(value)
+        value = value.real if not np.iscomplexobj(value) or not value.imag.any() else value
         kind, name = c.kind, c.name
-        if name in BOND_CLASSES:
+        members = tuple(getattr(c, "members", ()) or (c.positions,))
+        factors = [f.rsplit("_", 1) for f in c.operator.split()] if kind == "string" else []
+        if factors:                     # X-operators in the label's order, on those sites
+            members = tuple([m[int(k)] for _, k in factors] for m in members)
+        whole = abs(c.multiplicity - per_site.get(name, -1.0)) < 1e-9
+        if whole and name in BOND_CLASSES:
             selector = {"bonds": name}
-        elif name in ("triangle", "4-cycle"):
+        elif whole and name in ("triangle", "4-cycle"):
             selector = {"cycles": 3 if name == "triangle" else 4}
-        elif name == "site":
+        elif whole and name == "site":
             selector = {"sites": "all"}
         else:
-            sites = [int(np.argmin(np.linalg.norm(coords - np.asarray(p, float), axis=1)))
-                     for p in c.positions]
-            selector = {"pattern": pattern_of(sites, lattice)}
+            patterns = [pattern_of_positions(m, lattice) for m in members]
+            selector = ({"pattern": patterns[0]} if len(patterns) == 1
+                        else {"patterns": patterns})
         if kind == "pauli" and getattr(c, "operator", None):
             selector = {"operators": c.operator.split(), **selector}
+        if kind == "string":
+            selector = {"operators": [op for op, _ in factors], **selector}
         if kind == "field":
             out += [("field" + a, None, h, selector) for a, h in zip("xyz", value) if h]
             continue
         out.append((kind, name if name in BOND_CLASSES else None, value, selector))
     return out
+
+
+def _named_per_site(lattice) -> dict:
+    """Members per site of every bond class, of the triangles and 4-cycles and of the sites
+    (read on a periodic cluster of 8 cells per direction of an infinite lattice: no
+    member of a class of up to third neighbours wraps around it)."""
+    if lattice.shape == "graph":
+        return {}
+    cluster = lattice
+    if getattr(lattice, "infinite", False):
+        cluster = make_lattice(lattice.shape, [8] * len(lattice.translations), "periodic")
+    n = cluster.n_sites
+    rings, triangles = lattice_cycles(cluster)
+    counts = {name: len(cluster.bonds(name)) / n for name in BOND_CLASSES}
+    return {**counts, "triangle": len(triangles) / n, "4-cycle": len(rings) / n, "site": 1.0}
+
+
+def expand_patterns(selector: dict) -> list[dict]:
+    """The selectors of the terms a class is written as: one per pattern of ``patterns``."""
+    if "patterns" not in selector:
+        return [selector]
+    rest = {k: v for k, v in selector.items() if k != "patterns"}
+    return [{**rest, "pattern": p} for p in selector["patterns"]]
 
 
 # --------------------------------------------------------------------------- writing
@@ -234,9 +268,9 @@ def _strength(kind, value):
     return float(arr), {}
 
 
-def _term(kind, name, keys):
+def _term(kind, name, keys, label=None):
     kind = "field" if kind.startswith("field") else kind
-    lines = ["[[term]]", f"type = {_toml(kind)}", f"label = {_toml(name)}",
+    lines = ["[[term]]", f"type = {_toml(kind)}", f"label = {_toml(label or name)}",
              f"strength = {_toml(name)}"]
     if kind == "field":
         lines.append(f"axis = {_toml(name[1])}")

@@ -42,6 +42,7 @@ import numpy as np
 from lowfold.errors import ModelError
 from lowfold.model.lattice import BOND_CLASSES
 from lowfold.model.local_terms import paths
+from lowfold.model.patterns import translated_pattern
 from lowfold.readout.local_basis import product_manifold
 
 __all__ = ["local_export_text"]
@@ -50,10 +51,11 @@ _REL = 1e-9
 _BOSON_STEP = {"particle": 1, "hole": -1}
 
 
-def local_export_text(result, *, lattice_table, toml, class_groups, unique,
+def local_export_text(result, *, lattice_table, toml, class_groups, unique, expand_patterns,
                       use_classes: bool | None = None) -> str:
     """Model-file text of ``result`` (local-operator readout); helpers from jobs/export.py.
 
+    ``expand_patterns``: the selectors of one class's terms (one per translation orbit).
     ``use_classes``: one term per coupling class (``result.classes``) rather than per group
     of equal couplings; default: on an infinite lattice only (a finite cluster's couplings
     are written as they are, strings included).
@@ -74,7 +76,8 @@ def local_export_text(result, *, lattice_table, toml, class_groups, unique,
     if use_classes is None:
         use_classes = infinite
     if use_classes and classes:
-        items = [(kind, value, selector, None)
+        items = [(kind, value, {k: v for k, v in selector.items() if k != "operators"},
+                  tuple(selector["operators"]) if "operators" in selector else None)
                  for kind, _, value, selector in class_groups(classes, model.lattice)]
     elif infinite:
         raise ModelError("the effective model cannot be exported: an infinite lattice needs "
@@ -86,20 +89,27 @@ def local_export_text(result, *, lattice_table, toml, class_groups, unique,
     terms = [_term_text("constant", "E0", "E0", {}, toml)]
     taken = {"E0"}                             # parameter names and term labels
     for kind, value, selector, operator in items:
-        for spec in _term_specs(kind, value, selector, operator, model.site, background,
+        for spec in _term_specs(kind, value, selector, operator, model.site, background or kept,
                                 model.lattice):
             kind_out, base, strength, keys, note = spec
             name = unique(base, taken)
             taken.add(name)
             if isinstance(strength, str):        # a literal strength, written in the term
-                terms.append(_term_text(kind_out, name, float(strength), keys, toml, note))
-                continue
-            parameters[name] = strength
-            terms.append(_term_text(kind_out, name, name, keys, toml, note))
+                strength = float(strength)
+            else:
+                parameters[name] = strength
+                strength = name
+            for k, placed in enumerate(expand_patterns(keys)):   # one term per pattern
+                label = name if k == 0 else unique(name, taken)
+                taken.add(label)
+                terms.append(_term_text(kind_out, label, strength, placed, toml, note))
     lines = [f"title = {toml(f'effective model of {model.title} (order {result.order})')}",
              "# written by lowfold derive --export: the couplings summed to order "
-             f"{result.order}, on the kept local states {result.manifold.readout}", "",
-             lattice_table(model.lattice)] + site_lines + sector_lines + ["[parameters]"]
+             f"{result.order}, on the kept local states {result.manifold.readout}"]
+    per_site = [c.value for c in classes if c.kind == "constant"]
+    if use_classes and per_site:
+        lines.append(f"# constant per site (not written as a term): {toml(float(np.real(per_site[0])))}")
+    lines += ["", lattice_table(model.lattice)] + site_lines + sector_lines + ["[parameters]"]
     lines += [f"{name} = {_strength(value, toml)}" for name, value in parameters.items()]
     window = [constant - 1.0, constant + 1.0]
     lines += [""] + terms + ["[perturbation]", 'unperturbed = ["E0"]', "order = 1",
@@ -112,7 +122,7 @@ def local_export_text(result, *, lattice_table, toml, class_groups, unique,
 def _kept_states(result, toml):
     """(kept local values, background occupation per site, [sector] lines) of the manifold:
     from its states on a cluster, or from the readout's description on an infinite lattice
-    (no background: boson classes are not written there)."""
+    (no background there: a boson class takes it from its kind, :func:`_boson_specs`)."""
     model = result.model
     if model.lattice.infinite:
         sets = re.findall(r"\{([^}]*)\}", result.manifold.readout)
@@ -259,16 +269,25 @@ def _term_specs(kind, value, selector, operator, site, background, lattice):
 
 
 def _boson_specs(kind, value, selector, site, background, lattice):
-    """Boson kinds as ``string`` terms of X-operators relative to each site's background."""
-    groups = _groups_of(selector, background, lattice)
+    """Boson kinds as ``string`` terms of X-operators relative to each site's background:
+    ``background`` maps each site of a cluster to its occupation; on an infinite lattice it
+    is the kept occupations, and the background is the lowest one that the kind's particle
+    and hole states lie beside (the one-site readout's reference, the lowest occupation)."""
     labels = site.local_labels()
-    refs = {background[s] for g in groups for s in g}
-    if len(refs) != 1:
-        raise ModelError("the effective model cannot be exported: the background occupation "
-                         "differs between the sites of one boson coupling")
-    b = refs.pop()
+    if lattice.infinite:
+        kept = tuple(background)
+        steps = [_BOSON_STEP[w] for w in kind.split("-")[:-1]]
+        b = min(v for v in kept if all(v + d in kept for d in steps))
+        sites = selector
+    else:
+        groups = _groups_of(selector, background, lattice)
+        refs = {background[s] for g in groups for s in g}
+        if len(refs) != 1:
+            raise ModelError("the effective model cannot be exported: the background "
+                             "occupation differs between the sites of one boson coupling")
+        b = refs.pop()
+        sites = {"sites": [list(g) for g in groups]}
     x = lambda a, c: f"|{labels[a]}><{labels[c]}|"       # noqa: E731
-    sites = {"sites": [list(g) for g in groups]}
     if kind.endswith("-hopping"):
         p = b + _BOSON_STEP[kind.split("-")[0]]
         keys = {"operators": [x(p, b), x(b, p)], "conjugate": True, **sites}
@@ -296,12 +315,11 @@ def _groups_of(selector, background, lattice):
         if sites == "all":
             return [(s,) for s in sorted(background)]
         return [tuple(g) if isinstance(g, (list, tuple)) else (g,) for g in sites]
-    if "bonds" in selector and not lattice.infinite:
+    if "bonds" in selector:
         bonds = selector["bonds"]
         return [tuple(int(x) for x in b)
                 for b in (lattice.bonds(bonds) if isinstance(bonds, str) else bonds)]
-    raise ModelError("the effective model cannot be exported: a boson coupling class has no "
-                     "explicit sites (infinite-lattice boson classes are not written yet)")
+    return translated_pattern(selector["pattern"], lattice)
 
 
 def _term_text(kind, name, strength, keys, toml, note=None) -> str:

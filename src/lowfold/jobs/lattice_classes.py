@@ -118,7 +118,7 @@ def read_local_classes(run, order: int, model: Model) -> tuple[CouplingClass, ..
     groups: dict[tuple, list] = {}
     names: dict[tuple, str] = {}          # class names met so far, by offsets of the sites
     for c in couplings:
-        sites = list(c.sites)
+        sites = sorted(c.sites) if c.kind == "string" else list(c.sites)   # label order
         operator = _local_string(c.operator, sites) if c.kind == "string" else None
         _member(groups, names, c.kind, sites, dict(c.orders), operator, coords, run.patch,
                 shells)
@@ -143,9 +143,10 @@ def _classes(groups: dict, run, model: Model | None) -> tuple[CouplingClass, ...
         orders = {m: (float(np.real(v)) if np.ndim(v) == 0 else v) for m, v in orders.items()
                   if np.max(np.abs(v)) > TOL}
         formula = coupling_formula(scales, orders) if scales is not None and orders else None
-        out.append(CouplingClass(kind, name, tuple(tuple(float(x) for x in coords[s])
-                                                   for s in sites),
-                                 count, orders, formula, operator))
+        position = lambda member: tuple(tuple(float(x) for x in coords[s])  # noqa: E731
+                                        for s in member)
+        out.append(CouplingClass(kind, name, position(sites), count, orders, formula, operator,
+                                 tuple(position(m) for m, _ in members)))
     rank = lambda kind: KIND_RANK.index(kind) if kind in KIND_RANK else len(KIND_RANK)  # noqa: E731
     return tuple(sorted(out, key=lambda c: (rank(c.kind), len(c.positions),
                                             _SHELL_RANK.get(c.name, 3), c.name,

@@ -20,9 +20,11 @@ from __future__ import annotations
 import itertools
 import math
 
+import numpy as np
+
 from lowfold.errors import ModelError
 
-__all__ = ["translated_pattern", "pattern_of"]
+__all__ = ["translated_pattern", "pattern_of", "pattern_of_positions"]
 
 
 def _is_int(x) -> bool:
@@ -125,3 +127,30 @@ def pattern_of(sites, lattice) -> list[list[int]]:
              for di, n, b in zip(d, lattice.size, lattice.boundary)]
         out.append(d + [s] if n_basis > 1 else d)
     return out
+
+
+def pattern_of_positions(positions, lattice) -> list[list[int]]:
+    """The pattern of a group of sites given by their Cartesian positions (anywhere on the
+    lattice: minimum images on a periodic cluster, sites of an infinite lattice's patch),
+    relative to the cell of the first position; basis site last as in :func:`pattern_of`.
+
+    Raises
+    ------
+    ModelError
+        A position that is no site of the lattice.
+    """
+    vectors = np.asarray(lattice.translations, dtype=float)
+    basis = np.asarray(lattice.unit_cell, dtype=float)
+    cells = []
+    for position in positions:
+        point = np.asarray(position, dtype=float)
+        for s, b in enumerate(basis):
+            x = np.linalg.lstsq(vectors.T, point - b, rcond=None)[0]
+            n = np.round(x)
+            if np.allclose(vectors.T @ n + b, point, atol=1e-6):
+                cells.append((n.astype(int), s))
+                break
+        else:
+            raise ModelError(f"position {list(point)} is no site of the {lattice.shape} lattice")
+    origin = cells[0][0]
+    return [[int(v) for v in x - origin] + ([s] if len(basis) > 1 else []) for x, s in cells]

@@ -113,10 +113,17 @@ def _explicit_groups(term, lattice, width):
 
 def _distinct_groups(term, groups):
     """Translates that land on the same sites twice (small periodic clusters) count once,
-    like bonds: the key is the set of sites (for pauli, of (site, operator) pairs)."""
+    like bonds: the key is the set of sites (for pauli and string, of (site, operator)
+    pairs; for three-site, the middle site and the set of ends: on a 3-site ring the three
+    paths share their sites)."""
     seen, out = set(), []
     for group in groups:
-        key = frozenset(zip(group, term.operators)) if term.type in ("pauli", "string") else frozenset(group)
+        if term.type in ("pauli", "string"):
+            key = frozenset(zip(group, term.operators))
+        elif term.type == "three-site":
+            key = (group[1], frozenset((group[0], group[2])))
+        else:
+            key = frozenset(group)
         if key not in seen:
             seen.add(key)
             out.append(group)

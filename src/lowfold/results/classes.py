@@ -58,6 +58,10 @@ class CouplingClass:
         it has one energy ratio.
     operator : str or None
         For ``kind = "pauli"``: the Pauli letters on the member's sites (``"Z Z Z Z"``).
+    members : tuple of tuples
+        The positions of one member of every translation orbit the class holds, in the
+        order each coupling uses its sites (``positions`` is the first); empty when not
+        recorded (a class read back from JSON).  Export writes a pattern per orbit.
     """
 
     kind: str
@@ -67,6 +71,7 @@ class CouplingClass:
     orders: Mapping[int, Any] = field(default_factory=dict)
     formula: str | None = None
     operator: str | None = None
+    members: tuple = field(default=(), compare=False, repr=False)
 
     @property
     def value(self) -> Any:
