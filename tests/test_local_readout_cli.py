@@ -13,6 +13,7 @@ from __future__ import annotations
 import pytest
 from helpers.cli import one_json_object, run_all, succeeded
 from helpers.derive_models import ISING_CHAIN
+from helpers.lattice_models import tj_text
 from helpers.modelfiles import hubbard_text, model_of, write_models
 
 from lowfold.jobs.derive import derive
@@ -29,7 +30,8 @@ def runs(tmp_path_factory):
         "field": hubbard_text("chain", [3], t=T, U=U, particles=2, order=1, terms=FIELD),
         "ising": ISING_CHAIN,
         "ring": hubbard_text("chain", [6], boundary="periodic", t=T, U=U, particles=5,
-                             order=2)})
+                             order=2),
+        "infinite": tj_text("chain", order=3, t=T, u=U)})
     return run_all({
         "screen": ["derive", files["tj"], "--no-check"],
         "json": ["derive", files["tj"], "--json", "--no-check"],
@@ -37,7 +39,8 @@ def runs(tmp_path_factory):
         "strings": ["derive", files["field"], "--no-check"],
         "export": ["derive", files["tj"], "--no-check", "--export", directory / "out.toml"],
         "ising": ["derive", files["ising"], "--no-check"],
-        "ring-latex": ["derive", files["ring"], "--no-check", "--latex"]})
+        "ring-latex": ["derive", files["ring"], "--no-check", "--latex"],
+        "infinite-latex": ["derive", files["infinite"], "--no-check", "--latex"]})
 
 
 def test_screen_names_the_t_j_couplings(runs):
@@ -92,3 +95,15 @@ def test_classes_of_a_doped_ring_in_latex(runs):
     assert r"(\mathbf{S}_i \cdot \mathbf{S}_j - n_i n_j / 4)" in latex
     assert r"J_{1} &= \frac{4 t^{2}}{U}" in latex
     assert r"K_3 &= \frac{t^{2}}{U}" in latex
+
+
+def test_classes_of_the_infinite_t_j_chain_in_latex(runs):
+    # an infinite lattice has classes and no couplings: the tabular lists the classes (with
+    # their formulas), and the string classes of the third order are x_n times X-operators
+    latex = succeeded(runs["infinite-latex"])
+    table = latex.split(r"\end{tabular}")[0]
+    assert r"kind & class & per site & order 1 & order 2 & order 3 & value & formula \\" in table
+    assert r"exchange & nearest & $1$ &  & $0.04$ &  & $0.04$ & $4 t^2/U$ \\" in table
+    assert table.count("\nstring ") >= 16
+    assert r"J_{1} &= \frac{4 t^{2}}{U}" in latex
+    assert r"x_{1} \sum_{\text{3 sites (1, 1, 2)}} X^{0d}_{1} X^{d0}_{2} X^{uu}_{3}" in latex

@@ -262,6 +262,9 @@ def latex_couplings(result: EffectiveModel) -> str:
     (``\\frac{4 t^{2}}{U} - \\frac{16 t^{4}}{U^{3}}``) in a last column when there are any;
     with coupling classes, then the effective Hamiltonian in equations
     (:func:`lowfold.readout.formulas.latex_hamiltonian`)."""
+    if result.classes and not result.couplings:         # an infinite lattice: its classes
+        return "\n".join([_latex_classes(result.classes), "",
+                          latex_hamiltonian(result.model, result.classes)])
     orders, rows = _coupling_rows(result)
     formulas = [rational_formula(r[4], latex=True) for r in rows]
     extra = ["rational (recognised)"] if any(formulas) else []
@@ -276,6 +279,25 @@ def latex_couplings(result: EffectiveModel) -> str:
     if result.classes:
         lines += ["", latex_hamiltonian(result.model, result.classes)]
     return "\n".join(lines)
+
+
+def _latex_classes(classes) -> str:
+    """The coupling classes as a LaTeX ``tabular``: kind, class, members per site, each
+    order and the value of one member, and the formula when there is one."""
+    orders = sorted({m for c in classes for m in c.orders})
+    extra = ["formula"] if any(c.formula for c in classes) else []
+    head = " & ".join(["kind", "class", "per site", *[f"order {n}" for n in orders], "value",
+                       *extra])
+    lines = [r"\begin{tabular}{ll" + "r" * (len(orders) + 2) + "l" * len(extra) + "}",
+             r"\hline", head + r" \\", r"\hline"]
+    for c in classes:
+        kind = _latex_kind(f"{c.kind} {c.operator}" if c.operator else c.kind)
+        cells = [kind, c.name, f"${c.multiplicity:.4g}$",
+                 *[f"${_fmt(c.orders[n])}$" if n in c.orders else "" for n in orders],
+                 f"${_fmt(c.value)}$"]
+        cells += [f"${c.formula}$" if c.formula else ""] if extra else []
+        lines.append(" & ".join(cells) + r" \\")
+    return "\n".join(lines + [r"\hline", r"\end{tabular}"])
 
 
 X_OPERATOR = re.compile(r"\|([^|<>]+)><([^|<>]+)\|_(\d+)")

@@ -223,8 +223,21 @@ _LOCAL_BODY = {
 }
 
 
+def _x_operators(label: str) -> str:
+    """``|u><0|_0 |0><u|_1`` as ``X^{u0}_1 X^{0u}_2`` (a comma between labels longer than
+    one character: ``X^{+1,0}_1``)."""
+    out = []
+    for part in label.split():
+        states, _, site = part.rpartition("_")
+        a, b = states[1:-1].split("><")
+        out.append(rf"X^{{{a}{',' if max(len(a), len(b)) > 1 else ''}{b}}}_{{{int(site) + 1}}}")
+    return " ".join(out)
+
+
 def _operator(kind: str, name: str, letters: str | None) -> str:
     i, j, k, l = (_S[x] for x in "ijkl")
+    if kind == "string":
+        return rf"\sum_{{{_where(name)}}} {_x_operators(letters or '')}"
     if kind in _LOCAL_BODY:
         return rf"\sum_{{{_where(name)}}} {_LOCAL_BODY[kind]}"
     if kind == "field":
@@ -251,6 +264,8 @@ def latex_hamiltonian(model: Model, classes) -> str:
     the scalar chirality, vectors and tensors named ``\\mathbf{h}``, ``\\mathbf{D}``,
     ``\\Gamma``; a second class of the same kind and name gets a prime), then one line per
     coefficient: its formula (:func:`latex_formula`) when there is one, else its value.
+    A ``string`` class is ``x_n`` times its X-operators ``X^{ab}_m = |a><b|`` on the
+    member's sites numbered from 1 in the order of its positions.
     Spin operators ``S = sigma/2``; each sum runs over the members of the class once.
 
     Parameters
@@ -269,9 +284,13 @@ def latex_hamiltonian(model: Model, classes) -> str:
         if c.kind == "exchange":
             symbol = f"J_{{{_PAIR_INDEX.get(c.name, c.name)}}}" if c.name in _PAIR_INDEX \
                 else rf"J_{{\text{{{c.name}}}}}"
-        primes = used.get(symbol, 0)
-        used[symbol] = primes + 1
-        symbol += "'" * primes
+        if c.kind == "string":             # numbered: there may be thousands
+            used["string"] = used.get("string", 0) + 1
+            symbol = f"x_{{{used['string']}}}"
+        else:
+            primes = used.get(symbol, 0)
+            used[symbol] = primes + 1
+            symbol += "'" * primes
         formula = latex_formula(model, c.orders) if not isinstance(c.value, list) else None
         if c.kind == "constant":
             terms.append(f"N {symbol}")
