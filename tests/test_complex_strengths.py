@@ -165,13 +165,6 @@ def test_bad_complex_input_is_a_model_error(name):
     assert "\n" not in str(info.value)
 
 
-def test_soc_on_an_infinite_lattice_is_refused():
-    text = dimer(hopping="soc = [0.0, 0.0, 0.01]").replace(
-        'size = [2]', 'boundary = "infinite"').replace("[sector]\nparticles = 2\n", "")
-    with pytest.raises(ModelError, match="not supported on an infinite lattice"):
-        model_of(text)
-
-
 @pytest.fixture(scope="module")
 def cli(tmp_path_factory):
     directory = tmp_path_factory.mktemp("complex")

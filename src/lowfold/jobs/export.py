@@ -182,12 +182,10 @@ def _class_groups(classes, lattice):
     for c in classes:
         if c.kind == "constant":
             continue
-        value = getattr(c, "value", None)
-        if value is None:
-            value = sum(np.asarray(v) for v in c.orders.values())
-        value = np.asarray(value)
-        value = value.real if not np.iscomplexobj(value) or not value.imag.any() else value
         kind, name = c.kind, c.name
+        value = np.asarray(c.value)
+        if kind == "string" and value.size == 2:          # a complex string: [re, im]
+            value = np.asarray(complex(*value))
         members = tuple(getattr(c, "members", ()) or (c.positions,))
         factors = [f.rsplit("_", 1) for f in c.operator.split()] if kind == "string" else []
         if factors:                     # X-operators in the label's order, on those sites

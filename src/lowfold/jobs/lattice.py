@@ -32,7 +32,7 @@ import numpy as np
 from lowfold.build.hamiltonian import Hamiltonian
 from lowfold.errors import ModelError
 from lowfold.model.lattice import Lattice, make_lattice
-from lowfold.model.model import Model, PerturbationSpec
+from lowfold.model.model import Model, PerturbationSpec, directed_hopping
 from lowfold.model.sector import Sector
 from lowfold.model.terms import ONE_SITE_TYPES
 from lowfold.perturbation.linked_clusters import (ClusterWeights, LatticeSum,
@@ -92,10 +92,39 @@ def check_linked_cluster_model(model: Model) -> None:
         if term.sites is not None and term.sites != "all":
             raise ModelError(f"term {term.label!r}: explicit sites on an infinite lattice; use "
                              "sites = \"all\"")
+        on_groups = term.type not in ONE_SITE_TYPES + ("constant",) and term.bonds is None
+        if term.label in model.perturbation_labels and on_groups and _default_bonds(term) is None \
+                and not (term.type == "product" and term.sites is not None):
+            raise ModelError(f"term {term.label!r} ({term.type}) acts on groups of sites, not "
+                             "on bonds; the linked-cluster expansion takes V terms on a bond "
+                             "class (bonds = \"nearest\", \"next-nearest\" or \"third\")")
         if (term.type == "product" and term.bonds is not None and term.operators is not None
                 and len(set(term.operators)) > 1 and not term.conjugate):
             raise ModelError(f"term {term.label!r}: a product of different operators on bonds "
                              "has a direction, which the cluster graphs do not keep")
+
+
+_BOND_TYPES = ("hopping", "interaction", "exchange", "dm", "anisotropy", "biquadratic")
+
+
+def _default_bonds(term) -> str | None:
+    """The bond class a term acts on when it names none: ``nearest`` for the two-site types
+    (and two-factor pauli and string terms) without another selector."""
+    if term.bonds is not None:
+        return term.bonds
+    others = (term.sites, term.pattern, getattr(term, "cycles", None))
+    two_factors = term.type in ("pauli", "string") and len(term.operators or ()) == 2
+    if (term.type in _BOND_TYPES or two_factors) and all(x is None for x in others):
+        return "nearest"
+    return None
+
+
+def with_bond_classes(model: Model) -> Model:
+    """``model`` with every term that acts on the nearest bonds by default naming them, so
+    that the cluster graphs see its bonds (a hopping without ``bonds`` is a bond term)."""
+    terms = tuple(replace(t, bonds=_default_bonds(t)) if t.bonds is None and _default_bonds(t)
+                  else t for t in model.terms)
+    return model if terms == model.terms else replace(model, terms=terms)
 
 
 def _constant_h0(model: Model) -> bool:
@@ -266,6 +295,7 @@ def linked_cluster_sum(model: Model, order: int, *, energy: bool = False,
     """
     start = time.perf_counter()
     check_linked_cluster_model(model)
+    model = with_bond_classes(model)
     lat = model.lattice
     bonded = [model.term(label) for label in model.perturbation_labels if model.term(label).bonds]
     classes = sorted({t.bonds for t in bonded})
@@ -281,12 +311,19 @@ def linked_cluster_sum(model: Model, order: int, *, energy: bool = False,
     local = None if energy else one_site_basis(model, filling)
     weights = ClusterWeights(_solver(model, labels, order, energy, filling, local is not None),
                              order, even_trees=prune and _even_trees(model), mapper=graph_map,
-                             odd=_odd_letters(local))
+                             odd=_odd_letters(local), directed=_directed(model, labels))
     cell_of = np.arange(patch.n_sites) // n_basis
     total = lattice_sum(patch.n_sites, np.array(bond_list, dtype=np.int64).reshape(-1, 2),
                         colours, cell_of, reference, n_basis, weights, order)
     return LinkedClusterRun(total, patch, reference, n_basis, time.perf_counter() - start,
                             filling_note, local)
+
+
+def _directed(model: Model, labels: dict) -> frozenset:
+    """Bond colours holding a hopping with a direction (complex strength or spin-orbit part):
+    their cluster graphs keep it (:func:`lowfold.perturbation.linked_clusters.canonical_form`)."""
+    return frozenset(c for c, names in labels.items()
+                     if any(directed_hopping(model, model.term(name)) for name in names))
 
 
 def _coloured_bonds(model: Model, cluster: Lattice):
@@ -314,12 +351,13 @@ def open_cluster_sum(model: Model, cluster: Lattice, order: int, *, energy: bool
     model's shape, on the cluster's sites (the linked-cluster identity: this equals the
     effective Hamiltonian of the cluster itself, order by order)."""
     check_linked_cluster_model(model)
+    model = with_bond_classes(model)
     bonds, colours, labels = _coloured_bonds(model, cluster)
     filling, _ = one_site_filling(model)
     local = None if energy else one_site_basis(model, filling)
     weights = ClusterWeights(_solver(model, labels, order, energy, filling, local is not None),
                              order, even_trees=prune and _even_trees(model),
-                             odd=_odd_letters(local))
+                             odd=_odd_letters(local), directed=_directed(model, labels))
     at: dict[int, list[int]] = {}
     for k, (i, j) in enumerate(bonds):
         at.setdefault(i, []).append(k)

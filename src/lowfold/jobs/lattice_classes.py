@@ -179,7 +179,9 @@ def formula_model(model: Model) -> Model | None:
 def _member(groups, names, kind, sites, orders, operator, coords, patch, shells) -> None:
     offsets = tuple(tuple(coords[s] - coords[sites[0]]) for s in sites) if sites else ()
     name = _name_of(patch, offsets, shells, names)
-    values = [np.ravel(np.asarray(v, dtype=float)) for _, v in sorted(orders.items())]
+    values = [np.ravel(np.asarray(v)) for _, v in sorted(orders.items())]
+    values = [np.concatenate([v.real, v.imag]) if np.iscomplexobj(v) else v.astype(float)
+              for v in values]
     flat = np.round(np.concatenate(values), 9) if values else np.zeros(0)
     rounded = (tuple(len(v) for v in values), tuple(flat.tolist()))     # rounded once
     groups.setdefault((kind, name, operator, rounded), []).append((sites, dict(orders)))

@@ -152,7 +152,12 @@ def cluster_strings(run, couplings, cluster: Model, order: int) -> list[dict]:
 
 def _scalar(kind: str, value) -> float:
     """The coefficient that multiplies a template of unit value (a field ``[0, 0, h]``: h)."""
-    return float(np.ravel(value)[-1]) if kind == "field" else complex(value).real
+    if kind == "field":
+        return float(np.ravel(value)[-1])
+    if isinstance(value, (list, tuple)):           # a complex string value [re, im]
+        value = complex(*value)
+    value = complex(value)             # complex for a complex or spin-orbit hopping
+    return value.real if value.imag == 0 else value
 
 
 def _strings_of(c, run, basis, model: Model) -> dict:
@@ -250,9 +255,9 @@ def _compare(cluster, one_site, placed, levels, factors, say, name, particles=No
             exact = np.sort(np.real(lowest_eigenpairs(h0 + factor * v, k, tol=1e-12)[0]))[:k]
             if factor == 1.0:
                 exact_all.extend(exact.tolist())
-            running = np.zeros((p, p))
+            running = np.zeros((p, p), dtype=np.result_type(*effective))
             for m, h in enumerate(effective):
-                running = running + factor**m * np.real(h)
+                running = running + factor**m * h
                 found = la.eigvalsh(running, subset_by_index=[0, k - 1])
                 error = float(np.max(np.abs(found - exact)))
                 scaled[(factor, m)] = max(scaled.get((factor, m), 0.0), error)

@@ -10,7 +10,8 @@ A ``hopping`` term of strength ``s`` on the bonds ``(i, j)`` it selects is
 (docs/model-files.md, "Complex strengths, flux and spin-orbit hopping"):
 
 - the bond ``(i, j)`` is taken in the order the term lists it (a bond class lists it with
-  ``i < j``); ``T^{ji} = (T^{ij})^dagger``, so that H is Hermitian for any complex ``s``:
+  ``i < j``, along the translations on periodic clusters: the ring's bond ``(L - 1, 0)``,
+  :func:`lowfold.model.patterns.along_translations`); ``T^{ji} = (T^{ij})^dagger``, so that H is Hermitian for any complex ``s``:
   ``phi_ji = -phi_ij`` and ``lambda_ji = -lambda_ij``;
 - ``c+_i T c_j`` moves a particle from ``j`` to ``i``; it picks up ``exp(i phi_ij)``: going
   once around a loop ``r_0 -> r_1 -> ... -> r_0`` a particle collects
@@ -42,6 +43,7 @@ import numpy as np
 
 from lowfold.errors import ModelError
 from lowfold.model.flux_gauge import FACE_AREAS, flux_phases
+from lowfold.model.patterns import along_translations
 
 __all__ = ["hopping_products", "bond_phases", "soc_vectors", "breaks_sz", "FACE_AREAS"]
 
@@ -127,7 +129,8 @@ def bond_phases(term, lattice, bonds, parameters) -> np.ndarray:
 
 
 def _bond_list(term, lattice):
-    return [tuple(int(x) for x in pair) for pair in lattice.bonds(term.bonds or "nearest")]
+    bonds = [tuple(int(x) for x in pair) for pair in lattice.bonds(term.bonds or "nearest")]
+    return along_translations(bonds, lattice) if isinstance(term.bonds or "nearest", str) else bonds
 
 
 def _scalar(z: complex):

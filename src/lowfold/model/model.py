@@ -199,13 +199,20 @@ def _resolve_forms(model: Model) -> None:
     object.__setattr__(model, "forms", MappingProxyType(forms))
 
 
+def directed_hopping(model: Model, term) -> bool:
+    """Whether a hopping term has a direction on its bonds: a complex strength or a
+    spin-orbit part (``T^ji = (T^ij)^dagger`` differs from ``T^ij``)."""
+    return term.type == "hopping" and (term.soc is not None
+                                       or isinstance(model.strength(term), complex))
+
+
 def _check_infinite_hopping(model: Model) -> None:
-    """The linked-cluster expansion treats bonds as undirected: a directed hopping (complex,
-    with phases, flux or spin-orbit part) has no meaning there yet."""
+    """Flux and explicit phases have no translation-invariant form on an infinite lattice
+    (a uniform field's Peierls phases depend on the position in any gauge); a complex or
+    spin-orbit hopping on a bond class is translation invariant, its bonds taken along the
+    translations (the linked-cluster graphs keep their direction)."""
     for term in model.terms:
-        directed = (term.phases is not None or term.flux is not None or term.soc is not None
-                    or (term.type == "hopping" and isinstance(model.strength(term), complex)))
-        if directed:
-            raise ModelError(f"term {term.label!r}: a complex, flux or spin-orbit hopping is "
-                             "not supported on an infinite lattice (its bonds have a direction "
-                             "the linked-cluster expansion does not keep); use a finite cluster")
+        if term.phases is not None or term.flux is not None:
+            raise ModelError(f"term {term.label!r}: a flux or explicit phases are not supported "
+                             "on an infinite lattice (the Peierls phases of a field are not "
+                             "translation invariant); use a finite cluster")

@@ -24,7 +24,7 @@ import numpy as np
 
 from lowfold.errors import ModelError
 
-__all__ = ["translated_pattern", "pattern_of", "pattern_of_positions"]
+__all__ = ["translated_pattern", "pattern_of", "pattern_of_positions", "along_translations"]
 
 
 def _is_int(x) -> bool:
@@ -154,3 +154,28 @@ def pattern_of_positions(positions, lattice) -> list[list[int]]:
             raise ModelError(f"position {list(point)} is no site of the {lattice.shape} lattice")
     origin = cells[0][0]
     return [[int(v) for v in x - origin] + ([s] if len(basis) > 1 else []) for x, s in cells]
+
+
+def along_translations(bonds, lattice) -> list[tuple[int, int]]:
+    """The bonds of a class taken as on an open cluster or the infinite lattice, along the
+    translations: each bond's shortest displacement from ``i`` to ``j`` in cells has its
+    last nonzero component positive (same cell: the lower basis site first).  On an open
+    cluster that is ``i < j``; on a periodic one it keeps a directed term (a DM vector, a
+    complex or spin-orbit hopping, an ordered string) translation invariant: the ring's bond
+    ``(0, L - 1)`` is ``(L - 1, 0)``."""
+    if lattice.shape == "graph" or "periodic" not in lattice.boundary:
+        return [tuple(b) for b in bonds]
+    n_basis = lattice.n_sites // math.prod(lattice.size)
+    out = []
+    for i, j in bonds:
+        (ci, bi), (cj, bj) = divmod(int(i), n_basis), divmod(int(j), n_basis)
+        last = 0
+        for n, boundary in zip(lattice.size, lattice.boundary):
+            (ci, xi), (cj, xj) = divmod(ci, n), divmod(cj, n)
+            d = xj - xi
+            if boundary == "periodic" and abs(d) > n / 2:
+                d -= n if d > 0 else -n
+            last = d or last
+        forward = last > 0 or (last == 0 and bi <= bj)
+        out.append((int(i), int(j)) if forward else (int(j), int(i)))
+    return out

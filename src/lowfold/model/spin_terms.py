@@ -29,7 +29,7 @@ import numpy as np
 
 from lowfold.errors import ModelError
 from lowfold.model.cycles import lattice_cycles
-from lowfold.model.patterns import translated_pattern
+from lowfold.model.patterns import along_translations, translated_pattern
 
 __all__ = ["SPIN_TERM_TYPES", "SPIN_EXPANDERS", "term_groups"]
 
@@ -84,7 +84,9 @@ def term_groups(term, lattice, width: int | None = None) -> list[tuple[int, ...]
         if width != 2:
             raise ModelError(f"term {term.label!r}: bonds select pairs, but the term acts on "
                              f"{width} sites")
-        return [tuple(int(x) for x in b) for b in lattice.bonds(term.bonds or "nearest")]
+        if isinstance(term.bonds or "nearest", str):      # a class: along the translations
+            return along_translations(lattice.bonds(term.bonds or "nearest"), lattice)
+        return [tuple(int(x) for x in b) for b in lattice.bonds(term.bonds)]
     if chosen == "pattern":
         groups = translated_pattern(term.pattern, lattice, where=f"term {term.label!r}")
         if len(term.pattern) != width:

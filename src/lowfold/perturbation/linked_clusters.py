@@ -49,8 +49,14 @@ ClusterGraph = tuple[int, tuple[tuple[int, int, int], ...]]
 Operator = dict[tuple, np.ndarray]
 
 
-def canonical_form(n_sites: int, edges) -> tuple[ClusterGraph, list[int]]:
+def canonical_form(n_sites: int, edges, directed: frozenset = frozenset()
+                   ) -> tuple[ClusterGraph, list[int]]:
     """Canonical graph of a coloured cluster and the map from its sites to canonical labels.
+
+    An edge ``(a, b, c)`` whose colour ``c`` is in ``directed`` (a complex or spin-orbit
+    hopping: the bond has a direction) keeps it: it is two linked vertices, the tail's
+    attached to ``a`` and the head's to ``b``, so that only direction-preserving maps are
+    isomorphisms, and its canonical edge is listed tail first.
 
     Returns
     -------
@@ -62,16 +68,22 @@ def canonical_form(n_sites: int, edges) -> tuple[ClusterGraph, list[int]]:
     edges = list(edges)
     if not edges:
         return (n_sites, ()), list(range(n_sites))
-    g = igraph.Graph(n=n_sites + len(edges))
+    heads = [k for k, (_, _, c) in enumerate(edges) if c in directed]
+    head_of = {k: n_sites + len(edges) + h for h, k in enumerate(heads)}
+    g = igraph.Graph(n=n_sites + len(edges) + len(heads))
     g.add_edges([(a, n_sites + k) for k, (a, _, _) in enumerate(edges)]
-                + [(b, n_sites + k) for k, (_, b, _) in enumerate(edges)])
-    colours = [0] * n_sites + [1 + c for _, _, c in edges]
+                + [(b, head_of.get(k, n_sites + k)) for k, (_, b, _) in enumerate(edges)]
+                + [(n_sites + k, head_of[k]) for k in heads])
+    top = 2 + 2 * max(c for _, _, c in edges)      # head colours above every edge colour
+    colours = ([0] * n_sites + [1 + c for _, _, c in edges]
+               + [top + edges[k][2] for k in heads])
     position = _positions(g.canonical_permutation(color=colours))
     order = sorted(range(n_sites), key=lambda a: position[a])
     label = [0] * n_sites
     for rank, a in enumerate(order):
         label[a] = rank
-    canon = tuple(sorted((min(label[a], label[b]), max(label[a], label[b]), c)
+    canon = tuple(sorted((label[a], label[b], c) if c in directed
+                         else (min(label[a], label[b]), max(label[a], label[b]), c)
                          for a, b, c in edges))
     return (n_sites, canon), label
 
@@ -229,12 +241,15 @@ class ClusterWeights:
     odd : frozenset, optional
         Letters of fermion-parity-odd factors (local-operator keys of fermions): embedding
         a weight reorders them, with a sign (:func:`add_embedded`).
+    directed : frozenset, optional
+        Bond colours with a direction (:func:`canonical_form`).
     """
 
     def __init__(self, solve: Callable[[ClusterGraph], Operator], order: int, *,
                  even_trees: bool = False, mapper: Callable | None = None,
-                 odd: frozenset | None = None):
+                 odd: frozenset | None = None, directed: frozenset = frozenset()):
         self.odd = odd or None
+        self.directed = directed
         self._solve, self._order, self._even_trees = solve, order, even_trees
         self._mapper = mapper or serial_map
         self._weights: dict[ClusterGraph, Operator] = {}
@@ -262,7 +277,7 @@ class ClusterWeights:
                 local = _local(sites, edges)
                 if self.prunable(*local):
                     continue
-                canon, label = canonical_form(*local)
+                canon, label = canonical_form(*local, self.directed)
                 found.append((canon, {label[k]: sites[k] for k in range(len(sites))}))
             self._inside[graph] = found
         return self._inside[graph]
@@ -296,7 +311,8 @@ class ClusterWeights:
         if own is None:
             self.computed += 1
             own = self._solve(graph)
-        total = {k: np.array(v, dtype=float) for k, v in own.items()}
+        total = {k: np.array(v, dtype=complex if np.iscomplexobj(v) else float)
+                 for k, v in own.items()}
         for canon, site_of in self.subclusters(graph):
             add_embedded(total, self.weight(canon), site_of, -1.0, self.odd)
         self._weights[graph] = total
@@ -371,7 +387,7 @@ def sum_embeddings(clusters, weights: ClusterWeights) -> Operator:
         if weights.prunable(*local):
             weights.pruned += 1
             continue
-        canon, label = canonical_form(*local)
+        canon, label = canonical_form(*local, weights.directed)
         groups.setdefault(canon, []).append({label[k]: sites[k] for k in range(len(sites))})
     weights.prepare(list(groups))
     total: Operator = {}

@@ -29,6 +29,8 @@ def _total(values) -> Any:
     values = [_plain(v) for v in values]
     if not values:
         return 0.0
+    if any(isinstance(v, list) for v in values):     # a complex string: [re, im] per order,
+        values = [v if isinstance(v, list) else [v, 0.0] for v in values]   # or a real one
     if isinstance(values[0], list):
         return [_total(column) for column in zip(*values)]
     return float(sum(values))
