@@ -173,3 +173,22 @@ def test_square_couplings_on_a_torus_fall_like_the_next_power():
     for n in (1, 2):
         power = np.log2(errors[0][n] / errors[1][n])
         assert power == pytest.approx(n + 1, abs=0.2), (n, power)
+
+
+def test_a_hopping_without_bonds_is_on_the_nearest_bonds():
+    # a two-site term names no bonds: the nearest ones, as on a finite cluster
+    plain = derive_infinite(parse(tj_text("chain", order=2)), 2)
+    implicit = derive_infinite(parse(tj_text("chain", order=2).replace('bonds = "nearest"\n', "")),
+                               2)
+    assert [(c.kind, c.name, c.orders) for c in implicit.classes] == \
+        [(c.kind, c.name, c.orders) for c in plain.classes]
+
+
+def test_a_perturbation_on_groups_of_sites_is_refused():
+    text = tj_text("chain", order=2).replace('[perturbation]', '''[[term]]
+label = "three"
+type = "three-site"
+strength = 0.01
+[perturbation]''')
+    with pytest.raises(lowfold.ModelError, match="acts on groups of sites, not on bonds"):
+        derive_infinite(parse(text), 2)
