@@ -176,3 +176,17 @@ def test_boson_classes_export_and_run_on_a_ring():
             errors.append(np.abs(levels - exact).max())
         power = np.log2(errors[0] / errors[1])
         assert power == pytest.approx(order + 1, abs=0.25), (order, power)
+
+
+def test_json_classes_list_a_member_of_every_orbit():
+    result = derive_infinite(parse(tj_text("square", order=2, t=0.1, u=1.0)), 2)
+    three = {c.name: c.to_dict() for c in result.classes if c.kind == "three-site"}
+    bent, straight = three["3 sites (1, 1, 1.414)"], three["3 sites (1, 1, 2)"]
+    assert bent["multiplicity"] == 4 and len(bent["members"]) == 4
+    assert straight["multiplicity"] == 2 and len(straight["members"]) == 2
+    assert bent["members"][0] == bent["positions"]
+    # the middle site is listed second: the four members bend in the four directions
+    bends = {frozenset(tuple(np.subtract(m[e], m[1]).round(9)) for e in (0, 2))
+             for m in bent["members"]}
+    assert bends == {frozenset({(1.0, 0.0), (0.0, 1.0)}), frozenset({(-1.0, 0.0), (0.0, 1.0)}),
+                     frozenset({(-1.0, 0.0), (0.0, -1.0)}), frozenset({(1.0, 0.0), (0.0, -1.0)})}

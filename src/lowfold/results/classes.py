@@ -63,7 +63,8 @@ class CouplingClass:
     members : tuple of tuples
         The positions of one member of every translation orbit the class holds, in the
         order each coupling uses its sites (``positions`` is the first); empty when not
-        recorded (a class read back from JSON).  Export writes a pattern per orbit.
+        recorded.  Export writes a pattern per orbit; JSON key ``members`` when there are
+        several.
     """
 
     kind: str
@@ -88,10 +89,13 @@ class CouplingClass:
             out["formula"] = self.formula
         if self.operator is not None:
             out["operator"] = self.operator
+        if len(self.members) > 1:
+            out["members"] = [[[float(x) for x in p] for p in m] for m in self.members]
         return out
 
     @classmethod
     def from_dict(cls, data: Mapping) -> "CouplingClass":
         return cls(data["kind"], data["class"], tuple(tuple(p) for p in data["positions"]),
                    float(data["multiplicity"]), orders_from_json(data.get("orders")),
-                   data.get("formula"), data.get("operator"))
+                   data.get("formula"), data.get("operator"),
+                   tuple(tuple(tuple(p) for p in m) for m in data.get("members", ())))
