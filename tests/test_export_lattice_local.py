@@ -23,6 +23,11 @@ site; its classes as `string` terms of X-operators), exported and run on the 6-s
 7 bosons, plus 6 times the constant per site, misses the ring's exact levels (QuSpin,
 occupations up to 3 as in the derived model) by O(t^(n+1)), n = 1, 2.
 
+Round trips (docs/local-readout.md): `derive` of the exported file on the infinite lattice
+at first order returns every class of the export (kind, class, operator, members, value),
+for the t-J chain at third order (strings on groups of up to four sites in V) and for the
+half-filled square Hubbard model at fourth order (ring exchange on the 4-cycles).
+
 Five electrons and four: an odd and an even number of fermions, so the bonds and strings
 across the ring's boundary are met with both signs of the fermion reordering.
 """
@@ -33,7 +38,7 @@ import math
 
 import numpy as np
 import pytest
-from helpers.lattice_models import parse, tj_text
+from helpers.lattice_models import hubbard_text, parse, tj_text
 from helpers.quspin_tj import quspin_tj_levels
 
 from lowfold.jobs.export import export_text
@@ -190,3 +195,28 @@ def test_json_classes_list_a_member_of_every_orbit():
              for m in bent["members"]}
     assert bends == {frozenset({(1.0, 0.0), (0.0, 1.0)}), frozenset({(-1.0, 0.0), (0.0, 1.0)}),
                      frozenset({(-1.0, 0.0), (0.0, -1.0)}), frozenset({(1.0, 0.0), (0.0, -1.0)})}
+
+
+def classes_of(result) -> dict:
+    """(kind, class, operator, member shapes) -> (value, members per site) of every class."""
+    def value(c):
+        v = c.to_dict()["value"]
+        return np.asarray(complex(*v) if c.kind == "string" and isinstance(v, list) else v)
+    def shape(member):                 # offsets from its first site (patches differ)
+        return tuple(tuple(np.round(np.subtract(p, member[0]), 9)) for p in member)
+    return {(c.kind, c.name, c.operator, frozenset(map(shape, c.members or (c.positions,)))):
+            (value(c), c.multiplicity) for c in result.classes if c.kind != "constant"}
+
+
+@pytest.mark.parametrize("text, order", [(tj_text("chain", order=3, t=0.1, u=1.0), 3),
+                                         (hubbard_text("square", order=4, t=0.1, u=1.0), 4)],
+                         ids=["t-J chain", "square Hubbard"])
+def test_exported_classes_derive_back_on_the_infinite_lattice(text, order):
+    result = derive_infinite(parse(text), order)
+    again = derive_infinite(parse(export_text(result)), 1)
+    mine, theirs = classes_of(result), classes_of(again)
+    assert set(mine) == set(theirs) and len(mine) > 3
+    for key, (value, per_site) in mine.items():
+        np.testing.assert_allclose(theirs[key][0], value, atol=1e-14, err_msg=str(key))
+        assert theirs[key][1] == per_site
+    assert any(kind in ("string", "ring") for kind, *_ in mine)

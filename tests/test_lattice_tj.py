@@ -184,11 +184,26 @@ def test_a_hopping_without_bonds_is_on_the_nearest_bonds():
         [(c.kind, c.name, c.orders) for c in plain.classes]
 
 
-def test_a_perturbation_on_groups_of_sites_is_refused():
-    text = tj_text("chain", order=2).replace('[perturbation]', '''[[term]]
+def test_linked_cluster_identity_with_three_site_groups_in_the_perturbation():
+    # V holds groups of three sites (the bent and straight three-site paths of the square
+    # lattice, ordered: the middle site second) beside the hopping bonds; the weights of
+    # the subclusters of an open 3x2 cluster still sum to its own effective Hamiltonian
+    order = 2
+    text = tj_text("square", order=order).replace("[perturbation]", """[[term]]
 label = "three"
 type = "three-site"
-strength = 0.01
-[perturbation]''')
-    with pytest.raises(lowfold.ModelError, match="acts on groups of sites, not on bonds"):
-        derive_infinite(parse(text), 2)
+strength = 0.3
+[perturbation]""")
+    model = parse(text)
+    cluster = lowfold.make_lattice("square", [3, 2], "open")
+    direct = derive_on(model, cluster, order)
+    basis, _ = product_manifold(direct.model, direct.manifold.states)
+    own = strings_of_orders(basis, list(direct.orders))
+    summed = {tuple((s, a, b) for s, (a, b) in key): v
+              for key, v in open_cluster_sum(model, cluster, order).items()}
+    zero = np.zeros(order + 1)
+    # the three-site term enters at first order: strings on three sites of size 0.3
+    assert any(len(key) == 3 and abs(abs(v[1]) - 0.3) < 1e-12 for key, v in own.items())
+    for key in set(own) | set(summed):
+        np.testing.assert_allclose(summed.get(key, zero), own.get(key, zero), atol=ATOL,
+                                   err_msg=str(key))

@@ -112,8 +112,9 @@ def local_export_text(result, *, lattice_table, toml, class_groups, unique, expa
     lines += ["", lattice_table(model.lattice)] + site_lines + sector_lines + ["[parameters]"]
     lines += [f"{name} = {_strength(value, toml)}" for name, value in parameters.items()]
     window = [constant - 1.0, constant + 1.0]
+    mixed = ['filling = "mixed"'] if infinite and model.site.type != "spin" else []
     lines += [""] + terms + ["[perturbation]", 'unperturbed = ["E0"]', "order = 1",
-                             f"window = {toml(window)}", ""]
+                             f"window = {toml(window)}", *mixed, ""]
     return "\n".join(lines)
 
 

@@ -3,12 +3,14 @@
 :func:`derive_infinite` and :func:`energy_per_site` run the linked-cluster expansion of
 :mod:`lowfold.perturbation.linked_clusters` with one Schrieffer–Wolff calculation per
 distinct cluster graph: the derive job on a ``graph`` model with the same site type, the
-V terms restricted to the cluster's bonds and the one-site H0 terms on its sites.  The sum
+V terms restricted to the cluster's edges (bonds and groups of sites,
+:mod:`lowfold.jobs.lattice_groups`) and the one-site H0 terms on its sites.  The sum
 per unit cell is read out as coupling classes (:class:`lowfold.results.CouplingClass`).
 
 Requirements (a :class:`~lowfold.errors.ModelError` otherwise): H0 is a sum of one-site
 terms, the manifold is the lowest level of H0 (a product of one-site manifolds), the sector
-fixes no total, and V terms act on bond classes or on all sites.
+fixes no total, and V terms act on bond classes, translated groups (three-site paths,
+cycles, patterns) or all sites; no flux or explicit phases.
 
 Readouts.  When the one-site manifold is one spin-1/2 (or pseudo-spin-1/2) the clusters'
 effective Hamiltonians are Pauli strings; otherwise (``filling = "mixed"``: the doped Mott
@@ -31,15 +33,17 @@ import numpy as np
 
 from lowfold.build.hamiltonian import Hamiltonian
 from lowfold.errors import ModelError
+from lowfold.jobs.lattice_classes import formula_model, read_classes, read_local_classes
+from lowfold.jobs.lattice_groups import (cell_reach, coloured_groups, ordered_colours,
+                                         term_groups_on, term_width, with_bond_classes)
 from lowfold.model.lattice import Lattice, make_lattice
-from lowfold.model.model import Model, PerturbationSpec, directed_hopping
+from lowfold.model.model import Model, PerturbationSpec
 from lowfold.model.sector import Sector
 from lowfold.model.terms import ONE_SITE_TYPES
 from lowfold.perturbation.linked_clusters import (ClusterWeights, LatticeSum,
                                                   connected_edge_sets, lattice_sum,
                                                   sum_embeddings)
 from lowfold.perturbation.orders import validate_order
-from lowfold.jobs.lattice_classes import formula_model, read_classes, read_local_classes
 from lowfold.readout.local_basis import LocalBasis, product_manifold
 from lowfold.readout.local_strings import strings_of_orders
 from lowfold.readout.pauli import parse_pauli_string
@@ -92,39 +96,10 @@ def check_linked_cluster_model(model: Model) -> None:
         if term.sites is not None and term.sites != "all":
             raise ModelError(f"term {term.label!r}: explicit sites on an infinite lattice; use "
                              "sites = \"all\"")
-        on_groups = term.type not in ONE_SITE_TYPES + ("constant",) and term.bonds is None
-        if term.label in model.perturbation_labels and on_groups and _default_bonds(term) is None \
-                and not (term.type == "product" and term.sites is not None):
-            raise ModelError(f"term {term.label!r} ({term.type}) acts on groups of sites, not "
-                             "on bonds; the linked-cluster expansion takes V terms on a bond "
-                             "class (bonds = \"nearest\", \"next-nearest\" or \"third\")")
         if (term.type == "product" and term.bonds is not None and term.operators is not None
                 and len(set(term.operators)) > 1 and not term.conjugate):
             raise ModelError(f"term {term.label!r}: a product of different operators on bonds "
                              "has a direction, which the cluster graphs do not keep")
-
-
-_BOND_TYPES = ("hopping", "interaction", "exchange", "dm", "anisotropy", "biquadratic")
-
-
-def _default_bonds(term) -> str | None:
-    """The bond class a term acts on when it names none: ``nearest`` for the two-site types
-    (and two-factor pauli and string terms) without another selector."""
-    if term.bonds is not None:
-        return term.bonds
-    others = (term.sites, term.pattern, getattr(term, "cycles", None))
-    two_factors = term.type in ("pauli", "string") and len(term.operators or ()) == 2
-    if (term.type in _BOND_TYPES or two_factors) and all(x is None for x in others):
-        return "nearest"
-    return None
-
-
-def with_bond_classes(model: Model) -> Model:
-    """``model`` with every term that acts on the nearest bonds by default naming them, so
-    that the cluster graphs see its bonds (a hopping without ``bonds`` is a bond term)."""
-    terms = tuple(replace(t, bonds=_default_bonds(t)) if t.bonds is None and _default_bonds(t)
-                  else t for t in model.terms)
-    return model if terms == model.terms else replace(model, terms=terms)
 
 
 def _constant_h0(model: Model) -> bool:
@@ -166,18 +141,21 @@ def _cluster_model(model: Model, labels: dict, graph, order: int,
     """The ``graph`` model of one cluster: V terms on its bonds, one-site terms on its sites,
     in ``sector`` (default: no fixed totals)."""
     n, edges = graph
-    lattice = make_lattice("graph", sites=n, bonds=[(a, b) for a, b, _ in edges])
+    links = {tuple(sorted(pair)) for edge in edges for pair in zip(edge[:-2], edge[1:-1])}
+    lattice = make_lattice("graph", sites=n, bonds=sorted(links))
     terms = []
     for term in model.terms:
         if term.type == "constant":
             terms.append(term)
             continue
-        if term.bonds is None:
+        if term_width(term) == 1:
             terms.append(replace(term, sites="all"))
             continue
-        mine = tuple((a, b) for a, b, c in edges if term.label in labels[c])
-        if mine:
+        mine = tuple(edge[:-1] for edge in edges if term.label in labels[edge[-1]])
+        if mine and term.bonds is not None:
             terms.append(replace(term, bonds=mine))
+        elif mine:                    # a group term: its groups, in its order, as sites
+            terms.append(replace(term, sites=mine, pattern=None, cycles=None))
     window = None
     if _constant_h0(model):
         # H0 is a number: every state is in the manifold (a window around that number)
@@ -297,52 +275,28 @@ def linked_cluster_sum(model: Model, order: int, *, energy: bool = False,
     check_linked_cluster_model(model)
     model = with_bond_classes(model)
     lat = model.lattice
-    bonded = [model.term(label) for label in model.perturbation_labels if model.term(label).bonds]
-    classes = sorted({t.bonds for t in bonded})
-    probe = lat.patch(5)
-    reach = max([1] + [_cell_reach(probe, c) for c in classes])
+    v_terms = [model.term(label) for label in model.perturbation_labels]
+    extent = max([0] + [abs(int(x)) for t in v_terms for offset in (t.pattern or ())
+                        for x in offset[:len(lat.translations)]])
+    probe = lat.patch(max(5, 2 * extent + 3))
+    reach = max([1] + [cell_reach(probe, term_groups_on(t, probe)) for t in v_terms
+                       if term_width(t) > 1])
     cells = 2 * max(order, 1) * reach + 3
     patch = lat.patch(cells)
     n_basis, ndim = len(lat.unit_cell), len(lat.translations)
     centre = cells // 2
     reference = sum(centre * cells**k for k in range(ndim))
-    bond_list, colours, labels = _coloured_bonds(model, patch)
+    groups, colours, labels = coloured_groups(model, patch)
     filling, filling_note = one_site_filling(model)
     local = None if energy else one_site_basis(model, filling)
     weights = ClusterWeights(_solver(model, labels, order, energy, filling, local is not None),
                              order, even_trees=prune and _even_trees(model), mapper=graph_map,
-                             odd=_odd_letters(local), directed=_directed(model, labels))
+                             odd=_odd_letters(local), directed=ordered_colours(model, labels))
     cell_of = np.arange(patch.n_sites) // n_basis
-    total = lattice_sum(patch.n_sites, np.array(bond_list, dtype=np.int64).reshape(-1, 2),
-                        colours, cell_of, reference, n_basis, weights, order)
+    total = lattice_sum(patch.n_sites, groups, colours, cell_of, reference, n_basis, weights,
+                        order)
     return LinkedClusterRun(total, patch, reference, n_basis, time.perf_counter() - start,
                             filling_note, local)
-
-
-def _directed(model: Model, labels: dict) -> frozenset:
-    """Bond colours holding a hopping with a direction (complex strength or spin-orbit part):
-    their cluster graphs keep it (:func:`lowfold.perturbation.linked_clusters.canonical_form`)."""
-    return frozenset(c for c, names in labels.items()
-                     if any(directed_hopping(model, model.term(name)) for name in names))
-
-
-def _coloured_bonds(model: Model, cluster: Lattice):
-    """V-bonds of a cluster of the model's shape, each with the colour of its set of terms."""
-    on_bond: dict[tuple, list[str]] = {}
-    for label in model.perturbation_labels:
-        term = model.term(label)
-        if term.bonds is not None:
-            for i, j in cluster.bonds(term.bonds):
-                on_bond.setdefault((int(i), int(j)), []).append(label)
-    colour_of, labels, bond_list, colours = {}, {}, [], []
-    for bond, names in sorted(on_bond.items()):
-        key = tuple(sorted(names))
-        if key not in colour_of:
-            colour_of[key] = len(colour_of)
-            labels[colour_of[key]] = key
-        bond_list.append(bond)
-        colours.append(colour_of[key])
-    return bond_list, colours, labels
 
 
 def open_cluster_sum(model: Model, cluster: Lattice, order: int, *, energy: bool = False,
@@ -352,34 +306,22 @@ def open_cluster_sum(model: Model, cluster: Lattice, order: int, *, energy: bool
     effective Hamiltonian of the cluster itself, order by order)."""
     check_linked_cluster_model(model)
     model = with_bond_classes(model)
-    bonds, colours, labels = _coloured_bonds(model, cluster)
+    bonds, colours, labels = coloured_groups(model, cluster)
     filling, _ = one_site_filling(model)
     local = None if energy else one_site_basis(model, filling)
     weights = ClusterWeights(_solver(model, labels, order, energy, filling, local is not None),
                              order, even_trees=prune and _even_trees(model),
-                             odd=_odd_letters(local), directed=_directed(model, labels))
+                             odd=_odd_letters(local), directed=ordered_colours(model, labels))
     at: dict[int, list[int]] = {}
-    for k, (i, j) in enumerate(bonds):
-        at.setdefault(i, []).append(k)
-        at.setdefault(j, []).append(k)
+    for k, group in enumerate(bonds):
+        for s in group:
+            at.setdefault(s, []).append(k)
     adjacent = [sorted({f for s in bonds[k] for f in at[s] if f != k}) for k in range(len(bonds))]
     sets = connected_edge_sets(adjacent, range(len(bonds)), min(order, len(bonds)))
     clusters = [((s,), ()) for s in range(cluster.n_sites)]
     clusters += [(tuple(sorted({s for n in es for s in bonds[n]})),
                   tuple((*bonds[n], colours[n]) for n in es)) for es in sets]
     return sum_embeddings(clusters, weights)
-
-
-def _cell_reach(patch: Lattice, bond_class: str) -> int:
-    """Largest difference of cell coordinates along one direction across a bond."""
-    n_basis = len(patch.unit_cell)
-    cells = np.array(patch.size)
-    bonds = patch.bonds(bond_class)
-    if not len(bonds):
-        return 1
-    c = bonds // n_basis
-    coords = [np.stack([(c // int(np.prod(cells[:k]))) % cells[k] for k in range(len(cells))], -1)]
-    return int(np.abs(coords[0][:, 0] - coords[0][:, 1]).max())
 
 
 def energy_per_site(model: Model, order: int | None = None, *, prune: bool = True,

@@ -1,10 +1,11 @@
 """Linked-cluster expansion on an infinite lattice (Gelfand, Singh & Huse, J. Stat. Phys. 59,
 1093 (1990)).
 
-The perturbation V is a sum of bond terms (and one-site terms); H0 is a sum of one-site
-terms.  A *cluster* is a connected set of V-bonds (or a single site); a process of order n
-of the infinite lattice uses at most n bonds, so at order n every cluster with at most n
-bonds contributes.  The *weight* of a cluster is its own effective Hamiltonian minus the
+The perturbation V is a sum of bond terms, terms on larger groups of sites (three-site
+paths, 4-cycles, translated patterns) and one-site terms; H0 is a sum of one-site terms.  A
+*cluster* is a connected set of V-bonds and groups, its *edges* (or a single site); a
+process of order n of the infinite lattice uses at most n edges, so at order n every
+cluster with at most n edges contributes.  The *weight* of a cluster is its own effective Hamiltonian minus the
 weights of its connected proper subclusters (embedded on its sites); the effective
 Hamiltonian of the lattice is the sum of the weights of every cluster of the lattice.
 
@@ -20,11 +21,13 @@ Conventions
   its odd factors: :func:`add_embedded` multiplies by the sign of that permutation
   (``odd``, the set of odd letters), so that a subcluster's weight, written in its own
   site order, is added in the order of the cluster or lattice it is embedded in.
-- A cluster graph is ``(n_sites, edges)`` with ``edges`` a tuple of ``(a, b, colour)``,
-  ``a < b``, ``colour`` an integer naming the set of V terms on the bond.  Two clusters
-  are the same graph when a relabelling of sites maps edges and colours onto each other;
-  the canonical form comes from igraph's ``canonical_permutation`` (the BLISS algorithm) on
-  the graph with every edge subdivided by a vertex of the edge's colour.
+- A cluster graph is ``(n_sites, edges)`` with ``edges`` a tuple of ``(a, b, colour)``
+  (``a < b`` unless the bond has a direction) or ``(a, b, c, ..., colour)`` for a group in
+  its term's order, ``colour`` an integer naming the set of V terms on the edge.  Two
+  clusters are the same graph when a relabelling of sites maps edges and colours onto each
+  other (keeping the order of ordered edges); the canonical form comes from igraph's
+  ``canonical_permutation`` (the BLISS algorithm) on the graph with every edge a vertex of
+  its colour (:func:`canonical_form`).
 - The sum over the lattice is taken per unit cell: every cluster whose smallest cell index
   (cells numbered as in :mod:`lowfold.model.lattice`) is the reference cell, once; each
   Pauli string of the sum is then translated so that its own smallest cell is the
@@ -45,7 +48,7 @@ __all__ = ["ClusterGraph", "LatticeSum", "canonical_form", "connected_edge_sets"
            "ClusterWeights", "lattice_sum", "add_embedded", "sum_embeddings", "prunable",
            "serial_map", "reorder_sign", "translate_key"]
 
-ClusterGraph = tuple[int, tuple[tuple[int, int, int], ...]]
+ClusterGraph = tuple[int, tuple[tuple[int, ...], ...]]
 Operator = dict[tuple, np.ndarray]
 
 
@@ -53,10 +56,12 @@ def canonical_form(n_sites: int, edges, directed: frozenset = frozenset()
                    ) -> tuple[ClusterGraph, list[int]]:
     """Canonical graph of a coloured cluster and the map from its sites to canonical labels.
 
-    An edge ``(a, b, c)`` whose colour ``c`` is in ``directed`` (a complex or spin-orbit
-    hopping: the bond has a direction) keeps it: it is two linked vertices, the tail's
-    attached to ``a`` and the head's to ``b``, so that only direction-preserving maps are
-    isomorphisms, and its canonical edge is listed tail first.
+    An edge is a group of sites and its colour, ``(a, b, c)`` for a bond.  A bond whose
+    colour is not in ``directed`` is unordered; a bond of a ``directed`` colour (a complex
+    or spin-orbit hopping, a DM vector, an ordered string: the bond has a direction) and a
+    group of three or more sites are ordered: each site is linked to the edge through a
+    vertex coloured by its position, so that only order-preserving maps are isomorphisms,
+    and the canonical edge lists its sites in that order.
 
     Returns
     -------
@@ -68,23 +73,29 @@ def canonical_form(n_sites: int, edges, directed: frozenset = frozenset()
     edges = list(edges)
     if not edges:
         return (n_sites, ()), list(range(n_sites))
-    heads = [k for k, (_, _, c) in enumerate(edges) if c in directed]
-    head_of = {k: n_sites + len(edges) + h for h, k in enumerate(heads)}
-    g = igraph.Graph(n=n_sites + len(edges) + len(heads))
-    g.add_edges([(a, n_sites + k) for k, (a, _, _) in enumerate(edges)]
-                + [(b, head_of.get(k, n_sites + k)) for k, (_, b, _) in enumerate(edges)]
-                + [(n_sites + k, head_of[k]) for k in heads])
-    top = 2 + 2 * max(c for _, _, c in edges)      # head colours above every edge colour
-    colours = ([0] * n_sites + [1 + c for _, _, c in edges]
-               + [top + edges[k][2] for k in heads])
+    ordered = [len(e) > 3 or e[-1] in directed for e in edges]
+    top = 1 + max(e[-1] for e in edges)             # edge vertices: colours 1 .. top
+    width = max(len(e) - 1 for e in edges)
+    colours = [0] * n_sites + [1 + e[-1] for e in edges]
+    links = []
+    for k, (edge, keeps_order) in enumerate(zip(edges, ordered)):
+        vertex = n_sites + k
+        if not keeps_order:
+            links += [(s, vertex) for s in edge[:-1]]
+            continue
+        for position, s in enumerate(edge[:-1]):    # a vertex per (colour, position)
+            colours.append(1 + top + edge[-1] * width + position)
+            links += [(s, len(colours) - 1), (len(colours) - 1, vertex)]
+    g = igraph.Graph(n=len(colours))
+    g.add_edges(links)
     position = _positions(g.canonical_permutation(color=colours))
     order = sorted(range(n_sites), key=lambda a: position[a])
     label = [0] * n_sites
     for rank, a in enumerate(order):
         label[a] = rank
-    canon = tuple(sorted((label[a], label[b], c) if c in directed
-                         else (min(label[a], label[b]), max(label[a], label[b]), c)
-                         for a, b, c in edges))
+    canon = tuple(sorted((*(label[s] for s in edge[:-1]), edge[-1]) if keeps_order
+                         else (*sorted(label[s] for s in edge[:-1]), edge[-1])
+                         for edge, keeps_order in zip(edges, ordered)))
     return (n_sites, canon), label
 
 
@@ -174,7 +185,7 @@ def _subgraphs(graph: ClusterGraph):
         yield (a,), ()
     for size in range(1, len(edges)):
         for subset in itertools.combinations(edges, size):
-            sites = sorted({s for a, b, _ in subset for s in (a, b)})
+            sites = sorted({s for edge in subset for s in edge[:-1]})
             if _connected(sites, subset):
                 yield tuple(sites), subset
 
@@ -183,17 +194,18 @@ def _connected(sites, edges) -> bool:
     reach, todo = {sites[0]}, [sites[0]]
     while todo:
         s = todo.pop()
-        for a, b, _ in edges:
-            for x, y in ((a, b), (b, a)):
-                if x == s and y not in reach:
-                    reach.add(y)
-                    todo.append(y)
+        for edge in edges:
+            if s in edge[:-1]:
+                for y in edge[:-1]:
+                    if y not in reach:
+                        reach.add(y)
+                        todo.append(y)
     return len(reach) == len(sites)
 
 
 def _local(sites, edges) -> tuple[int, list]:
     index = {s: k for k, s in enumerate(sites)}
-    return len(sites), [(index[a], index[b], c) for a, b, c in edges]
+    return len(sites), [(*(index[s] for s in edge[:-1]), edge[-1]) for edge in edges]
 
 
 def reorder_sign(key, site_of, odd: frozenset) -> float:
@@ -348,26 +360,27 @@ def lattice_sum(n_sites: int, bonds, colours, cell_of, reference: int, n_basis: 
     n_sites : int
         Sites of the patch; ``cell_of[s]`` is the cell index of site ``s`` and site
         ``s = n_basis * cell + basis index`` (numbering of :mod:`lowfold.model.lattice`).
-    bonds : (m, 2) int array
-        V-bonds of the patch; ``colours[k]`` the colour of bond ``k``.
+    bonds : sequence of tuples of int
+        V-groups of the patch (bonds, or groups of more sites for multi-site terms);
+        ``colours[k]`` the colour of group ``k``.
     reference : int
         Cell index of the reference cell (far enough from the edges of the patch).
     """
-    bonds = [(int(i), int(j)) for i, j in bonds]          # plain ints: fast in the loops below
+    bonds = [tuple(int(s) for s in group) for group in bonds]    # plain ints: fast below
     cell_of = [int(c) for c in cell_of]
-    keep = [k for k, (i, j) in enumerate(bonds) if min(cell_of[i], cell_of[j]) >= reference]
+    keep = [k for k, group in enumerate(bonds) if min(cell_of[s] for s in group) >= reference]
     at = {}
     for k in keep:
         for s in bonds[k]:
             at.setdefault(s, []).append(k)
     adjacent = {k: sorted({f for s in bonds[k] for f in at[s] if f != k}) for k in keep}
-    seeds = [k for k in keep if reference in (cell_of[bonds[k][0]], cell_of[bonds[k][1]])]
+    seeds = [k for k in keep if any(cell_of[s] == reference for s in bonds[k])]
     index = {k: n for n, k in enumerate(keep)}
     sets = connected_edge_sets([[index[f] for f in adjacent[k]] for k in keep],
                                [index[k] for k in seeds], max_bonds) if max_bonds else []
     clusters = [((s,), ()) for s in range(reference * n_basis, (reference + 1) * n_basis)]
     edge = [(*bonds[k], int(colours[k])) for k in keep]
-    clusters += [(tuple(sorted({s for n in es for s in edge[n][:2]})),
+    clusters += [(tuple(sorted({s for n in es for s in edge[n][:-1]})),
                   tuple(edge[n] for n in es)) for es in sets]
     total = sum_embeddings(clusters, weights)
     return LatticeSum(_translate(total, cell_of, reference, n_basis), len(clusters),
