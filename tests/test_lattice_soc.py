@@ -22,6 +22,7 @@ invariant there.  Checks:
   classes (complex X-operator strings beside the t-J kinds) exported and run on a 5-site ring
   with 4 electrons miss the ring's exact levels (QuSpin, tests/helpers/electrons.py) by
   O(t^(n+1)), n = 1, 2;
+- a DM perturbation on the square lattice keeps the direction of its x and y bonds;
 - a uniform complex hopping ``t e^(i phi)`` on the chain is a gauge transformation of the
   real one (``c_j -> e^(-i j phi) c_j``; common practice): the same couplings as ``|t|``;
 - on a periodic ring of 5 sites it is a flux ``5 phi`` through the ring: one fermion has the
@@ -173,3 +174,19 @@ def test_doped_chain_with_spin_orbit_hopping_exports_and_runs_on_a_ring():
             errors.append(np.abs(levels - exact).max())
         power = np.log2(errors[0] / errors[1])
         assert power == pytest.approx(order + 1, abs=0.25), (order, power)
+
+
+def test_dm_perturbation_keeps_the_direction_of_every_bond():
+    # V = D . (S_i x S_j) on the nearest bonds (i -> j along the translations), H0 a
+    # constant: at first order the effective model is V itself, so each bond direction has
+    # the vector as written (an edge relabelled against its direction would flip it); a
+    # constant adds no energy per site
+    table = {"lattice": {"shape": "square", "boundary": "infinite"},
+             "site": {"type": "spin", "spin": 0.5}, "parameters": {"E0": 1.0, "D": 0.2},
+             "term": [{"type": "constant", "strength": "E0", "label": "E0"},
+                      {"type": "dm", "strength": "D", "vector": [0.3, 0.5, 0.8], "label": "dm"}],
+             "perturbation": {"unperturbed": ["E0"], "order": 1, "window": [0.0, 2.0]}}
+    result = derive_infinite(parse_model(table), 1)
+    (dm,) = result.classes
+    assert (dm.kind, dm.name, dm.multiplicity) == ("dm", "nearest", 2.0)
+    np.testing.assert_allclose(dm.value, 0.2 * np.array([0.3, 0.5, 0.8]), atol=1e-15)

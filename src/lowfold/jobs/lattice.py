@@ -145,8 +145,8 @@ def _cluster_model(model: Model, labels: dict, graph, order: int,
     lattice = make_lattice("graph", sites=n, bonds=sorted(links))
     terms = []
     for term in model.terms:
-        if term.type == "constant":
-            terms.append(term)
+        if term.type == "constant":    # no energy per site: a number on every cluster
+            terms.append(replace(term, strength=0.0))    # would count once per cluster
             continue
         if term_width(term) == 1:
             terms.append(replace(term, sites="all"))
@@ -158,9 +158,8 @@ def _cluster_model(model: Model, labels: dict, graph, order: int,
             terms.append(replace(term, sites=mine, pattern=None, cycles=None))
     window = None
     if _constant_h0(model):
-        # H0 is a number: every state is in the manifold (a window around that number)
-        constant = sum(model.strength(model.term(label)) for label in model.unperturbed_labels)
-        window = (constant - 1.0, constant + 1.0)
+        # H0 is a number (zero on a cluster): every state is in the manifold
+        window = (-1.0, 1.0)
     spec = PerturbationSpec(model.perturbation.unperturbed, order,
                             "lowest" if window is None else None, window,
                             model.perturbation.tolerance)
