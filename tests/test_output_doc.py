@@ -8,7 +8,7 @@ Ising pair in a field on one site (no spin form: the ``effective`` matrices; err
 round-off: the ``note`` of the power fit), a one-spin avoided crossing and a Zeeman pair
 with a true crossing between S^z sectors (the sweep's lists), a transverse-field Ising pair
 (Pade, ratio test, first- and second-order lists), a periodic Hubbard ring of four sites
-(coupling classes).  The physics of these numbers is checked
+(coupling classes), the infinite square lattice (classes of several translation orbits).  The physics of these numbers is checked
 elsewhere; here only the schema is.
 """
 
@@ -96,6 +96,8 @@ TRANSVERSE = SPIN_PAIR.format(h0_type="field", h0_body='axis = "z"\nstrength = -
 
 # an infinite chain: coupling classes and the check on a periodic cluster (check.cluster)
 INFINITE_CHAIN = lattice_hubbard_text("chain", order=2)
+# the square lattice: the nearest class holds the x and y bonds (classes[].members)
+INFINITE_SQUARE = lattice_hubbard_text("square", order=2)
 
 # (task, model text, options, result class)
 RUNS = {
@@ -105,6 +107,7 @@ RUNS = {
     "derive-unchecked": ("derive", HUBBARD_DIMER, {"check": False}, EffectiveModel),
     "derive-classes": ("derive", HUBBARD_RING, {"check": False}, EffectiveModel),
     "derive-infinite": ("derive", INFINITE_CHAIN, {"check_levels": 2}, EffectiveModel),
+    "derive-square": ("derive", INFINITE_SQUARE, {"check": False}, EffectiveModel),
     "series-avoided": ("series", ONE_SPIN, {"sweep": "lambda=0:4:41"}, StateSeries),
     "series-crossing": ("series", ZEEMAN, {"sweep": "lambda=0:2:41"}, StateSeries),
     "series-plain": ("series", TRANSVERSE, {}, StateSeries),
