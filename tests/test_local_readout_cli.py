@@ -106,4 +106,4 @@ def test_classes_of_the_infinite_t_j_chain_in_latex(runs):
     assert r"exchange & nearest & $1$ &  & $0.04$ &  & $0.04$ & $4 t^2/U$ \\" in table
     assert table.count("\nstring ") >= 16
     assert r"J_{1} &= \frac{4 t^{2}}{U}" in latex
-    assert r"x_{1} \sum_{\text{3 sites (1, 1, 2)}} X^{0d}_{1} X^{d0}_{2} X^{uu}_{3}" in latex
+    assert r"x_{1} \sum_{\text{3 sites (1, 1, 2)}} X^{0d}_{0} X^{d0}_{1} X^{uu}_{2}" in latex

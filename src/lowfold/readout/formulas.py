@@ -224,13 +224,13 @@ _LOCAL_BODY = {
 
 
 def _x_operators(label: str) -> str:
-    """``|u><0|_0 |0><u|_1`` as ``X^{u0}_1 X^{0u}_2`` (a comma between labels longer than
-    one character: ``X^{+1,0}_1``)."""
+    """``|u><0|_0 |0><u|_1`` as ``X^{u0}_0 X^{0u}_1`` (a comma between labels longer than
+    one character: ``X^{+1,0}_0``)."""
     out = []
     for part in label.split():
         states, _, site = part.rpartition("_")
         a, b = states[1:-1].split("><")
-        out.append(rf"X^{{{a}{',' if max(len(a), len(b)) > 1 else ''}{b}}}_{{{int(site) + 1}}}")
+        out.append(rf"X^{{{a}{',' if max(len(a), len(b)) > 1 else ''}{b}}}_{{{int(site)}}}")
     return " ".join(out)
 
 
@@ -265,7 +265,7 @@ def latex_hamiltonian(model: Model, classes) -> str:
     ``\\Gamma``; a second class of the same kind and name gets a prime), then one line per
     coefficient: its formula (:func:`latex_formula`) when there is one, else its value.
     A ``string`` class is ``x_n`` times its X-operators ``X^{ab}_m = |a><b|`` on the
-    member's sites numbered from 1 in the order of its positions.
+    member's sites numbered from 0 in the order of its positions (as in its label).
     Spin operators ``S = sigma/2``; each sum runs over the members of the class once.
 
     Parameters
