@@ -138,7 +138,8 @@ def one_site_filling(model: Model) -> tuple[int | None, str | None]:
 
 def _cluster_model(model: Model, labels: dict, graph, order: int,
                    sector: Sector | None = None) -> Model:
-    """The ``graph`` model of one cluster: V terms on its bonds, one-site terms on its sites,
+    """The ``graph`` model of one cluster: V terms on its edges (bonds and groups, in their
+    order), one-site terms on its sites,
     in ``sector`` (default: no fixed totals)."""
     n, edges = graph
     links = {tuple(sorted(pair)) for edge in edges for pair in zip(edge[:-2], edge[1:-1])}
