@@ -38,7 +38,7 @@ import math
 
 import numpy as np
 import pytest
-from helpers.lattice_models import hubbard_text, parse, tj_text
+from helpers.lattice_models import boson_text, hubbard_text, parse, tj_text
 from helpers.quspin_tj import quspin_tj_levels
 
 from lowfold.jobs.export import export_text
@@ -121,37 +121,6 @@ def test_square_lattice_export_holds_every_orientation():
     np.testing.assert_allclose(levels, reference, atol=1e-12)
 
 
-BOSONS = """
-[lattice]
-shape = "chain"
-boundary = "infinite"
-[site]
-type = "boson"
-max_occupation = 3
-[parameters]
-t = {t}
-U = 1.0
-mu = -1.0
-[[term]]
-label = "hop"
-type = "hopping"
-strength = "t"
-bonds = "nearest"
-[[term]]
-label = "U"
-type = "hubbard"
-strength = "U"
-[[term]]
-label = "mu"
-type = "potential"
-strength = "mu"
-[perturbation]
-unperturbed = ["U", "mu"]
-order = {order}
-filling = "mixed"
-"""
-
-
 def bose_hubbard_ring_levels(t, u, mu, bosons, count):
     """Lowest levels of -t sum (b+_i b_j + h.c.) + (U/2) sum n(n-1) + mu sum n on the ring
     (QuSpin, up to 3 bosons per site)."""
@@ -170,7 +139,7 @@ def test_boson_classes_export_and_run_on_a_ring():
     for order in (1, 2):
         errors = []
         for t in (0.02, 0.01):
-            result = derive_infinite(parse(BOSONS.format(t=t, order=order)), order)
+            result = derive_infinite(parse(boson_text(t, order)), order)
             per_site = next(c.value for c in result.classes if c.kind == "constant")
             text = export_text(result)
             assert f"constant per site (not written as a term): {per_site!r}" in text

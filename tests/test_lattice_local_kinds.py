@@ -27,7 +27,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from helpers.lattice_models import parse
+from helpers.lattice_models import boson_text, parse
 
 import lowfold
 from lowfold.jobs.lattice import derive_infinite, open_cluster_sum
@@ -35,38 +35,6 @@ from lowfold.readout.local_basis import product_manifold
 from lowfold.readout.local_strings import strings_of_orders
 
 U, D = 1.0, 1.0
-
-
-def boson_text(t: float, order: int, max_occupation: int = 3) -> str:
-    return f"""
-[lattice]
-shape = "chain"
-boundary = "infinite"
-[site]
-type = "boson"
-max_occupation = {max_occupation}
-[parameters]
-t = {t}
-U = {U}
-mu = {-U}
-[[term]]
-label = "hop"
-type = "hopping"
-strength = "t"
-bonds = "nearest"
-[[term]]
-label = "U"
-type = "hubbard"
-strength = "U"
-[[term]]
-label = "mu"
-type = "potential"
-strength = "mu"
-[perturbation]
-unperturbed = ["U", "mu"]
-order = {order}
-filling = "mixed"
-"""
 
 
 def spin2_text(j: float, order: int) -> str:

@@ -43,22 +43,33 @@ def derive_on(model, cluster, order):
     return lowfold.derive(finite, order, compare_exact=False)
 
 
-@pytest.mark.parametrize("shape, size, order", [("chain", [5], 4), ("square", [2, 2], 4),
-                                                ("square", [3, 2], 3)])
-def test_subcluster_weights_sum_to_the_cluster(shape, size, order):
-    # Gelfand, Singh & Huse, J. Stat. Phys. 59, 1093 (1990): on a finite cluster the
-    # weights of its connected subclusters sum to its own effective Hamiltonian
-    model = parse(tj_text(shape, order=order))
+def cluster_and_sum(model, shape, size, order):
+    """The open cluster's own derive, its local basis, its X-operator strings, and the sum
+    of the weights of its subclusters (same keys)."""
     cluster = lowfold.make_lattice(shape, size, "open")
     direct = derive_on(model, cluster, order)
     basis, _ = product_manifold(direct.model, direct.manifold.states)
     own = strings_of_orders(basis, list(direct.orders))
     summed = {tuple((s, a, b) for s, (a, b) in key): v
               for key, v in open_cluster_sum(model, cluster, order).items()}
+    return direct, basis, own, summed
+
+
+def assert_same_strings(own, summed, order):
     zero = np.zeros(order + 1)
     for key in set(own) | set(summed):                   # string by string
         np.testing.assert_allclose(summed.get(key, zero), own.get(key, zero), atol=ATOL,
                                    err_msg=str(key))
+
+
+@pytest.mark.parametrize("shape, size, order", [("chain", [5], 4), ("square", [2, 2], 4),
+                                                ("square", [3, 2], 3)])
+def test_subcluster_weights_sum_to_the_cluster(shape, size, order):
+    # Gelfand, Singh & Huse, J. Stat. Phys. 59, 1093 (1990): on a finite cluster the
+    # weights of its connected subclusters sum to its own effective Hamiltonian
+    model = parse(tj_text(shape, order=order))
+    direct, basis, own, summed = cluster_and_sum(model, shape, size, order)
+    assert_same_strings(own, summed, order)
     mine, _ = name_strings(direct.model, basis, summed, order + 1)
     named = {(c.kind, c.sites, c.operator): c.orders for c in mine}
     theirs = {(c.kind, tuple(c.sites), c.operator): c.orders for c in direct.couplings}
@@ -194,16 +205,7 @@ label = "three"
 type = "three-site"
 strength = 0.3
 [perturbation]""")
-    model = parse(text)
-    cluster = lowfold.make_lattice("square", [3, 2], "open")
-    direct = derive_on(model, cluster, order)
-    basis, _ = product_manifold(direct.model, direct.manifold.states)
-    own = strings_of_orders(basis, list(direct.orders))
-    summed = {tuple((s, a, b) for s, (a, b) in key): v
-              for key, v in open_cluster_sum(model, cluster, order).items()}
-    zero = np.zeros(order + 1)
+    _, _, own, summed = cluster_and_sum(parse(text), "square", [3, 2], order)
     # the three-site term enters at first order: strings on three sites of size 0.3
     assert any(len(key) == 3 and abs(abs(v[1]) - 0.3) < 1e-12 for key, v in own.items())
-    for key in set(own) | set(summed):
-        np.testing.assert_allclose(summed.get(key, zero), own.get(key, zero), atol=ATOL,
-                                   err_msg=str(key))
+    assert_same_strings(own, summed, order)

@@ -27,16 +27,16 @@ with ``repr`` (shortest round trip), so reading the file back gives the same flo
 
 from __future__ import annotations
 
-import json
 from pathlib import Path
 
 import numpy as np
 
 from lowfold.errors import ModelError
 from lowfold.jobs.export_local import local_export_text
+from lowfold.jobs.export_parts import (class_groups, labelled_selectors, lattice_table,
+                                       toml_value, unique_name, values_close)
 from lowfold.model.cycles import lattice_cycles
-from lowfold.model.lattice import BOND_CLASSES, make_lattice
-from lowfold.model.patterns import pattern_of_positions
+from lowfold.model.lattice import BOND_CLASSES
 from lowfold.readout.local_form import LOCAL_READOUT
 from lowfold.readout.pauli import parse_pauli_string
 
@@ -44,7 +44,6 @@ __all__ = ["export_text", "write_export"]
 
 _BASE = {"exchange": "J", "ring": "K", "chirality": "chi", "dm": "D", "anisotropy": "G",
          "pauli": "P"}
-_REL = 1e-9            # couplings equal to this relative tolerance share one term
 
 
 def write_export(result, path) -> Path:
@@ -71,43 +70,38 @@ def export_text(result, *, use_classes: bool | None = None) -> str:
     """
     model = result.model
     if result.manifold.readout.startswith(LOCAL_READOUT):
-        return local_export_text(result, lattice_table=_lattice_table, toml=_toml,
-                                 class_groups=_class_groups, unique=_unique,
-                                 expand_patterns=expand_patterns,
-                                 use_classes=use_classes)
+        return local_export_text(result, use_classes=use_classes)
     if not result.spin_form or model is None:
         why = result.readout_note or "no model attached"
         raise ModelError(f"the effective model has no spin-1/2 form ({why}); only spin "
                          "models with named couplings and local-operator readouts can be "
                          "exported")
     classes = tuple(getattr(result, "classes", ()) or ())
-    groups = _class_groups(classes, model.lattice) if classes else _groups(result, model.lattice)
+    groups = class_groups(classes, model.lattice) if classes else _groups(result, model.lattice)
     constant = next((c.value for c in result.couplings if c.kind == "constant"), 0.0)
     per_site = [c.value for c in classes if c.kind == "constant"]
     parameters, terms = {"E0": float(constant)}, [_term("constant", "E0", {})]
     taken = {"E0"}                             # parameter names and term labels
     for kind, name_hint, value, selector in groups:
-        name = _unique(_name(kind, name_hint), taken)
+        name = unique_name(_name(kind, name_hint), taken)
         taken.add(name)
         strength, extra = _strength(kind, value)
         parameters[name] = strength
-        for k, keys in enumerate(expand_patterns(selector)):
-            label = name if k == 0 else _unique(name, taken)
-            taken.add(label)
+        for label, keys in labelled_selectors(name, selector, taken):
             terms.append(_term(kind, name, {**extra, **keys}, label=label))
-    lines = [f"title = {_toml(f'effective model of {model.title} (order {result.order})')}",
+    lines = [f"title = {toml_value(f'effective model of {model.title} (order {result.order})')}",
              "# written by lowfold derive --export: the couplings summed to order "
              f"{result.order}"]
     if result.manifold.readout.startswith("pseudo-spin-1/2"):
         lines.append(f"# each spin-1/2 is a pseudo-spin of the derived model: {result.manifold.readout}")
     if per_site and not constant:
-        lines.append(f"# constant per site (not written as a term): {_toml(per_site[0])}")
-    lines += ["", _lattice_table(model.lattice),
+        lines.append(f"# constant per site (not written as a term): {toml_value(per_site[0])}")
+    lines += ["", lattice_table(model.lattice),
              "[site]", 'type = "spin"', "spin = 0.5", "", "[parameters]"]
-    lines += [f"{name} = {_toml(value)}" for name, value in parameters.items()]
+    lines += [f"{name} = {toml_value(value)}" for name, value in parameters.items()]
     window = [float(constant) - 1.0, float(constant) + 1.0]
     lines += [""] + terms + ["[perturbation]", 'unperturbed = ["E0"]', "order = 1",
-                             f"window = {_toml(window)}", ""]
+                             f"window = {toml_value(window)}", ""]
     return "\n".join(lines)
 
 
@@ -160,79 +154,12 @@ def _collect(items):
         operators = item[3] if len(item) > 3 else ()
         arr = np.asarray(value, dtype=float)
         for group in groups:
-            if group[0] == kind and group[3] == operators and _close(group[1], arr):
+            if group[0] == kind and group[3] == operators and values_close(group[1], arr):
                 group[2].append(sites)
                 break
         else:
             groups.append([kind, arr, [sites], operators])
     return [(k, v, members, ops) for k, v, members, ops in groups]
-
-
-def _close(a, b) -> bool:
-    scale = max(np.abs(a).max(), np.abs(b).max(), 1e-300)
-    return bool(np.abs(a - b).max() <= _REL * scale)
-
-
-def _class_groups(classes, lattice):
-    """One group per coupling class: a bond class, the cycles or every site by name when the
-    class holds all of them, else a pattern per translation orbit of its members (several
-    patterns: ``{"patterns": [...]}``, one term each, :func:`expand_patterns`)."""
-    out = []
-    per_site = _named_per_site(lattice)
-    for c in classes:
-        if c.kind == "constant":
-            continue
-        kind, name = c.kind, c.name
-        value = np.asarray(c.value)
-        if kind == "string" and value.size == 2:          # a complex string: [re, im]
-            value = np.asarray(complex(*value))
-        members = tuple(getattr(c, "members", ()) or (c.positions,))
-        factors = [f.rsplit("_", 1) for f in c.operator.split()] if kind == "string" else []
-        if factors:                     # X-operators in the label's order, on those sites
-            members = tuple([m[int(k)] for _, k in factors] for m in members)
-        whole = abs(c.multiplicity - per_site.get(name, -1.0)) < 1e-9
-        if whole and name in BOND_CLASSES:
-            selector = {"bonds": name}
-        elif whole and name in ("triangle", "4-cycle"):
-            selector = {"cycles": 3 if name == "triangle" else 4}
-        elif whole and name == "site":
-            selector = {"sites": "all"}
-        else:
-            patterns = [pattern_of_positions(m, lattice) for m in members]
-            selector = ({"pattern": patterns[0]} if len(patterns) == 1
-                        else {"patterns": patterns})
-        if kind == "pauli" and getattr(c, "operator", None):
-            selector = {"operators": c.operator.split(), **selector}
-        if kind == "string":
-            selector = {"operators": [op for op, _ in factors], **selector}
-        if kind == "field":
-            out += [("field" + a, None, h, selector) for a, h in zip("xyz", value) if h]
-            continue
-        out.append((kind, name if name in BOND_CLASSES else None, value, selector))
-    return out
-
-
-def _named_per_site(lattice) -> dict:
-    """Members per site of every bond class, of the triangles and 4-cycles and of the sites
-    (read on a periodic cluster of 8 cells per direction of an infinite lattice: no
-    member of a class of up to third neighbours wraps around it)."""
-    if lattice.shape == "graph":
-        return {}
-    cluster = lattice
-    if getattr(lattice, "infinite", False):
-        cluster = make_lattice(lattice.shape, [8] * len(lattice.translations), "periodic")
-    n = cluster.n_sites
-    rings, triangles = lattice_cycles(cluster)
-    counts = {name: len(cluster.bonds(name)) / n for name in BOND_CLASSES}
-    return {**counts, "triangle": len(triangles) / n, "4-cycle": len(rings) / n, "site": 1.0}
-
-
-def expand_patterns(selector: dict) -> list[dict]:
-    """The selectors of the terms a class is written as: one per pattern of ``patterns``."""
-    if "patterns" not in selector:
-        return [selector]
-    rest = {k: v for k, v in selector.items() if k != "patterns"}
-    return [{**rest, "pattern": p} for p in selector["patterns"]]
 
 
 # --------------------------------------------------------------------------- writing
@@ -243,15 +170,6 @@ def _name(kind, hint):
     if kind.startswith("field"):
         return "h" + kind[-1]
     return _BASE.get(kind, kind)
-
-
-def _unique(name, taken):
-    if name not in taken:
-        return name
-    k = 2
-    while f"{name}_{k}" in taken:
-        k += 1
-    return f"{name}_{k}"
 
 
 def _strength(kind, value):
@@ -268,35 +186,9 @@ def _strength(kind, value):
 
 def _term(kind, name, keys, label=None):
     kind = "field" if kind.startswith("field") else kind
-    lines = ["[[term]]", f"type = {_toml(kind)}", f"label = {_toml(label or name)}",
-             f"strength = {_toml(name)}"]
+    lines = ["[[term]]", f"type = {toml_value(kind)}", f"label = {toml_value(label or name)}",
+             f"strength = {toml_value(name)}"]
     if kind == "field":
-        lines.append(f"axis = {_toml(name[1])}")
-    lines += [f"{key} = {_toml(value)}" for key, value in keys.items()]
+        lines.append(f"axis = {toml_value(name[1])}")
+    lines += [f"{key} = {toml_value(value)}" for key, value in keys.items()]
     return "\n".join(lines) + "\n"
-
-
-def _lattice_table(lattice) -> str:
-    lines = ["[lattice]", f"shape = {_toml(lattice.shape)}"]
-    if lattice.shape == "graph":
-        lines += [f"sites = {lattice.n_sites}",
-                  f"bonds = {_toml(lattice.bonds('nearest').tolist())}"]
-    else:
-        if getattr(lattice, "size", None) is not None and "infinite" not in lattice.boundary:
-            lines.append(f"size = {_toml(list(lattice.size))}")
-        bounds = list(lattice.boundary)
-        lines.append(f"boundary = {_toml(bounds[0] if len(set(bounds)) == 1 else bounds)}")
-    return "\n".join(lines) + "\n"
-
-
-def _toml(value) -> str:
-    """A TOML value: strings as JSON-escaped basic strings, floats by repr, nested lists."""
-    if isinstance(value, str):
-        return json.dumps(value, ensure_ascii=False)
-    if isinstance(value, (list, tuple)):
-        return "[" + ", ".join(_toml(v) for v in value) + "]"
-    if isinstance(value, (bool, np.bool_)):
-        return "true" if value else "false"
-    if isinstance(value, (int, np.integer)):
-        return str(int(value))
-    return repr(float(value))

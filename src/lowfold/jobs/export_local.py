@@ -40,6 +40,8 @@ import re
 import numpy as np
 
 from lowfold.errors import ModelError
+from lowfold.jobs.export_parts import (class_groups, labelled_selectors, lattice_table,
+                                       toml_value, unique_name, values_close)
 from lowfold.model.lattice import BOND_CLASSES
 from lowfold.model.local_terms import paths
 from lowfold.model.patterns import translated_pattern
@@ -47,15 +49,12 @@ from lowfold.readout.local_basis import product_manifold
 
 __all__ = ["local_export_text"]
 
-_REL = 1e-9
 _BOSON_STEP = {"particle": 1, "hole": -1}
 
 
-def local_export_text(result, *, lattice_table, toml, class_groups, unique, expand_patterns,
-                      use_classes: bool | None = None) -> str:
-    """Model-file text of ``result`` (local-operator readout); helpers from jobs/export.py.
+def local_export_text(result, *, use_classes: bool | None = None) -> str:
+    """Model-file text of ``result`` (local-operator readout).
 
-    ``expand_patterns``: the selectors of one class's terms (one per translation orbit).
     ``use_classes``: one term per coupling class (``result.classes``) rather than per group
     of equal couplings; default: on an infinite lattice only (a finite cluster's couplings
     are written as they are, strings included).
@@ -70,8 +69,8 @@ def local_export_text(result, *, lattice_table, toml, class_groups, unique, expa
     if model is None:
         raise ModelError("the effective model cannot be exported: no model attached")
     infinite = model.lattice.infinite
-    kept, background, sector_lines = _kept_states(result, toml)
-    site_lines = _site_table(model.site, kept, toml)
+    kept, background, sector_lines = _kept_states(result)
+    site_lines = _site_table(model.site, kept)
     classes = tuple(getattr(result, "classes", ()) or ())
     if use_classes is None:
         use_classes = infinite
@@ -86,41 +85,40 @@ def local_export_text(result, *, lattice_table, toml, class_groups, unique, expa
         items = _coupling_groups(result.couplings, model.lattice)
     constant = float(np.real(next((c.value for c in result.couplings if c.kind == "constant"), 0.0)))
     parameters = {"E0": constant}
-    terms = [_term_text("constant", "E0", "E0", {}, toml)]
+    terms = [_term_text("constant", "E0", "E0", {})]
     taken = {"E0"}                             # parameter names and term labels
     for kind, value, selector, operator in items:
         for spec in _term_specs(kind, value, selector, operator, model.site, background or kept,
                                 model.lattice):
             kind_out, base, strength, keys, note = spec
-            name = unique(base, taken)
+            name = unique_name(base, taken)
             taken.add(name)
             if isinstance(strength, str):        # a literal strength, written in the term
                 strength = float(strength)
             else:
                 parameters[name] = strength
                 strength = name
-            for k, placed in enumerate(expand_patterns(keys)):   # one term per pattern
-                label = name if k == 0 else unique(name, taken)
-                taken.add(label)
-                terms.append(_term_text(kind_out, label, strength, placed, toml, note))
-    lines = [f"title = {toml(f'effective model of {model.title} (order {result.order})')}",
+            for label, placed in labelled_selectors(name, keys, taken):   # per pattern
+                terms.append(_term_text(kind_out, label, strength, placed, note))
+    lines = [f"title = {toml_value(f'effective model of {model.title} (order {result.order})')}",
              "# written by lowfold derive --export: the couplings summed to order "
              f"{result.order}, on the kept local states {result.manifold.readout}"]
     per_site = [c.value for c in classes if c.kind == "constant"]
     if use_classes and per_site:
-        lines.append(f"# constant per site (not written as a term): {toml(float(np.real(per_site[0])))}")
+        per_site = toml_value(float(np.real(per_site[0])))
+        lines.append(f"# constant per site (not written as a term): {per_site}")
     lines += ["", lattice_table(model.lattice)] + site_lines + sector_lines + ["[parameters]"]
-    lines += [f"{name} = {_strength(value, toml)}" for name, value in parameters.items()]
+    lines += [f"{name} = {_strength(value)}" for name, value in parameters.items()]
     window = [constant - 1.0, constant + 1.0]
     mixed = ['filling = "mixed"'] if infinite and model.site.type != "spin" else []
     lines += [""] + terms + ["[perturbation]", 'unperturbed = ["E0"]', "order = 1",
-                             f"window = {toml(window)}", *mixed, ""]
+                             f"window = {toml_value(window)}", *mixed, ""]
     return "\n".join(lines)
 
 
 # --------------------------------------------------------------------------- tables
 
-def _kept_states(result, toml):
+def _kept_states(result):
     """(kept local values, background occupation per site, [sector] lines) of the manifold:
     from its states on a cluster, or from the readout's description on an infinite lattice
     (no background there: a boson class takes it from its kind, :func:`_boson_specs`)."""
@@ -144,24 +142,24 @@ def _kept_states(result, toml):
         raise ModelError("the effective model cannot be exported: the kept local states differ "
                          "from site to site, and [site] states is one set for every site")
     background = {int(i): int(basis.values[i][basis.reference[i]]) for i in range(basis.n_sites)}
-    return kept[0], background, _sector_table(model, basis, toml)
+    return kept[0], background, _sector_table(model, basis)
 
 
-def _site_table(site, kept, toml) -> list[str]:
-    lines = ["[site]", f"type = {toml(site.type)}"]
+def _site_table(site, kept) -> list[str]:
+    lines = ["[site]", f"type = {toml_value(site.type)}"]
     if site.type == "spin":
         spin = site.spin
-        lines.append(f"spin = {toml(float(spin)) if spin.denominator != 1 else int(spin)}")
+        lines.append(f"spin = {toml_value(float(spin)) if spin.denominator != 1 else int(spin)}")
     if site.type == "boson":           # the derived model's cut-off: the same state integers
         lines.append(f"max_occupation = {site.max_occupation}")
     full = tuple(range(site.local_dimension))
     labels = site.local_labels()
     if tuple(kept) != full:
-        lines.append(f"states = {toml([labels[v] for v in kept])}")
+        lines.append(f"states = {toml_value([labels[v] for v in kept])}")
     return lines + [""]
 
 
-def _sector_table(model, basis, toml) -> list[str]:
+def _sector_table(model, basis) -> list[str]:
     sector = model.sector
     particles = sector.particles
     if particles is None and not basis.is_hull:
@@ -194,7 +192,7 @@ def _coupling_groups(couplings, lattice):
             value = np.asarray(complex(*c.value))
         operator = _string_operators(c.operator) if c.kind == "string" else None
         for group in groups:
-            if group[0] == kind and group[3] == operator and _close(group[1], value):
+            if group[0] == kind and group[3] == operator and values_close(group[1], value):
                 group[2].append(tuple(c.sites))
                 break
         else:
@@ -205,11 +203,6 @@ def _coupling_groups(couplings, lattice):
 
 def _is_complex(value) -> bool:
     return isinstance(value, complex)
-
-
-def _close(a, b) -> bool:
-    scale = max(np.abs(a).max(), np.abs(b).max(), 1e-300)
-    return bool(np.abs(a - b).max() <= _REL * scale)
 
 
 def _string_operators(label: str) -> tuple[str, ...]:
@@ -323,14 +316,15 @@ def _groups_of(selector, background, lattice):
     return translated_pattern(selector["pattern"], lattice)
 
 
-def _term_text(kind, name, strength, keys, toml, note=None) -> str:
+def _term_text(kind, name, strength, keys, note=None) -> str:
     lines = ["[[term]]"] + ([f"# {note}"] if note else [])
-    lines += [f"type = {toml(kind)}", f"label = {toml(name)}", f"strength = {_strength(strength, toml)}"]
-    lines += [f"{key} = {toml(value)}" for key, value in keys.items()]
+    lines += [f"type = {toml_value(kind)}", f"label = {toml_value(name)}",
+              f"strength = {_strength(strength)}"]
+    lines += [f"{key} = {toml_value(value)}" for key, value in keys.items()]
     return "\n".join(lines) + "\n"
 
 
-def _strength(value, toml) -> str:
+def _strength(value) -> str:
     if isinstance(value, complex):
         return f"{{re = {value.real!r}, im = {value.imag!r}}}"
-    return toml(value)
+    return toml_value(value)
