@@ -60,7 +60,11 @@ def start_local_cluster(workers: int | None = None, **kwargs):
 
     options = {"n_workers": workers or available_cores(), "threads_per_worker": 1,
                "processes": True, "env": dict(WORKER_ENV), "dashboard_address": ":0",
-               "silence_logs": logging.ERROR}
+               "silence_logs": logging.CRITICAL}
+    # CRITICAL, not ERROR: a worker whose heartbeat meets the scheduler already closing at
+    # the end of a scan logs "Failed to communicate with scheduler during heartbeat" at
+    # ERROR, with a traceback, about a shutdown that succeeded; failures of points reach
+    # the scan through their futures and are stored with the point.
     # ":0": any free port for the scheduler's web server; the default (8787) makes a second
     # scan on the same machine fail to start ("Port 8787 is already in use").
     options.update(kwargs)
